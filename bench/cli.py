@@ -1,0 +1,80 @@
+"""The ``rxbench`` command line: thin argparse over the command modules in :mod:`bench.commands`.
+
+``main(argv) -> int`` exists so tests can call it in-process; the console script calls
+:func:`run_console`, which exits with its return value.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from bench import __version__
+from bench.errors import RxbenchError
+
+#: Command modules, in the order ``rxbench --help`` lists them.
+COMMANDS = (
+    "inspect",
+    "loss",
+    "ladder",
+    "nf",
+    "predict",
+    "excess",
+    "swr",
+    "compare",
+    "capture",
+    "analyze",
+    "synth",
+    "demo",
+)
+
+
+class _Parser(argparse.ArgumentParser):
+    """An ArgumentParser whose errors are one line on stderr and exit code 2."""
+
+    def error(self, message):  # noqa: D102 - argparse hook
+        self.exit(2, f"{self.prog}: error: {message}\n")
+
+
+def _command_modules():
+    for name in COMMANDS:
+        yield importlib.import_module(f"bench.commands.{name}")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="rxbench",
+        description="Measure what a passive device in the receive path costs, with an SDR dongle.",
+    )
+    parser.add_argument("--version", action="version", version=f"rxbench {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+    for module in _command_modules():
+        module.add_parser(sub)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run one rxbench command; return its exit code (0 ok, 1 a measurement failed, 2 bad input)."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version and usage errors
+        return int(exc.code or 0)
+    try:
+        return int(args.func(args) or 0)
+    except RxbenchError as exc:
+        print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"rxbench {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+def run_console() -> None:
+    sys.exit(main(sys.argv[1:]))
+
+
+if __name__ == "__main__":  # pragma: no cover
+    run_console()

@@ -1,0 +1,55 @@
+"""Output conventions shared by every command.
+
+With ``--json`` stdout carries exactly one JSON document; otherwise human text goes to stdout.
+Warnings always go to stderr (and into the JSON ``warnings`` list).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from typing import Any
+
+
+def add_json_option(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--json", action="store_true", help="print exactly one JSON document on stdout")
+
+
+def _clean(value: Any) -> Any:
+    """Make a result JSON-safe: numpy scalars to Python, non-finite floats to null."""
+    if isinstance(value, dict):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    if hasattr(value, "tolist"):  # numpy scalar or array
+        return _clean(value.tolist())
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def warn(message: str, command: str = "") -> None:
+    prefix = f"rxbench {command}: " if command else "rxbench: "
+    print(f"{prefix}warning: {message}", file=sys.stderr)
+
+
+def emit(args: argparse.Namespace, result: dict, human: str, warnings: list[str] | None = None) -> None:
+    """Print ``result`` as JSON (``--json``) or ``human`` as text; warnings to stderr either way."""
+    for w in warnings or ():
+        warn(w, getattr(args, "command", ""))
+    if getattr(args, "json", False):
+        json.dump(_clean(result), sys.stdout, indent=2, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        sys.stdout.write(human.rstrip("\n") + "\n")
+
+
+def fmt_db(value: float, digits: int = 2) -> str:
+    """A dB value for humans: fixed decimals; -inf/inf/nan spelled out."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "n/a"
+    if math.isinf(value):
+        return "-inf" if value < 0 else "inf"
+    return f"{value:.{digits}f}"
