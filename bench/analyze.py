@@ -1,0 +1,132 @@
+"""From captures to readings: one pass over a capture's blocks feeds the PSD and health accumulators,
+then :mod:`dsp` gives the noise floor and the tone. Everything rxbench reports starts here.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from bench.errors import CaptureError
+from bench.recordings import Capture
+from dsp.floor import NoiseFloor, noise_floor
+from dsp.health import Health, HealthAccumulator
+from dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
+from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from dsp.units import db_from_power
+
+#: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
+DEFAULT_NPERSEG = 4096
+MIN_NPERSEG = 256
+MIN_SEGMENTS = 4 * N_BATCHES
+#: Clip fraction above which a capture is called clipped.
+CLIP_WARN_FRACTION = 1e-5
+#: A tone closer than this to the noise (peak bin over floor, dB) gets a low-SNR warning.
+LOW_SNR_DB = 10.0
+
+
+@dataclass(frozen=True)
+class Reading:
+    """Everything read from one capture."""
+
+    capture: Capture
+    psd: Psd
+    floor: NoiseFloor
+    tone: Tone | None
+    health: Health
+    warnings: list = field(default_factory=list)
+
+    @property
+    def clip_fraction(self) -> float:
+        return self.health.clip_fraction
+
+    @property
+    def dc_offset(self) -> complex:
+        return self.health.dc_offset
+
+
+def choose_nperseg(n_samples: int, requested: int | None = None) -> int:
+    """FFT length: ``requested``, or 4096 shortened (powers of two) until the capture holds
+    at least MIN_SEGMENTS half-overlapped segments."""
+    if requested is not None:
+        return int(requested)
+    nperseg = DEFAULT_NPERSEG
+    while nperseg > MIN_NPERSEG and n_samples < (MIN_SEGMENTS + 1) * nperseg // 2:
+        nperseg //= 2
+    return nperseg
+
+
+def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann") -> tuple[Psd, Health]:
+    """One streaming pass: averaged PSD and health of a capture. Raises CaptureError on bad samples."""
+    n = choose_nperseg(capture.n_samples, nperseg)
+    if capture.n_samples < n:
+        raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
+    acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex)
+    health = HealthAccumulator(capture.clip_level)
+    for block in capture.blocks():
+        health.update(block)
+        acc.update(block)
+    h = health.result()
+    if h.n_nonfinite:
+        raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")
+    psd = acc.result()
+    if not np.any(psd.density > 0):
+        raise CaptureError(capture.path, "all samples are equal: there is no signal or noise to measure")
+    return psd, h
+
+
+def read_capture(
+    capture: Capture,
+    *,
+    near_hz: float | None = None,
+    nperseg: int | None = None,
+    snr_bandwidth_hz: float = DEFAULT_SNR_BANDWIDTH_HZ,
+    want_tone: bool = True,
+) -> Reading:
+    """Read a capture: PSD, noise floor, (optionally) the tone, health and warnings."""
+    psd, health = accumulate(capture, nperseg)
+    warnings: list[str] = []
+    name = capture.path.name
+    if health.clip_fraction > CLIP_WARN_FRACTION:
+        warnings.append(
+            f"{name}: {100 * health.clip_fraction:.3g} % of samples at the rails (clipping): "
+            "readings are compressed; add attenuation or lower the gain"
+        )
+    try:
+        floor = noise_floor(psd, dc_halfwidth_hz=None if capture.is_complex else 0.0)
+    except ValueError as exc:
+        raise CaptureError(capture.path, f"no noise floor: {exc}") from None
+    if floor.density <= 0:
+        raise CaptureError(capture.path, "the noise floor is zero (constant or digitally generated samples?)")
+    tone = None
+    if want_tone:
+        try:
+            tone = measure_tone(psd, floor, near_hz=near_hz, snr_bandwidth_hz=snr_bandwidth_hz)
+        except ValueError as exc:
+            warnings.append(f"{name}: {exc}")
+        if tone is not None:
+            warnings.extend(_tone_warnings(name, psd, floor, tone))
+    return Reading(capture, psd, floor, tone, health, warnings)
+
+
+def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[str]:
+    out = []
+    if tone.peak_to_floor_db < LOW_SNR_DB:
+        out.append(
+            f"{name}: tone only {tone.peak_to_floor_db:.1f} dB above the noise in one bin; "
+            f"its power is uncertain by +/-{tone.u_power_db * 2:.2f} dB (95 %)"
+        )
+    if tone.power <= 0 or tone.ci95_dbfs[0] == -np.inf:
+        out.append(f"{name}: tone power not distinguishable from the noise")
+    if psd.one_sided:
+        return out
+    if abs(tone.offset_hz) <= floor.dc_halfwidth_hz + 4 * psd.bin_width_hz:
+        out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz sits on the DC spike; tune it away from the centre")
+    if abs(tone.offset_hz) > floor.edge_hz:
+        out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz is near the band edge (anti-alias roll-off)")
+    return out
+
+
+def noise_density_dbfs_per_hz(reading: Reading) -> float:
+    return db_from_power(reading.floor.density)

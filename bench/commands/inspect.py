@@ -1,0 +1,90 @@
+"""``rxbench inspect CAPTURE``: tone power, frequency, noise density, C/N0, SNR and health of one capture."""
+
+from __future__ import annotations
+
+import argparse
+
+from bench.analyze import read_capture
+from bench.output import add_json_option, emit, fmt_db
+from bench.recordings import add_capture_options, capture_from_args
+from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
+from dsp.units import db_from_power
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser("inspect", help="read a tone and the noise from one capture",
+                       description="Read the tone and the noise floor of one capture.")
+    p.add_argument("capture", metavar="CAPTURE", help="SigMF (.sigmf-meta/.sigmf-data), raw IQ, or WAV/FLAC file")
+    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--snr-bandwidth", type=float, default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
+                   help="noise bandwidth for the SNR, Hz (default %(default)g)")
+    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
+    add_capture_options(p)
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+def tone_dict(tone, center_hz) -> dict:
+    """The JSON view of a tone reading (shared by every command that reports tones)."""
+    if tone is None:
+        keys = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
+                "snr_bandwidth_hz")
+        return dict.fromkeys(keys)
+    return {
+        "offset_hz": tone.offset_hz,
+        "frequency_hz": None if center_hz is None else center_hz + tone.offset_hz,
+        "power_dbfs": tone.power_dbfs,
+        "u_power_db": tone.u_power_db,
+        "ci95_dbfs": list(tone.ci95_dbfs),
+        "cn0_dbhz": tone.cn0_dbhz,
+        "snr_db": tone.snr_db,
+        "snr_bandwidth_hz": tone.snr_bandwidth_hz,
+    }
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.snr_bandwidth <= 0:
+        from bench.errors import UsageError
+
+        raise UsageError(f"--snr-bandwidth must be positive, got {args.snr_bandwidth}")
+    cap = capture_from_args(args.capture, args)
+    r = read_capture(cap, near_hz=args.near, nperseg=args.nperseg, snr_bandwidth_hz=args.snr_bandwidth)
+    t = r.tone
+    result = {
+        "capture": str(cap.path),
+        "sample_rate_hz": cap.sample_rate_hz,
+        "center_hz": cap.center_hz,
+        "n_samples": cap.n_samples,
+        "duration_s": cap.duration_s,
+        "tone": tone_dict(t, cap.center_hz),
+        "noise": {
+            "density_dbfs_per_hz": db_from_power(r.floor.density),
+            "u_density_db": 10 / 2.302585092994046 * r.floor.u_density / r.floor.density,
+            "bins_used": r.floor.n_bins,
+        },
+        "spectrum": {"nperseg": r.psd.nperseg, "bin_width_hz": r.psd.bin_width_hz, "enbw_hz": r.psd.enbw_hz,
+                     "segments": r.psd.n_segments, "dof": r.psd.dof},
+        "clip_fraction": r.health.clip_fraction,
+        "dc_offset_dbfs": r.health.dc_offset_dbfs,
+        "mean_power_dbfs": db_from_power(r.health.power),
+        "warnings": r.warnings,
+    }
+    lines = [f"{cap.path}: {cap.n_samples} samples at {cap.sample_rate_hz:g} Hz ({cap.duration_s:.3g} s)"]
+    if t is None:
+        lines.append("  tone          none found above the noise")
+    else:
+        freq = "" if cap.center_hz is None else f"  ({(cap.center_hz + t.offset_hz) / 1e6:.6f} MHz)"
+        lo, hi = t.ci95_dbfs
+        lines += [
+            f"  tone          {t.offset_hz:+.1f} Hz{freq}",
+            f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo)} .. {fmt_db(hi)})",
+            f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
+            f"  SNR           {fmt_db(t.snr_db, 1)} dB in {t.snr_bandwidth_hz:g} Hz",
+        ]
+    lines += [
+        f"  noise         {fmt_db(result['noise']['density_dbfs_per_hz'])} dBFS/Hz",
+        f"  clipped       {100 * r.health.clip_fraction:.4g} % of samples",
+        f"  DC offset     {fmt_db(r.health.dc_offset_dbfs, 1)} dBFS",
+    ]
+    emit(args, result, "\n".join(lines), r.warnings)
+    return 0

@@ -1,0 +1,580 @@
+"""Reading and writing captures.
+
+Every capture, whatever its file type, is delivered as blocks of complex64 samples at +/-1 full
+scale per rail (float32 for one-channel audio), so memory stays flat however long it is:
+
+- SigMF recordings (``.sigmf-meta`` or ``.sigmf-data``): metadata through the ``sigmf`` library,
+  samples memory-mapped and converted here (cu8 as (u - 127.5)/127.5, the convention the dongle's
+  Python binding uses; the sigmf library's own autoscaling would leave a DC term).
+- Raw interleaved IQ (``--format cu8|cs8|cs16|cf32 --rate HZ [--center HZ]``), memory-mapped.
+- WAV/RF64/FLAC through soundfile: two channels are I and Q, one channel is real audio.
+
+Writing is atomic: data and metadata go to temporary names in the destination folder and are
+linked into place only when complete; an existing recording is never replaced unless asked; an
+interrupted recording is kept under a ``.partial`` name, marked incomplete.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import json
+import os
+import secrets
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Iterator, Mapping
+
+import numpy as np
+
+from bench import keys
+from bench.errors import CaptureError
+
+#: Samples per block handed to the estimators (2**18 complex64 = 2 MiB).
+BLOCK_SAMPLES = 1 << 18
+
+META_SUFFIX = ".sigmf-meta"
+DATA_SUFFIX = ".sigmf-data"
+AUDIO_SUFFIXES = (".wav", ".flac", ".rf64", ".w64")
+
+
+@dataclass(frozen=True)
+class Encoding:
+    """How one sample type maps to full scale: value = (code - offset) / scale."""
+
+    component: str  # numpy dtype of one rail
+    is_complex: bool
+    offset: float
+    scale: float
+    clip_level: float  # per-rail magnitude (full-scale units) at which a sample sits on a rail
+
+    @property
+    def bytes_per_sample(self) -> int:
+        return np.dtype(self.component).itemsize * (2 if self.is_complex else 1)
+
+
+#: SigMF datatypes rxbench reads (little-endian only).
+ENCODINGS: dict[str, Encoding] = {
+    "cu8": Encoding("u1", True, 127.5, 127.5, 1.0),
+    "ci8": Encoding("i1", True, 0.0, 128.0, 127 / 128),
+    "ci16_le": Encoding("<i2", True, 0.0, 32768.0, 32767 / 32768),
+    "cf32_le": Encoding("<f4", True, 0.0, 1.0, 1.0),
+    "ru8": Encoding("u1", False, 127.5, 127.5, 1.0),
+    "ri8": Encoding("i1", False, 0.0, 128.0, 127 / 128),
+    "ri16_le": Encoding("<i2", False, 0.0, 32768.0, 32767 / 32768),
+    "rf32_le": Encoding("<f4", False, 0.0, 1.0, 1.0),
+}
+#: Raw-file ``--format`` names and the SigMF datatype each stands for.
+RAW_FORMATS = {"cu8": "cu8", "cs8": "ci8", "cs16": "ci16_le", "cf32": "cf32_le"}
+
+_CU8_LUT: np.ndarray | None = None
+
+
+def _cu8_lut() -> np.ndarray:
+    """complex64 value of every little-endian (I, Q) byte pair: one gather per sample."""
+    global _CU8_LUT
+    if _CU8_LUT is None:
+        v = (np.arange(256, dtype=np.float32) - np.float32(127.5)) / np.float32(127.5)
+        codes = np.arange(65536, dtype=np.uint32)
+        _CU8_LUT = (v[codes & 0xFF] + 1j * v[codes >> 8]).astype(np.complex64)
+    return _CU8_LUT
+
+
+def decode(raw: np.ndarray, encoding: Encoding) -> np.ndarray:
+    """Codes (one rail per element) -> complex64 (or float32 for real) at +/-1 full scale."""
+    if encoding.component == "u1" and encoding.is_complex:
+        return _cu8_lut()[raw.view("<u2")]
+    x = raw.astype(np.float32)
+    if encoding.offset:
+        x -= np.float32(encoding.offset)
+    if encoding.scale != 1.0:
+        x *= np.float32(1.0 / encoding.scale)
+    return x.view(np.complex64) if encoding.is_complex else x
+
+
+def encode(samples: np.ndarray, encoding: Encoding) -> np.ndarray:
+    """Full-scale samples -> codes of ``encoding`` (rounded and clipped to the rails)."""
+    x = np.asarray(samples)
+    rails = np.empty(x.size * (2 if encoding.is_complex else 1), dtype=np.float64)
+    if encoding.is_complex:
+        rails[0::2], rails[1::2] = x.real, x.imag
+    else:
+        rails[:] = np.real(x)
+    dt = np.dtype(encoding.component)
+    if dt.kind == "f":
+        return rails.astype(dt)
+    info = np.iinfo(dt)
+    return np.clip(np.rint(rails * encoding.scale + encoding.offset), info.min, info.max).astype(dt)
+
+
+@dataclass(frozen=True)
+class Capture:
+    """One recording and its metadata, read lazily in blocks.
+
+    Attributes
+    ----------
+    path : Path
+        The file named by the user (or ``<memory>``).
+    sample_rate_hz : float
+    center_hz : float or None
+        Centre (tuned) frequency, when known.
+    n_samples : int
+    is_complex : bool
+    datatype : str
+        The SigMF datatype of the stored samples (``cu8``, ``ci16_le``, ...; ``audio`` for soundfile).
+    clip_level : float
+        Per-rail magnitude at which a sample sits on a rail.
+    datetime : str or None
+        ISO 8601 start time, when the metadata gives one.
+    extra : Mapping
+        rxbench's own metadata (``rxbench:role``, ``rxbench:attenuation_db``, ...), keys without the
+        namespace prefix.
+    """
+
+    path: Path
+    sample_rate_hz: float
+    center_hz: float | None
+    n_samples: int
+    is_complex: bool
+    datatype: str
+    clip_level: float
+    datetime: str | None = None
+    extra: Mapping = field(default_factory=dict)
+    _reader: Callable[[int], Iterator[np.ndarray]] | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def duration_s(self) -> float:
+        return self.n_samples / self.sample_rate_hz
+
+    @property
+    def name(self) -> str:
+        n = self.path.name
+        for suffix in (META_SUFFIX, DATA_SUFFIX):
+            if n.endswith(suffix):
+                return n[: -len(suffix)]
+        return n
+
+    def blocks(self, block_samples: int = BLOCK_SAMPLES) -> Iterator[np.ndarray]:
+        """Yield the samples in blocks of ``block_samples`` (the last may be shorter)."""
+        if block_samples < 1:
+            raise ValueError(f"{block_samples=} must be >= 1")
+        return self._reader(block_samples)
+
+    def read(self) -> np.ndarray:
+        """All samples at once (for short captures and tests; prefer :meth:`blocks`)."""
+        parts = list(self.blocks())
+        if not parts:
+            return np.zeros(0, np.complex64 if self.is_complex else np.float32)
+        return np.concatenate(parts)
+
+
+def memory_capture(
+    samples,
+    sample_rate_hz: float,
+    *,
+    center_hz: float | None = None,
+    extra: Mapping | None = None,
+    datetime: str | None = None,
+    clip_level: float = 1.0,
+    name: str = "<memory>",
+) -> Capture:
+    """Wrap an in-memory array as a Capture (simulated bench and tests)."""
+    x = np.asarray(samples)
+    x = x.astype(np.complex64 if np.iscomplexobj(x) else np.float32, copy=False)
+
+    def reader(block):
+        for i in range(0, x.size, block):
+            yield x[i : i + block]
+
+    return Capture(Path(name), float(sample_rate_hz), center_hz, int(x.size), bool(np.iscomplexobj(x)),
+                   "cf32_le" if np.iscomplexobj(x) else "rf32_le", clip_level, datetime, dict(extra or {}), reader)
+
+
+def _mapped_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
+    rails = 2 if encoding.is_complex else 1
+
+    def reader(block):
+        if n_samples == 0:
+            return
+        mm = np.memmap(path, dtype=encoding.component, mode="r", offset=offset, shape=(n_samples * rails,))
+        try:
+            for i in range(0, n_samples, block):
+                yield decode(np.asarray(mm[i * rails : (i + block) * rails]), encoding)
+        finally:
+            del mm
+
+    return reader
+
+
+def _check_size(path: Path, encoding: Encoding, offset: int = 0) -> int:
+    try:
+        size = path.stat().st_size - offset
+    except OSError as exc:
+        raise CaptureError(path, f"cannot read: {exc.strerror or exc}") from None
+    if size <= 0:
+        raise CaptureError(path, "the file is empty")
+    bps = encoding.bytes_per_sample
+    if size % bps:
+        raise CaptureError(
+            path, f"{size} bytes is not a whole number of {bps}-byte samples: truncated or wrong format?"
+        )
+    return size // bps
+
+
+def _positive_rate(path, rate) -> float:
+    try:
+        rate = float(rate)
+    except (TypeError, ValueError):
+        raise CaptureError(path, f"sample rate {rate!r} is not a number") from None
+    if not np.isfinite(rate) or rate <= 0:
+        raise CaptureError(path, f"sample rate {rate!r} must be a positive number of Hz")
+    return rate
+
+
+def open_raw(path: Path, fmt: str, rate_hz, center_hz: float | None = None) -> Capture:
+    """A raw interleaved IQ file of format ``cu8|cs8|cs16|cf32``."""
+    if fmt not in RAW_FORMATS:
+        raise CaptureError(path, f"unknown raw format {fmt!r}; use one of {', '.join(RAW_FORMATS)}")
+    if rate_hz is None:
+        raise CaptureError(path, "a raw IQ file carries no sample rate: give --rate HZ")
+    datatype = RAW_FORMATS[fmt]
+    enc = ENCODINGS[datatype]
+    n = _check_size(path, enc)
+    return Capture(path, _positive_rate(path, rate_hz), center_hz, n, True, datatype, enc.clip_level,
+                   None, {}, _mapped_reader(path, enc, 0, n))
+
+
+def sigmf_paths(path: Path) -> tuple[Path, Path]:
+    """(meta, data) paths of a recording named by either file or by its base name."""
+    s = str(path)
+    for suffix in (META_SUFFIX, DATA_SUFFIX):
+        if s.endswith(suffix):
+            s = s[: -len(suffix)]
+    return Path(s + META_SUFFIX), Path(s + DATA_SUFFIX)
+
+
+def open_sigmf(path: Path) -> Capture:
+    """A SigMF recording (metadata checked against the SigMF schema)."""
+    from sigmf import SigMFFile
+    from sigmf.error import SigMFError
+
+    meta_path, data_path = sigmf_paths(path)
+    try:
+        text = meta_path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise CaptureError(meta_path, "no such file (a SigMF recording needs its .sigmf-meta)") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise CaptureError(meta_path, f"cannot read the metadata: {exc}") from None
+    try:
+        meta = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise CaptureError(meta_path, f"metadata is not valid JSON (line {exc.lineno}: {exc.msg})") from None
+    if not isinstance(meta, dict) or not isinstance(meta.get("global"), dict):
+        raise CaptureError(meta_path, "metadata has no 'global' object")
+    try:
+        SigMFFile(metadata=meta).validate()
+    except SigMFError as exc:
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema: {first}") from None
+    except Exception as exc:  # the schema validator raises its own types
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema: {first}") from None
+    g = meta["global"]
+    datatype = str(g.get(keys.DATATYPE, ""))
+    if datatype.endswith("_be"):
+        raise CaptureError(meta_path, f"big-endian datatype {datatype!r} is not supported; convert to little-endian")
+    if datatype not in ENCODINGS:
+        known = ", ".join(ENCODINGS)
+        raise CaptureError(meta_path, f"unsupported datatype {datatype!r}; rxbench reads {known}")
+    if int(g.get(keys.NUM_CHANNELS, 1)) != 1:
+        raise CaptureError(meta_path, f"{g[keys.NUM_CHANNELS]} channels: rxbench reads single-channel recordings")
+    if keys.SAMPLE_RATE not in g:
+        raise CaptureError(meta_path, f"metadata has no sample rate ({keys.SAMPLE_RATE})")
+    rate = _positive_rate(meta_path, g[keys.SAMPLE_RATE])
+    if not data_path.exists():
+        raise CaptureError(data_path, "no such file (the recording's samples are missing)")
+    enc = ENCODINGS[datatype]
+    offset = int(g.get("core:header_bytes", 0))
+    n = _check_size(data_path, enc, offset)
+    captures = meta.get("captures") or [{}]
+    first = captures[0] if isinstance(captures[0], dict) else {}
+    center = first.get(keys.FREQUENCY)
+    prefix = keys.NAMESPACE + ":"
+    extra = {k[len(prefix):]: v for k, v in {**g, **first}.items() if k.startswith(prefix)}
+    return Capture(meta_path, rate, float(center) if center is not None else None, n, enc.is_complex,
+                   datatype, enc.clip_level, first.get(keys.DATETIME), extra,
+                   _mapped_reader(data_path, enc, offset, n))
+
+
+def open_audio(path: Path, center_hz: float | None = None) -> Capture:
+    """A WAV/RF64/FLAC file: two channels are I and Q, one is real audio."""
+    import soundfile as sf
+
+    try:
+        info = sf.info(str(path))
+    except (RuntimeError, sf.LibsndfileError) as exc:
+        raise CaptureError(path, f"not a readable audio file: {exc}") from None
+    if info.channels not in (1, 2):
+        raise CaptureError(path, f"{info.channels} channels: expected 2 (I and Q) or 1 (real audio)")
+    if info.frames <= 0:
+        raise CaptureError(path, "the file holds no samples")
+    bits = {"PCM_S8": 8, "PCM_U8": 8, "PCM_16": 16, "PCM_24": 24, "PCM_32": 32}.get(info.subtype)
+    clip = 1.0 if bits is None else (2 ** (bits - 1) - 1) / 2 ** (bits - 1)
+    is_complex = info.channels == 2
+
+    def reader(block):
+        with sf.SoundFile(str(path)) as f:
+            while True:
+                data = f.read(block, dtype="float32", always_2d=True)
+                if not data.size:
+                    return
+                if is_complex:
+                    yield np.ascontiguousarray(data).view(np.complex64).ravel()
+                else:
+                    yield data[:, 0].copy()
+
+    return Capture(path, float(info.samplerate), center_hz, int(info.frames), is_complex,
+                   "audio", clip, None, {}, reader)
+
+
+def open_capture(path, *, fmt: str | None = None, rate_hz: float | None = None,
+                 center_hz: float | None = None) -> Capture:
+    """Open any capture rxbench reads; bad input raises :class:`CaptureError` naming the file.
+
+    ``fmt``/``rate_hz`` are needed for raw IQ (a ``.cu8``, ``.cs8``, ``.cs16`` or ``.cf32`` suffix
+    stands for ``fmt``); ``center_hz`` supplies a centre frequency where the file has none.
+    """
+    path = Path(path)
+    name = path.name.lower()
+    if name.endswith((META_SUFFIX, DATA_SUFFIX)):
+        if fmt is not None:
+            raise CaptureError(path, "--format applies to raw IQ files, not to SigMF recordings")
+        cap = open_sigmf(path)
+        if center_hz is not None and cap.center_hz is None:
+            cap = _replace(cap, center_hz=center_hz)
+        return cap
+    if not path.exists():
+        raise CaptureError(path, "no such file")
+    if path.is_dir():
+        raise CaptureError(path, "is a folder, not a capture")
+    if name.endswith(AUDIO_SUFFIXES) and fmt is None:
+        return open_audio(path, center_hz)
+    if fmt is None:
+        fmt = path.suffix.lower().lstrip(".")
+        if fmt not in RAW_FORMATS:
+            raise CaptureError(path, "unknown file type: for raw IQ give --format cu8|cs8|cs16|cf32 and --rate HZ")
+    return open_raw(path, fmt, rate_hz, center_hz)
+
+
+def _replace(cap: Capture, **changes) -> Capture:
+    from dataclasses import replace
+
+    return replace(cap, **changes)
+
+
+def add_capture_options(parser: argparse.ArgumentParser) -> None:
+    """``--format``, ``--rate`` and ``--center`` for raw IQ (and audio) captures."""
+    g = parser.add_argument_group("raw IQ captures")
+    g.add_argument("--format", choices=sorted(RAW_FORMATS), help="sample format of raw IQ files")
+    g.add_argument("--rate", type=float, metavar="HZ", help="sample rate of raw IQ files, Hz")
+    g.add_argument("--center", type=float, metavar="HZ", help="centre frequency where the file gives none, Hz")
+
+
+def capture_from_args(path, args: argparse.Namespace) -> Capture:
+    """Open ``path`` with the raw-IQ options of ``args`` (see :func:`add_capture_options`)."""
+    return open_capture(path, fmt=getattr(args, "format", None), rate_hz=getattr(args, "rate", None),
+                        center_hz=getattr(args, "center", None))
+
+
+# --------------------------------------------------------------------------------------------
+# Writing
+
+
+def utc_now_iso() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="microseconds").replace("+00:00", "Z")
+
+
+def _link_into_place(tmp: Path, final: Path, overwrite: bool) -> None:
+    """Move ``tmp`` to ``final`` atomically; without ``overwrite`` an existing ``final`` is an error."""
+    if overwrite:
+        os.replace(tmp, final)
+        return
+    try:
+        os.link(tmp, final)  # fails if final exists: no race with another writer
+    except FileExistsError:
+        raise CaptureError(final, "already exists; not overwriting it") from None
+    except OSError:  # file systems without hard links
+        if final.exists():
+            raise CaptureError(final, "already exists; not overwriting it") from None
+        os.rename(tmp, final)
+        return
+    os.unlink(tmp)
+
+
+class SigmfWriter:
+    """Write one SigMF recording atomically.
+
+    Samples go to a hidden temporary file in the destination folder. :meth:`commit` writes the
+    metadata and links both files into place; nothing appears under the final name before that.
+    :meth:`abandon` (called on any exception inside a ``with`` block, Ctrl-C included) keeps what
+    was written as ``<base>.partial.sigmf-data/-meta`` with ``rxbench:incomplete`` set.
+
+    Parameters
+    ----------
+    base_path : path
+        Recording name without suffix (a ``.sigmf-meta``/``.sigmf-data`` suffix is stripped).
+    sample_rate_hz : float
+    datatype : str
+        One of :data:`ENCODINGS`; ``write`` takes raw codes of that type or full-scale samples.
+    center_hz, datetime, description : optional
+    extra : Mapping
+        rxbench metadata, keys without the ``rxbench:`` prefix.
+    overwrite : bool
+        Replace an existing recording of the same name.
+    """
+
+    def __init__(self, base_path, *, sample_rate_hz: float, datatype: str = "cu8",
+                 center_hz: float | None = None, datetime: str | None = None,
+                 description: str | None = None, extra: Mapping | None = None, overwrite: bool = False):
+        if datatype not in ENCODINGS:
+            raise CaptureError(Path(base_path), f"cannot write datatype {datatype!r}")
+        self.meta_path, self.data_path = sigmf_paths(Path(base_path))
+        self.folder = self.meta_path.parent
+        if not self.folder.is_dir():
+            raise CaptureError(self.folder, "no such folder")
+        if not overwrite:
+            for p in (self.meta_path, self.data_path):
+                if p.exists():
+                    raise CaptureError(p, "already exists; not overwriting it")
+        self.encoding = ENCODINGS[datatype]
+        self.datatype = datatype
+        self.sample_rate_hz = float(sample_rate_hz)
+        self.center_hz = center_hz
+        self.datetime = datetime or utc_now_iso()
+        self.description = description
+        self.extra = dict(extra or {})
+        self.overwrite = overwrite
+        token = secrets.token_hex(4)
+        base = self.meta_path.name[: -len(META_SUFFIX)]
+        self._tmp_data = self.folder / f".{base}.{token}.tmp{DATA_SUFFIX}"
+        self._tmp_meta = self.folder / f".{base}.{token}.tmp{META_SUFFIX}"
+        self._file = open(self._tmp_data, "xb")
+        self.n_samples = 0
+        self.done = False
+
+    def write(self, data) -> None:
+        """Append raw codes (an integer/float array of the datatype's rail type, or bytes) or
+        full-scale samples (complex or float arrays, encoded and rounded)."""
+        if isinstance(data, (bytes, bytearray, memoryview)):
+            raw = np.frombuffer(data, dtype=self.encoding.component)
+        else:
+            arr = np.asarray(data)
+            if arr.dtype == np.dtype(self.encoding.component) and not np.iscomplexobj(arr):
+                raw = arr
+            else:
+                raw = encode(arr, self.encoding)
+        rails = 2 if self.encoding.is_complex else 1
+        if raw.size % rails:
+            raise CaptureError(self.data_path, "odd number of I/Q values written")
+        self._file.write(raw.tobytes())
+        self.n_samples += raw.size // rails
+
+    def _metadata(self, incomplete: bool, extra_updates: Mapping | None) -> dict:
+        from sigmf import __specification__
+
+        g = {
+            keys.DATATYPE: self.datatype,
+            keys.SAMPLE_RATE: self.sample_rate_hz,
+            keys.VERSION: __specification__,
+            keys.RECORDER: "rxbench",
+            keys.EXTENSIONS: [{"name": keys.NAMESPACE, "version": keys.NAMESPACE_VERSION, "optional": True}],
+        }
+        if self.description:
+            g[keys.DESCRIPTION] = self.description
+        extra = {**self.extra, **(extra_updates or {})}
+        if incomplete:
+            extra["incomplete"] = True
+        for k, v in extra.items():
+            g[f"{keys.NAMESPACE}:{k}"] = v
+        cap = {keys.SAMPLE_START: 0, keys.DATETIME: self.datetime}
+        if self.center_hz is not None:
+            cap[keys.FREQUENCY] = float(self.center_hz)
+        return {"global": g, "captures": [cap], "annotations": []}
+
+    def _finish_files(self, meta: dict) -> None:
+        self._file.flush()
+        os.fsync(self._file.fileno())
+        self._file.close()
+        with open(self._tmp_meta, "x", encoding="utf-8") as f:
+            json.dump(meta, f, indent=2)
+            f.write("\n")
+            f.flush()
+            os.fsync(f.fileno())
+
+    def commit(self, extra_updates: Mapping | None = None) -> Path:
+        """Finish: metadata written, both files linked into place. Returns the metadata path."""
+        if self.done:
+            raise RuntimeError("recording already finished")
+        self.done = True
+        try:
+            self._finish_files(self._metadata(False, extra_updates))
+            _link_into_place(self._tmp_data, self.data_path, self.overwrite)
+            try:
+                _link_into_place(self._tmp_meta, self.meta_path, self.overwrite)
+            except CaptureError:
+                os.unlink(self.data_path)
+                raise
+        finally:
+            for p in (self._tmp_data, self._tmp_meta):
+                if p.exists():
+                    p.unlink()
+        return self.meta_path
+
+    def abandon(self, keep_partial: bool = True) -> Path | None:
+        """Stop writing. With samples written and ``keep_partial``, keep them as a ``.partial``
+        recording marked incomplete and return its metadata path; otherwise remove the temporaries."""
+        if self.done:
+            return None
+        self.done = True
+        kept = None
+        try:
+            if keep_partial and self.n_samples:
+                self._finish_files(self._metadata(True, None))
+                base = self.meta_path.name[: -len(META_SUFFIX)]
+                for i in range(1000):
+                    stem = f"{base}.partial" + (f"{i}" if i else "")
+                    meta, data = self.folder / (stem + META_SUFFIX), self.folder / (stem + DATA_SUFFIX)
+                    if not meta.exists() and not data.exists():
+                        break
+                os.rename(self._tmp_data, data)
+                os.rename(self._tmp_meta, meta)
+                kept = meta
+            else:
+                self._file.close()
+        finally:
+            for p in (self._tmp_data, self._tmp_meta):
+                if p.exists():
+                    p.unlink()
+        return kept
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is None:
+            if not self.done:
+                self.commit()
+        else:
+            self.abandon(keep_partial=True)
+        return False
+
+
+def write_sigmf(base_path, samples, *, sample_rate_hz: float, center_hz: float | None = None,
+                datatype: str = "cu8", extra: Mapping | None = None, datetime: str | None = None,
+                description: str | None = None, overwrite: bool = False) -> Path:
+    """Write a whole recording atomically; ``samples`` are raw codes or full-scale samples.
+    Returns the metadata path."""
+    with SigmfWriter(base_path, sample_rate_hz=sample_rate_hz, datatype=datatype, center_hz=center_hz,
+                     datetime=datetime, description=description, extra=extra, overwrite=overwrite) as w:
+        w.write(samples)
+    return w.meta_path

@@ -1,0 +1,457 @@
+"""External noise and what a loss costs: ITU-R P.372 man-made noise, antenna-noise excess, SNR cost.
+
+A loss in front of a receiver costs its full dB of SNR only when the receiver's own noise dominates.
+When the band's external noise (man-made, galactic, atmospheric) sits well above the receiver's, the
+loss attenuates signal and external noise alike and the SNR barely moves. This module gives the
+external noise from the ITU-R P.372 medians, turns a measured antenna-noise excess into an antenna
+temperature, computes the SNR cost of a loss, and fits the "knee" of a ladder of antenna-noise
+readings taken through increasing attenuation.
+
+All temperatures are in kelvin, losses are power ratios >= 1 inside and dB at the edges, noise
+densities are linear (any unit, e.g. full-scale power per Hz) and only compared with each other.
+
+References
+----------
+ITU-R Recommendation P.372, "Radio noise" (median man-made noise Fam = c - d*log10(f/MHz) for the
+city, residential, rural and quiet-rural categories, and galactic noise).
+Friis, H. T., "Noise figures of radio receivers", Proc. IRE 32, 1944.
+Bedrosian, E., "The output noise temperature of a lossy network", RAND, 1960.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize
+
+from dsp.units import T0_K, db_from_power, power_from_db
+
+#: ITU-R P.372 median man-made noise, Fam = c - d*log10(f/MHz) dB above kT0*b: (c, d) per category.
+MAN_MADE_NOISE = {
+    "city": (76.8, 27.7),
+    "residential": (72.5, 27.7),
+    "rural": (67.2, 27.7),
+    "quiet-rural": (53.6, 28.6),
+}
+#: ITU-R P.372 median galactic noise, same form: (c, d).
+GALACTIC_NOISE = (52.0, 23.0)
+#: Frequency range (Hz) over which the man-made and galactic lines above are given.
+VALID_RANGE_HZ = (0.3e6, 250e6)
+
+
+def _out(x):
+    x = np.asarray(x, dtype=float)
+    return x.item() if x.ndim == 0 else x
+
+
+def _check_frequency(frequency_hz):
+    f = np.asarray(frequency_hz, dtype=float)
+    lo, hi = VALID_RANGE_HZ
+    if np.any(~np.isfinite(f)) or np.any(f < lo) or np.any(f > hi):
+        raise ValueError(
+            f"frequency_hz={frequency_hz!r} is outside the range of the ITU-R P.372 noise lines "
+            f"({lo / 1e6:g}-{hi / 1e6:g} MHz)"
+        )
+    return f
+
+
+def _line_db(frequency_hz, c_db: float, d_db: float):
+    f = _check_frequency(frequency_hz)
+    return _out(c_db - d_db * np.log10(f / 1e6))
+
+
+def man_made_fa_db(frequency_hz, environment: str):
+    """Median man-made external noise figure Fam of an ITU-R P.372 environment category, dB.
+
+    Parameters
+    ----------
+    frequency_hz : float or array_like
+        Frequency, Hz, within 0.3-250 MHz.
+    environment : {"city", "residential", "rural", "quiet-rural"}
+        P.372 category.
+
+    Returns
+    -------
+    float or ndarray
+        Fam, dB above kT0*b (b the noise bandwidth).
+
+    Raises
+    ------
+    ValueError
+        Unknown category, or a frequency outside 0.3-250 MHz.
+
+    Notes
+    -----
+    Fam = c - d*log10(f / 1 MHz), with (c, d) = (76.8, 27.7) city, (72.5, 27.7) residential,
+    (67.2, 27.7) rural, (53.6, 28.6) quiet rural. These are medians; the decile spread is several dB.
+
+    References
+    ----------
+    ITU-R Recommendation P.372, "Radio noise".
+
+    Examples
+    --------
+    >>> round(man_made_fa_db(14e6, "residential"), 2)
+    40.75
+    """
+    try:
+        c_db, d_db = MAN_MADE_NOISE[environment]
+    except KeyError:
+        raise ValueError(
+            f"environment={environment!r} is not one of {', '.join(MAN_MADE_NOISE)}"
+        ) from None
+    return _line_db(frequency_hz, c_db, d_db)
+
+
+def galactic_fa_db(frequency_hz):
+    """Median galactic noise figure, dB above kT0*b: 52.0 - 23.0*log10(f/MHz) (ITU-R P.372).
+
+    It reaches the ground only above the ionosphere's critical frequency; below that the figure
+    does not apply. Frequencies outside 0.3-250 MHz raise ValueError.
+    """
+    return _line_db(frequency_hz, *GALACTIC_NOISE)
+
+
+def external_fa_db(frequency_hz, environment: str, *, galactic: bool = False):
+    """External noise figure Fa of a P.372 category, with galactic noise power-added if asked, dB.
+
+    Notes
+    -----
+    Fa = 10*log10(10**(Fam/10) + 10**(Fgal/10)) with ``galactic``, else Fa = Fam: noise powers from
+    independent sources add.
+
+    References
+    ----------
+    ITU-R Recommendation P.372, "Radio noise".
+    """
+    fa = power_from_db(man_made_fa_db(frequency_hz, environment))
+    if galactic:
+        fa = fa + power_from_db(galactic_fa_db(frequency_hz))
+    return db_from_power(fa)
+
+
+def temperature_from_fa_db(fa_db, t0_k: float = T0_K):
+    """External noise figure Fa (dB) -> antenna noise temperature Ta = T0*10**(Fa/10), K."""
+    return _out(t0_k * np.asarray(power_from_db(fa_db)))
+
+
+def fa_db_from_temperature(antenna_temperature_k, t0_k: float = T0_K):
+    """Antenna noise temperature Ta (K) -> external noise figure Fa = 10*log10(Ta/T0), dB."""
+    t = np.asarray(antenna_temperature_k, dtype=float)
+    if np.any(t < 0):
+        raise ValueError(f"antenna temperature must be >= 0 K, got {antenna_temperature_k!r}")
+    return db_from_power(t / t0_k)
+
+
+def _check_temperatures(antenna_temperature_k, receiver_temperature_k):
+    ta = np.asarray(antenna_temperature_k, dtype=float)
+    trx = np.asarray(receiver_temperature_k, dtype=float)
+    if np.any(~np.isfinite(ta)) or np.any(ta < 0):
+        raise ValueError(f"antenna temperature must be finite and >= 0 K, got {antenna_temperature_k!r}")
+    if np.any(~np.isfinite(trx)) or np.any(trx < 0):
+        raise ValueError(f"receiver temperature must be finite and >= 0 K, got {receiver_temperature_k!r}")
+    if np.any(ta + trx <= 0):
+        raise ValueError("antenna and receiver temperatures cannot both be 0 K")
+    return ta, trx
+
+
+def snr_degradation_db(loss_db, antenna_temperature_k, receiver_temperature_k, *,
+                       loss_temperature_k: float = T0_K):
+    """SNR cost of a passive loss placed between the antenna and the receiver, dB.
+
+    Parameters
+    ----------
+    loss_db : float or array_like
+        Loss, dB (>= 0).
+    antenna_temperature_k : float or array_like
+        Antenna noise temperature Ta, K.
+    receiver_temperature_k : float or array_like
+        Receiver noise temperature Trx = T0*(F - 1), K.
+    loss_temperature_k : float, optional
+        Physical temperature of the loss, K (default T0 = 290 K).
+
+    Returns
+    -------
+    float or ndarray
+        Drop in SNR, dB (>= 0, since L >= 1 and all temperatures are >= 0).
+
+    Notes
+    -----
+    The loss attenuates the signal by L and turns the antenna noise Ta into Ta/L + T*(1 - 1/L);
+    referred back to the antenna port the system temperature goes from Ta + Trx to
+    Ta + (L - 1)*T + L*Trx, so
+
+        dSNR = 10*log10[(Ta + (L - 1)*T + L*Trx) / (Ta + Trx)].
+
+    With Ta = T = T0 the cost equals the loss in dB for any receiver. Given only the measured
+    excess X = (Ta + Trx)/(T0 + Trx) of antenna noise over a matched load, the cost is
+    10*log10(1 + (L - 1)/X) whatever the receiver: call this function with Ta = X*T0 and Trx = 0.
+
+    References
+    ----------
+    Friis, Proc. IRE 32, 1944; Bedrosian, RAND, 1960 (noise of a lossy network);
+    ITU-R Recommendation P.372 (Ta from Fa).
+
+    Examples
+    --------
+    >>> round(snr_degradation_db(3.0, 290.0, 1539.8), 6)
+    3.0
+    """
+    ld = np.asarray(loss_db, dtype=float)
+    if np.any(~np.isfinite(ld)) or np.any(ld < 0):
+        raise ValueError(f"loss_db must be finite and >= 0 dB, got {loss_db!r}")
+    if not np.isfinite(loss_temperature_k) or loss_temperature_k < 0:
+        raise ValueError(f"loss_temperature_k must be finite and >= 0 K, got {loss_temperature_k!r}")
+    ta, trx = _check_temperatures(antenna_temperature_k, receiver_temperature_k)
+    big_l = power_from_db(ld)
+    system = ta + (big_l - 1.0) * loss_temperature_k + big_l * trx
+    return db_from_power(system / (ta + trx))
+
+
+def loss_for_snr_degradation_db(cost_db, antenna_temperature_k, receiver_temperature_k, *,
+                                loss_temperature_k: float = T0_K):
+    """The loss (dB) at which the SNR cost of :func:`snr_degradation_db` reaches ``cost_db``.
+
+    Notes
+    -----
+    Solving r*(Ta + Trx) = Ta + (L - 1)*T + L*Trx for L, with r = 10**(cost_db/10):
+
+        L = [r*(Ta + Trx) - Ta + T] / (T + Trx).
+
+    In terms of the excess X = (Ta + Trx)/(T0 + Trx) of antenna noise over a matched load (T = T0),
+    L = 1 + X*(r - 1): the affordable loss grows in proportion to the excess.
+    """
+    c = np.asarray(cost_db, dtype=float)
+    if np.any(~np.isfinite(c)) or np.any(c < 0):
+        raise ValueError(f"cost_db must be finite and >= 0 dB, got {cost_db!r}")
+    ta, trx = _check_temperatures(antenna_temperature_k, receiver_temperature_k)
+    t = float(loss_temperature_k)
+    if t + np.min(trx) <= 0:
+        raise ValueError("a loss at 0 K ahead of a noiseless receiver never costs SNR")
+    r = power_from_db(c)
+    big_l = (r * (ta + trx) - ta + t) / (t + trx)
+    return db_from_power(big_l)
+
+
+def antenna_temperature_from_excess(excess_db, receiver_temperature_k, *,
+                                    load_temperature_k: float = T0_K):
+    """Antenna noise temperature from the excess of antenna noise over a matched load, K.
+
+    Parameters
+    ----------
+    excess_db : float or array_like
+        10*log10(N_antenna / N_load): noise density read with the antenna, over that read with a
+        matched load on the same input (same gain, same bandwidth), dB.
+    receiver_temperature_k : float or array_like
+        Receiver noise temperature Trx, K.
+    load_temperature_k : float, optional
+        Physical temperature of the load, K (default T0).
+
+    Returns
+    -------
+    float or ndarray
+        Ta, K.
+
+    Raises
+    ------
+    ValueError
+        If the excess is so far below 0 dB that Ta would be negative (the receiver temperature
+        given is too high for the reading).
+
+    Notes
+    -----
+    N_antenna / N_load = X = (Ta + Trx)/(T_load + Trx), so Ta = X*(T_load + Trx) - Trx.
+    For X > 1 the result grows with Trx: a receiver noisier than assumed hides more external
+    noise, and with Trx -> 0 the bound Ta >= X*T_load holds whatever the receiver.
+    """
+    x = power_from_db(np.asarray(excess_db, dtype=float))
+    trx = np.asarray(receiver_temperature_k, dtype=float)
+    if np.any(~np.isfinite(trx)) or np.any(trx < 0):
+        raise ValueError(f"receiver temperature must be finite and >= 0 K, got {receiver_temperature_k!r}")
+    ta = x * (load_temperature_k + trx) - trx
+    if np.any(ta < 0):
+        raise ValueError(
+            f"an excess of {excess_db!r} dB with a receiver at {receiver_temperature_k!r} K implies a "
+            f"negative antenna temperature: the excess or the receiver noise figure is wrong"
+        )
+    return _out(ta)
+
+
+def excess_db_from_temperature(antenna_temperature_k, receiver_temperature_k, *,
+                               load_temperature_k: float = T0_K):
+    """Predicted excess of antenna noise over a matched load: 10*log10[(Ta + Trx)/(T_load + Trx)], dB."""
+    ta, trx = _check_temperatures(antenna_temperature_k, receiver_temperature_k)
+    return db_from_power((ta + trx) / (load_temperature_k + trx))
+
+
+@dataclass(frozen=True)
+class KneeFit:
+    """Fit of antenna-noise readings through a ladder of attenuation (see :func:`fit_knee`).
+
+    Densities are in the unit of the readings (e.g. full-scale power per Hz at the dongle).
+
+    Attributes
+    ----------
+    antenna_density : float
+        Fitted reading with no attenuation, P(L=1) = G*k*(Ta + Trx).
+    load_density : float
+        Fitted reading with infinite attenuation (a matched load at T0), N = G*k*(T0 + Trx).
+    excess_db : float
+        10*log10(antenna_density / load_density): antenna noise over the receiver's own.
+    u_excess_db : float
+        Standard uncertainty of ``excess_db`` from the fit, dB (nan with no residual freedom and
+        no reading uncertainties).
+    external_density, internal_density : float
+        G*k*Ta and G*k*Trx; only separable when the receiver temperature is known (else nan).
+    residual_rms_db : float
+        RMS of the fit residuals, dB.
+    residuals_db : ndarray
+        Reading minus model per point, dB, in the order given.
+    n_points : int
+        Number of readings used.
+    """
+
+    antenna_density: float
+    load_density: float
+    excess_db: float
+    u_excess_db: float
+    external_density: float
+    internal_density: float
+    residual_rms_db: float
+    residuals_db: np.ndarray
+    n_points: int
+
+
+def fit_knee(loss_db, density, *, u_density=None, load_density=None, u_load_density=None,
+             receiver_temperature_k=None) -> KneeFit:
+    """Fit antenna-noise readings taken through known attenuation to the lossy-network model.
+
+    Parameters
+    ----------
+    loss_db : array_like
+        Attenuation ahead of the receiver at each reading, dB (>= 0; at least two distinct values,
+        or one with ``load_density``).
+    density : array_like
+        Noise density read at each step (linear, e.g. FS^2/Hz), > 0.
+    u_density : array_like, optional
+        Standard uncertainty of each density (same unit); weights the fit.
+    load_density, u_load_density : float, optional
+        Reading with a matched load at T0 in place of the antenna (the limit L -> inf), and its
+        standard uncertainty.
+    receiver_temperature_k : float, optional
+        Receiver noise temperature; needed only to split the readings into external and internal
+        noise powers.
+
+    Returns
+    -------
+    KneeFit
+
+    Notes
+    -----
+    Through a loss L at T0 the antenna noise becomes Ta/L + T0*(1 - 1/L); the receiver adds Trx:
+
+        P(L) = G*k*[Ta/L + T0*(1 - 1/L) + Trx] = (P1 - N)/L + N,
+
+    with P1 = G*k*(Ta + Trx) and N = G*k*(T0 + Trx). The readings fix P1 and N (least squares on
+    the dB readings, parameters log P1 and log N); splitting N into G*k*T0 and G*k*Trx needs Trx:
+    G*k*T0 = N*T0/(T0 + Trx), external = G*k*Ta = P1 - N + G*k*T0, internal = N*Trx/(T0 + Trx).
+    The SNR cost of a loss follows from the excess X = P1/N alone, dSNR = 10*log10(1 + (L - 1)/X)
+    (see :func:`loss_for_snr_degradation_db` with Ta = X*T0, Trx = 0).
+
+    References
+    ----------
+    Bedrosian, RAND, 1960 (output noise temperature of a lossy network); Friis, Proc. IRE 32, 1944.
+    """
+    ld = np.atleast_1d(np.asarray(loss_db, dtype=float))
+    p = np.atleast_1d(np.asarray(density, dtype=float))
+    if ld.shape != p.shape or ld.ndim != 1:
+        raise ValueError(f"loss_db and density must be 1-D and the same length, got {ld.shape} and {p.shape}")
+    if np.any(~np.isfinite(ld)) or np.any(ld < 0):
+        raise ValueError(f"loss_db must be finite and >= 0 dB, got {loss_db!r}")
+    if np.any(~np.isfinite(p)) or np.any(p <= 0):
+        raise ValueError(f"density must be finite and > 0, got {density!r}")
+    inv_l = 1.0 / power_from_db(ld)
+    inv_l = np.atleast_1d(inv_l)
+    y_db = np.atleast_1d(db_from_power(p))
+    if u_density is None:
+        sigma_db = np.ones_like(p)
+        have_u = False
+    else:
+        u = np.atleast_1d(np.asarray(u_density, dtype=float))
+        if u.shape != p.shape or np.any(~np.isfinite(u)) or np.any(u <= 0):
+            raise ValueError(f"u_density must be finite, > 0 and match density, got {u_density!r}")
+        sigma_db = 10.0 / np.log(10.0) * u / p
+        have_u = True
+    if load_density is not None:
+        if not np.isfinite(load_density) or load_density <= 0:
+            raise ValueError(f"load_density must be finite and > 0, got {load_density!r}")
+        inv_l = np.append(inv_l, 0.0)
+        y_db = np.append(y_db, db_from_power(load_density))
+        if have_u:
+            if u_load_density is None or not np.isfinite(u_load_density) or u_load_density <= 0:
+                raise ValueError(f"u_load_density must be finite and > 0, got {u_load_density!r}")
+            sigma_db = np.append(sigma_db, 10.0 / np.log(10.0) * u_load_density / load_density)
+        else:
+            sigma_db = np.append(sigma_db, 1.0)
+    if np.unique(inv_l).size < 2:
+        raise ValueError("the fit needs readings at two different attenuations (or one and a load)")
+    n = inv_l.size
+
+    # Start: weighted linear least squares of P = a/L + N in relative terms.
+    lin = power_from_db(y_db)
+    a_mat = np.column_stack([inv_l, np.ones(n)]) / lin[:, None]
+    (a0, n0), *_ = np.linalg.lstsq(a_mat, np.ones(n), rcond=None)
+    scale = float(np.max(lin))
+    n0 = n0 if n0 > 0 else float(np.min(lin))
+    p10 = a0 + n0 if a0 + n0 > 0 else float(np.max(lin))
+    start = np.log([p10 / scale, n0 / scale])
+
+    def model_db(theta):
+        p1, nn = np.exp(theta) * scale
+        return db_from_power(np.maximum((p1 - nn) * inv_l + nn, 1e-300))
+
+    def resid(theta):
+        return (y_db - model_db(theta)) / sigma_db
+
+    sol = optimize.least_squares(resid, start)
+    p1, nn = np.exp(sol.x) * scale
+    residuals_db = y_db - model_db(sol.x)
+    dof = n - 2
+    # Covariance of (log P1, log N); excess_db = (10/ln 10)*(log P1 - log N).
+    jac = sol.jac
+    try:
+        cov = np.linalg.inv(jac.T @ jac)
+    except np.linalg.LinAlgError:
+        cov = np.full((2, 2), np.nan)
+    chi2 = float(np.sum(resid(sol.x) ** 2))
+    if have_u:
+        cov = cov * (max(1.0, chi2 / dof) if dof > 0 else 1.0)
+    elif dof > 0:
+        cov = cov * chi2 / dof
+    else:
+        cov = np.full((2, 2), np.nan)
+    g = np.array([1.0, -1.0])
+    var = float(g @ cov @ g)
+    u_excess_db = 10.0 / np.log(10.0) * np.sqrt(var) if var >= 0 else float("nan")
+
+    if receiver_temperature_k is None:
+        external = internal = float("nan")
+    else:
+        trx = float(receiver_temperature_k)
+        if not np.isfinite(trx) or trx < 0:
+            raise ValueError(f"receiver_temperature_k must be finite and >= 0 K, got {receiver_temperature_k!r}")
+        gkt0 = nn * T0_K / (T0_K + trx)
+        external = p1 - nn + gkt0
+        internal = nn * trx / (T0_K + trx)
+    return KneeFit(
+        antenna_density=float(p1),
+        load_density=float(nn),
+        excess_db=float(db_from_power(p1 / nn)),
+        u_excess_db=float(u_excess_db),
+        external_density=float(external),
+        internal_density=float(internal),
+        residual_rms_db=float(np.sqrt(np.mean(residuals_db**2))),
+        residuals_db=residuals_db,
+        n_points=int(n),
+    )

@@ -1,0 +1,69 @@
+"""Capture health: clip fraction, DC offset, mean power, and non-finite samples, in one streaming pass."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Health:
+    """Health of a capture. ``clip_fraction`` counts samples with either rail at full scale."""
+
+    n_samples: int
+    clip_fraction: float
+    dc_offset: complex
+    power: float
+    n_nonfinite: int
+
+    @property
+    def dc_offset_dbfs(self) -> float:
+        m = abs(self.dc_offset) ** 2
+        return float(10 * np.log10(m)) if m > 0 else float("-inf")
+
+
+class HealthAccumulator:
+    """Streaming health statistics.
+
+    Parameters
+    ----------
+    clip_level : float
+        Smallest magnitude, per rail, at which a sample counts as clipped (e.g. 127/128 for cs8).
+    """
+
+    def __init__(self, clip_level: float = 1.0):
+        if not clip_level > 0:
+            raise ValueError(f"{clip_level=} must be positive")
+        self.clip_level = float(clip_level) * (1 - 1e-6)
+        self._n = 0
+        self._clipped = 0
+        self._sum = 0j
+        self._power = 0.0
+        self._nonfinite = 0
+
+    def update(self, block) -> None:
+        x = np.asarray(block)
+        finite = np.isfinite(x)
+        if not finite.all():
+            self._nonfinite += int(x.size - finite.sum())
+            x = x[finite]
+        if np.iscomplexobj(x):
+            re, im = x.real, x.imag
+            clipped = (np.abs(re) >= self.clip_level) | (np.abs(im) >= self.clip_level)
+        else:
+            clipped = np.abs(x) >= self.clip_level
+        self._clipped += int(np.count_nonzero(clipped))
+        self._sum += complex(np.sum(x, dtype=np.complex128))
+        self._power += float(np.vdot(x, x).real)
+        self._n += x.size
+
+    def result(self) -> Health:
+        n = max(self._n, 1)
+        return Health(
+            n_samples=self._n,
+            clip_fraction=self._clipped / n,
+            dc_offset=self._sum / n,
+            power=self._power / n,
+            n_nonfinite=self._nonfinite,
+        )

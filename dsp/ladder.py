@@ -1,0 +1,544 @@
+"""Insertion loss from tone readings: direct, by substitution on an attenuator ladder, ladder check.
+
+A *ladder* is a set of thru readings (dBFS) taken at known attenuator settings (dB). Everything here
+works on dB readings and their standard uncertainties (dB) as arrays; reading captures is the
+shell's job.
+
+- :func:`check_ladder` compares every step with its nominal value against a robust reference, and
+  separates the attenuator (a step off on its own) from the dongle (compression at the top, noise
+  at the bottom), giving the dongle's usable linear range.
+- :func:`substitution_loss` finds the ladder setting that reads the same as the DUT (the dongle is
+  only a comparator, so its nonlinearity drops out).
+- :func:`direct_loss` takes thru minus DUT, with the thru interpolated in time between a thru
+  before and a thru after the DUT so that linear drift drops out.
+
+Each loss carries a :class:`dsp.uncertainty.Budget`.
+
+References
+----------
+Kaylie, H., "Calibration of attenuators by the substitution method", IEEE Trans. Instrum. Meas.
+15(4), 1966 [from memory]. Warner, F. L., *Microwave Attenuation Measurement*, Peregrinus, 1977
+[from memory]. JCGM 100:2008 (GUM). Fritsch, F. N. and Carlson, R. E., "Monotone piecewise cubic
+interpolation", SIAM J. Numer. Anal. 17(2), 1980 (the interpolant of scipy's PchipInterpolator).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+
+from dsp.mismatch import gamma_from_swr, two_port_mismatch_terms_db
+from dsp.uncertainty import DEFAULT_K, Budget, Component, type_a, welch_satterthwaite
+
+#: Default tolerance of a ladder step before it is flagged, dB (common practice for a bench step
+#: attenuator of modest grade).
+DEFAULT_TOLERANCE_DB = 0.3
+#: Default shortfall at the top of a ladder that counts as dongle compression, dB.
+DEFAULT_LINEARITY_DB = 0.1
+
+COMPRESSED = "compressed"
+LINEAR = "linear"
+NOISE_LIMITED = "noise-limited"
+
+
+def _as_1d(name, value):
+    a = np.atleast_1d(np.asarray(value, dtype=float))
+    if a.ndim != 1:
+        raise ValueError(f"{name} must be one-dimensional, got shape {a.shape}")
+    return a
+
+
+def _ladder_arrays(nominal_db, reading_dbfs, u_reading_db, *, allow_missing):
+    nominal = _as_1d("nominal_db", nominal_db)
+    reading = _as_1d("reading_dbfs", reading_dbfs)
+    u = _as_1d("u_reading_db", u_reading_db)
+    if not nominal.shape == reading.shape == u.shape:
+        raise ValueError(
+            f"nominal_db, reading_dbfs and u_reading_db differ in length: "
+            f"{nominal.size}, {reading.size}, {u.size}"
+        )
+    if np.any(~np.isfinite(nominal)):
+        raise ValueError(f"nominal step values must be finite, got {nominal.tolist()}")
+    if np.unique(nominal).size != nominal.size:
+        raise ValueError(f"nominal step values must be distinct, got {nominal.tolist()}")
+    if np.any(u < 0):
+        raise ValueError(f"standard uncertainties must be >= 0, got {u.tolist()}")
+    missing = ~np.isfinite(reading) | ~np.isfinite(u)
+    if not allow_missing and np.any(missing):
+        raise ValueError(f"step(s) {nominal[missing].tolist()} dB have no finite reading")
+    order = np.argsort(nominal)
+    return nominal[order], reading[order], u[order], order
+
+
+# --------------------------------------------------------------------------------------------
+# Ladder check
+
+
+@dataclass(frozen=True)
+class LadderCheck:
+    """The result of :func:`check_ladder`; arrays are sorted by nominal attenuation, ascending.
+
+    Attributes
+    ----------
+    nominal_db, reading_dbfs, u_reading_db : ndarray
+        The steps as given (sorted), dB / dBFS / dB.
+    order : ndarray of int
+        Indices that sorted the input (``nominal_db == input_nominal[order]``).
+    measured_db : ndarray
+        Attenuation of each step as measured against the reference, ``offset - reading``, dB.
+    error_db, u_error_db : ndarray
+        ``measured - nominal`` and its standard uncertainty, dB (positive: more loss than nominal,
+        or a reading that falls short, as compression does).
+    region : tuple of str
+        Per step: ``"compressed"`` (top of the ladder, dongle short of the line),
+        ``"linear"`` or ``"noise-limited"`` (k*u of the reading exceeds the tolerance).
+    flagged : ndarray of bool
+        A linear-region step whose |error| exceeds the tolerance: the attenuator, not the dongle.
+    offset_dbfs, u_offset_db : float
+        The reference: the reading the line predicts at 0 dB attenuation.
+    reference : str
+        ``"median"`` or ``"step <x> dB"``.
+    compression_db : float
+        Shortfall of the topmost step when compressed, else 0, dB.
+    usable_top_db, usable_bottom_db : float
+        Smallest and largest nominal attenuation of the linear region (nan if none).
+    usable_range_db : float
+        ``usable_bottom_db - usable_top_db``: the span of input level over which the dongle read
+        linearly within the linearity limit, dB.
+    top_limited_by, bottom_limited_by : str
+        ``"compression"`` / ``"noise"`` when the dongle ends the linear region, ``"ladder"`` when the
+        ladder ends first (then the usable range is a lower bound).
+    tolerance_db, linearity_db, k : float
+        The limits used.
+    """
+
+    nominal_db: np.ndarray
+    reading_dbfs: np.ndarray
+    u_reading_db: np.ndarray
+    order: np.ndarray
+    measured_db: np.ndarray
+    error_db: np.ndarray
+    u_error_db: np.ndarray
+    region: tuple
+    flagged: np.ndarray
+    offset_dbfs: float
+    u_offset_db: float
+    reference: str
+    compression_db: float
+    usable_top_db: float
+    usable_bottom_db: float
+    usable_range_db: float
+    top_limited_by: str
+    bottom_limited_by: str
+    tolerance_db: float
+    linearity_db: float
+    k: float
+
+
+def _compressed_from_top(error, u_error, usable, linearity_db, k):
+    """Steps at the top whose shortfall exceeds the limit and does not grow going down."""
+    compressed = np.zeros(error.size, dtype=bool)
+    for i in range(error.size):
+        if not usable[i]:
+            break
+        if error[i] <= max(linearity_db, k * u_error[i]):
+            break
+        if i > 0 and error[i] > error[i - 1] + k * math.hypot(u_error[i], u_error[i - 1]):
+            break  # shortfall grows going down: not compression
+        compressed[i] = True
+    return compressed
+
+
+def check_ladder(nominal_db, reading_dbfs, u_reading_db, *, tolerance_db=DEFAULT_TOLERANCE_DB,
+                 linearity_db=DEFAULT_LINEARITY_DB, reference_db=None, k=DEFAULT_K):
+    """Check an attenuator ladder step by step and find the dongle's linear range.
+
+    Parameters
+    ----------
+    nominal_db : array_like
+        Nominal attenuator settings, dB (distinct; any order).
+    reading_dbfs : array_like
+        Tone reading at each setting, dBFS; nan or -inf where no tone could be read.
+    u_reading_db : array_like
+        Standard uncertainty of each reading, dB.
+    tolerance_db : float
+        A step whose |error| exceeds this is flagged; a step whose reading's expanded uncertainty
+        (k*u) exceeds it is noise-limited (its accuracy cannot be stated to the tolerance).
+    linearity_db : float
+        A shortfall at the top of the ladder larger than this (and than k*u) is compression.
+    reference_db : float, optional
+        Reference the errors to this step instead of the robust median.
+    k : float
+        Coverage factor for the noise and compression tests.
+
+    Returns
+    -------
+    LadderCheck
+
+    Notes
+    -----
+    A linear dongle reads r_i = r_0 - A_i. Each step gives an estimate r_i + A_i of r_0; the
+    reference r_0 is their median over the steps that are neither noise-limited nor compressed
+    (so one bad step cannot move it), or the chosen step's. Then measured_i = r_0 - r_i and
+    error_i = measured_i - A_i = r_0 - (r_i + A_i). Compression is recognised from the top: steps
+    whose shortfall exceeds max(linearity, k*u) and does not grow going down the ladder. The
+    standard uncertainty of a median of m readings of equal u is taken as sqrt(pi/2)*u/sqrt(m)
+    (the asymptotic efficiency of the median of normal data; from memory, e.g. Kenney & Keeping,
+    *Mathematics of Statistics*). A single off step at the very top cannot be told from
+    compression; check it with a second ladder at a lower generator level.
+
+    References
+    ----------
+    Kaylie 1966; Warner 1977 (substitution and attenuator calibration) [from memory].
+    """
+    if not tolerance_db > 0 or not linearity_db >= 0 or not k > 0:
+        raise ValueError(f"need tolerance_db > 0, linearity_db >= 0, k > 0; got "
+                         f"{tolerance_db=}, {linearity_db=}, {k=}")
+    nominal, reading, u, order = _ladder_arrays(nominal_db, reading_dbfs, u_reading_db,
+                                                allow_missing=True)
+    if nominal.size < 3:
+        raise ValueError(f"a ladder check needs at least 3 steps, got {nominal.size}")
+    finite = np.isfinite(reading) & np.isfinite(u)
+    noise = ~finite | (k * np.where(finite, u, np.inf) > tolerance_db)
+    usable = ~noise
+    if not np.any(usable):
+        raise ValueError("every step is noise-limited: no step can be read to "
+                         f"{tolerance_db} dB (k*u of the readings: {(k * u).tolist()})")
+    estimates = np.where(finite, reading + nominal, np.nan)
+    if reference_db is not None:
+        hit = np.flatnonzero(np.isclose(nominal, reference_db))
+        if hit.size != 1:
+            raise ValueError(f"reference step {reference_db} dB is not one of the steps "
+                             f"{nominal.tolist()}")
+        if not usable[hit[0]]:
+            raise ValueError(f"reference step {reference_db} dB is noise-limited")
+
+    compressed = np.zeros(nominal.size, dtype=bool)
+    for _ in range(4):
+        linear = usable & ~compressed
+        if reference_db is not None:
+            offset, u_offset, ref_name = estimates[hit[0]], u[hit[0]], f"step {nominal[hit[0]]:g} dB"
+        else:
+            offset = float(np.median(estimates[linear]))
+            m = int(linear.sum())
+            u_offset = math.sqrt(math.pi / 2) * math.sqrt(np.mean(u[linear] ** 2) / m)
+            ref_name = "median"
+        error = offset - estimates
+        u_error = np.sqrt(np.where(finite, u, 0.0) ** 2 + u_offset**2)
+        new = _compressed_from_top(error, u_error, usable, linearity_db, k)
+        if reference_db is not None:
+            new[hit[0]:] = False
+            new &= np.cumprod(new).astype(bool)
+        if np.array_equal(new, compressed):
+            break
+        compressed = new
+    linear = usable & ~compressed
+    if not np.any(linear):
+        raise ValueError("no step of the ladder is in the dongle's linear range")
+
+    region = tuple(NOISE_LIMITED if noise[i] else COMPRESSED if compressed[i] else LINEAR
+                   for i in range(nominal.size))
+    flagged = linear & (np.abs(error) > tolerance_db)
+    lin_idx = np.flatnonzero(linear)
+    top, bottom = lin_idx[0], lin_idx[-1]
+    return LadderCheck(
+        nominal_db=nominal, reading_dbfs=reading, u_reading_db=u, order=order,
+        measured_db=offset - reading, error_db=error, u_error_db=u_error, region=region,
+        flagged=flagged, offset_dbfs=float(offset), u_offset_db=float(u_offset),
+        reference=ref_name, compression_db=float(error[0]) if compressed[0] else 0.0,
+        usable_top_db=float(nominal[top]), usable_bottom_db=float(nominal[bottom]),
+        usable_range_db=float(nominal[bottom] - nominal[top]),
+        top_limited_by="compression" if top > 0 and compressed[top - 1] else "ladder",
+        bottom_limited_by="noise" if bottom < nominal.size - 1 else "ladder",
+        tolerance_db=float(tolerance_db), linearity_db=float(linearity_db), k=float(k),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Losses
+
+
+@dataclass(frozen=True)
+class Loss:
+    """An insertion loss with its uncertainty budget.
+
+    Attributes
+    ----------
+    loss_db : float
+        Insertion loss, dB (positive: the device loses).
+    budget : Budget
+        Components behind the uncertainty, dB.
+    method : str
+        ``"direct"`` or ``"substitution"``.
+    reference_dbfs : float
+        Direct: the thru reading at the DUT's time. Substitution: nan.
+    dut_dbfs : float
+        The DUT reading, dBFS.
+    drift_db : float or None
+        Direct with a thru after: thru after minus thru before, dB.
+    attenuation_db : float or None
+        Substitution: the ladder setting that reads like the DUT, dB.
+    bracket_db : tuple or None
+        Substitution: the two neighbouring steps (dB) it lies between.
+    """
+
+    loss_db: float
+    budget: Budget
+    method: str
+    reference_dbfs: float
+    dut_dbfs: float
+    drift_db: float | None = None
+    attenuation_db: float | None = None
+    bracket_db: tuple | None = None
+
+    @property
+    def u_db(self) -> float:
+        """Combined standard uncertainty, dB."""
+        return self.budget.combined_u
+
+    @property
+    def expanded_uncertainty_db(self) -> float:
+        """Expanded uncertainty U = k*u_c, dB."""
+        return self.budget.expanded_u
+
+
+def mean_reading(reading_dbfs, u_db, dof=None):
+    """Pool repeated readings of one role (several thru captures, say).
+
+    Parameters
+    ----------
+    reading_dbfs : array_like
+        Readings, dBFS.
+    u_db : array_like
+        Standard uncertainty of each reading from its own estimator, dB.
+    dof : array_like, optional
+        Degrees of freedom of each ``u_db`` (default inf).
+
+    Returns
+    -------
+    mean_dbfs, u_db, dof : float
+        Mean reading and its Type A standard uncertainty with degrees of freedom.
+
+    Notes
+    -----
+    From the estimators: u = sqrt(sum u_i^2)/n with Welch-Satterthwaite dof. From the scatter of
+    n >= 2 readings: u = s/sqrt(n), nu = n - 1 (GUM 4.2). The larger of the two is kept: scatter
+    beyond what the estimator explains (drift, reconnection) must not be hidden, and two or three
+    repeats alone say little about the estimator's spread.
+    """
+    r = _as_1d("reading_dbfs", reading_dbfs)
+    u = _as_1d("u_db", u_db)
+    nu = np.full(r.size, np.inf) if dof is None else _as_1d("dof", dof)
+    if not r.size or not r.shape == u.shape == nu.shape:
+        raise ValueError(f"readings, u and dof must be non-empty and of equal length: "
+                         f"{r.size}, {u.size}, {nu.size}")
+    if np.any(~np.isfinite(r)) or np.any(~np.isfinite(u)) or np.any(u < 0):
+        raise ValueError(f"readings and u must be finite (u >= 0), got {r.tolist()}, {u.tolist()}")
+    n = r.size
+    u_est = math.sqrt(float(np.sum(u**2))) / n
+    dof_est = welch_satterthwaite(u / n, nu) if u_est > 0 else math.inf
+    if n >= 2:
+        mean, u_scatter, dof_scatter = type_a(r)
+        if u_scatter > u_est:
+            return float(mean), float(u_scatter), float(dof_scatter)
+    return float(np.mean(r)), u_est, dof_est
+
+
+def mismatch_components(source_swr=None, load_swr=None, dut_swr=None, loss_db=0.0):
+    """Mismatch terms of an insertion-loss measurement as U-shaped budget components.
+
+    Parameters
+    ----------
+    source_swr, load_swr : float, optional
+        SWR of the source (generator and attenuator) and of the load (the dongle's input).
+    dut_swr : float, optional
+        SWR of the device at both ports (|S11| = |S22| = |Gamma| from it).
+    loss_db : float
+        The device's loss; |S21*S12| = 10**(-loss/10) for a reciprocal device.
+
+    Returns
+    -------
+    list of Component
+        One per first-order term whose factors are all known; empty without source and load SWR.
+
+    Notes
+    -----
+    a = 8.686*(|Gs*S11| + |Gl*S22| + |Gs*Gl| + |Gs*Gl*S21*S12|), each term U-shaped, u = a/sqrt(2)
+    (Harris & Warner, IEE Proc. H 128, 1981), via :func:`dsp.mismatch.two_port_mismatch_terms_db`.
+    """
+    if source_swr is None or load_swr is None:
+        return []
+    gs, gl = gamma_from_swr(source_swr), gamma_from_swr(load_swr)
+    gd = None if dut_swr is None else gamma_from_swr(dut_swr)
+    s21s12 = 10.0 ** (-max(float(loss_db), 0.0) / 10.0)
+    terms = two_port_mismatch_terms_db(gs, gl, gd or 0.0, gd or 0.0, s21s12)
+    names = ("mismatch source-DUT", "mismatch DUT-load", "mismatch source-load",
+             "mismatch source-load through DUT")
+    return [Component.u_shaped(name, a) for j, (name, a) in enumerate(zip(names, terms))
+            if gd is not None or j >= 2]
+
+
+def direct_loss(thru_dbfs, u_thru_db, dut_dbfs, u_dut_db, *, thru_after_dbfs=None,
+                u_thru_after_db=None, times_s=None, dof=(math.inf, math.inf, math.inf),
+                linearity_db=0.0, extra_components=(), k=DEFAULT_K):
+    """Direct insertion loss: thru reading minus DUT reading at the same generator level.
+
+    Parameters
+    ----------
+    thru_dbfs, u_thru_db : float
+        Thru reading before the DUT and its standard uncertainty (dBFS, dB).
+    dut_dbfs, u_dut_db : float
+        DUT reading and its standard uncertainty.
+    thru_after_dbfs, u_thru_after_db : float, optional
+        A thru reading taken again after the DUT.
+    times_s : tuple of 3 float, optional
+        Times of thru before, DUT, thru after (s, any origin); needed with ``thru_after_dbfs``.
+        The DUT must lie between the two thrus.
+    dof : tuple of 3 float
+        Degrees of freedom of the three uncertainties.
+    linearity_db : float
+        Half-width of the dongle's linearity error between the two levels (rectangular); 0 when
+        not assessed (the budget then says so).
+    extra_components : sequence of Component
+        Further terms, e.g. :func:`mismatch_components`.
+    k : float
+        Coverage factor.
+
+    Returns
+    -------
+    Loss
+
+    Notes
+    -----
+    L = r_thru(t_dut) - r_dut, with r_thru(t) = (1 - w)*r_before + w*r_after,
+    w = (t_dut - t_before)/(t_after - t_before); sensitivities (1 - w), w and -1 (GUM 5.1.3).
+    Linear drift of generator or dongle gain drops out; the method assumes the dongle is linear
+    between the two levels, which the substitution method does not.
+    """
+    values = [thru_dbfs, u_thru_db, dut_dbfs, u_dut_db]
+    if not all(np.isfinite(values)) or u_thru_db < 0 or u_dut_db < 0:
+        raise ValueError(f"readings and uncertainties must be finite (u >= 0), got {values}")
+    if linearity_db < 0:
+        raise ValueError(f"linearity_db must be >= 0, got {linearity_db!r}")
+    components = []
+    drift = None
+    if thru_after_dbfs is None:
+        reference = float(thru_dbfs)
+        components.append(Component.normal("thru reading", u_thru_db, dof=dof[0]))
+    else:
+        if times_s is None or len(times_s) != 3:
+            raise ValueError(f"times_s must give (thru before, DUT, thru after), got {times_s!r}")
+        t_before, t_dut, t_after = map(float, times_s)
+        if not t_before < t_after:
+            raise ValueError(f"the thru after must come later than the thru before, got times {times_s}")
+        w = (t_dut - t_before) / (t_after - t_before)
+        if not 0.0 <= w <= 1.0:
+            raise ValueError(f"the DUT capture (t = {t_dut}) does not lie between the thru captures "
+                             f"(t = {t_before} and {t_after}); drift would be extrapolated")
+        if not np.isfinite([thru_after_dbfs, u_thru_after_db]).all() or u_thru_after_db < 0:
+            raise ValueError(f"thru-after reading must be finite, got {thru_after_dbfs!r} "
+                             f"+/- {u_thru_after_db!r}")
+        reference = (1.0 - w) * thru_dbfs + w * thru_after_dbfs
+        drift = float(thru_after_dbfs - thru_dbfs)
+        components.append(Component.normal("thru reading (before)", u_thru_db,
+                                           sensitivity=1.0 - w, dof=dof[0]))
+        components.append(Component.normal("thru reading (after)", u_thru_after_db,
+                                           sensitivity=w, dof=dof[2]))
+    components.append(Component.normal("DUT reading", u_dut_db, sensitivity=-1.0, dof=dof[1]))
+    components.append(Component.rectangular(
+        "dongle linearity", linearity_db,
+        note="" if linearity_db > 0 else "not assessed; check the range with a ladder"))
+    if thru_after_dbfs is None:
+        components.append(Component.normal("drift", 0.0, kind="B",
+                                           note="not assessed; capture a thru after the DUT"))
+    components.extend(extra_components)
+    return Loss(loss_db=float(reference - dut_dbfs), budget=Budget(tuple(components), k),
+                method="direct", reference_dbfs=float(reference), dut_dbfs=float(dut_dbfs),
+                drift_db=drift)
+
+
+def substitution_loss(nominal_db, reading_dbfs, u_reading_db, dut_dbfs, u_dut_db, *,
+                      dut_step_db=0.0, atten_tolerance_db=0.0, dof_dut=math.inf, dof_steps=None,
+                      extra_components=(), k=DEFAULT_K):
+    """Insertion loss by substitution: the ladder setting that reads like the DUT.
+
+    Parameters
+    ----------
+    nominal_db, reading_dbfs, u_reading_db : array_like
+        The ladder: nominal settings (dB), thru readings (dBFS), their standard uncertainties (dB).
+        Readings must fall strictly as the attenuation rises.
+    dut_dbfs, u_dut_db : float
+        The DUT reading (dBFS) and its standard uncertainty (dB), taken with the attenuator at
+        ``dut_step_db``.
+    dut_step_db : float
+        Attenuator setting during the DUT capture, dB.
+    atten_tolerance_db : float
+        Half-width of the attenuator's setting tolerance (rectangular), dB.
+    dof_dut : float, dof_steps : array_like, optional
+        Degrees of freedom of the uncertainties.
+    extra_components : sequence of Component
+        Further terms, e.g. :func:`mismatch_components`.
+    k : float
+        Coverage factor.
+
+    Returns
+    -------
+    Loss
+
+    Raises
+    ------
+    ValueError
+        When the DUT reading lies outside the ladder (never extrapolated), or when the readings do
+        not fall monotonically.
+
+    Notes
+    -----
+    Between the neighbouring steps (A_l, r_l) and (A_u, r_u) that bracket the DUT reading r_d,
+    A = A_l + s*(r_l - r_d) with s = (A_u - A_l)/(r_l - r_u); L = A - A_dut. Sensitivities:
+    dA/dr_d = -s, dA/dr_l = s*(1 - t), dA/dr_u = s*t with t = (r_l - r_d)/(r_l - r_u). The value
+    stated is the monotone cubic (PCHIP, Fritsch & Carlson 1980) through all steps, which follows a
+    curved (compressed) response better than the chord; their difference enters the budget as a
+    rectangular interpolation term. The dongle serves only as a comparator (Kaylie 1966).
+    """
+    nominal, reading, u, order = _ladder_arrays(nominal_db, reading_dbfs, u_reading_db,
+                                                allow_missing=False)
+    if nominal.size < 2:
+        raise ValueError(f"substitution needs at least 2 ladder steps, got {nominal.size}")
+    nu = np.full(nominal.size, np.inf) if dof_steps is None else _as_1d("dof_steps", dof_steps)[order]
+    if not (np.isfinite(dut_dbfs) and np.isfinite(u_dut_db) and u_dut_db >= 0):
+        raise ValueError(f"the DUT reading must be finite, got {dut_dbfs!r} +/- {u_dut_db!r}")
+    rising = np.flatnonzero(np.diff(reading) >= 0)
+    if rising.size:
+        i = rising[0]
+        raise ValueError(f"ladder readings do not fall with attenuation: step {nominal[i]:g} dB reads "
+                         f"{reading[i]:.2f} dBFS, step {nominal[i + 1]:g} dB reads "
+                         f"{reading[i + 1]:.2f} dBFS")
+    if not reading[-1] <= dut_dbfs <= reading[0]:
+        raise ValueError(f"the DUT reading {dut_dbfs:.2f} dBFS lies outside the ladder "
+                         f"({reading[-1]:.2f} to {reading[0]:.2f} dBFS, steps {nominal[0]:g} to "
+                         f"{nominal[-1]:g} dB); it would have to be extrapolated")
+    i = min(int(np.searchsorted(-reading, -dut_dbfs, side="right")) - 1, nominal.size - 2)
+    i = max(i, 0)
+    a_l, a_u, r_l, r_u = nominal[i], nominal[i + 1], reading[i], reading[i + 1]
+    s = (a_u - a_l) / (r_l - r_u)
+    t = (r_l - dut_dbfs) / (r_l - r_u)
+    chord = a_l + s * (r_l - dut_dbfs)
+    attenuation = float(PchipInterpolator(-reading, nominal)(-dut_dbfs))
+
+    components = [
+        Component.normal("DUT reading", u_dut_db, sensitivity=-s, dof=dof_dut),
+        Component.normal(f"ladder reading {a_l:g} dB", u[i], sensitivity=s * (1 - t), dof=nu[i]),
+        Component.normal(f"ladder reading {a_u:g} dB", u[i + 1], sensitivity=s * t, dof=nu[i + 1]),
+        Component.rectangular("interpolation between steps", abs(attenuation - chord)),
+        Component.rectangular("attenuator setting (ladder)", atten_tolerance_db),
+    ]
+    if dut_step_db != 0:
+        components.append(Component.rectangular("attenuator setting (DUT)", atten_tolerance_db,
+                                                sensitivity=-1.0))
+    components.extend(extra_components)
+    return Loss(loss_db=attenuation - float(dut_step_db), budget=Budget(tuple(components), k),
+                method="substitution", reference_dbfs=math.nan, dut_dbfs=float(dut_dbfs),
+                attenuation_db=attenuation, bracket_db=(float(a_l), float(a_u)))

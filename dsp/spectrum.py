@@ -1,0 +1,307 @@
+"""The one spectral path: a streaming Welch PSD accumulator and a band-integration helper.
+
+Every reading rxbench makes (tone power, noise density, SNR, the noise-source methods) stands on the
+averaged power spectral density this module produces.
+
+References
+----------
+Welch, P. D., "The use of fast Fourier transform for the estimation of power spectra", IEEE Trans.
+Audio Electroacoust. AU-15(2), 1967.
+Harris, F. J., "On the use of windows for harmonic analysis with the discrete Fourier transform",
+Proc. IEEE 66(1), 1978.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.fft
+import scipy.signal
+
+#: Number of time-ordered sub-averages kept for Type A scatter (between N_BATCHES and 2*N_BATCHES).
+N_BATCHES = 16
+#: Segments transformed per FFT call (bounds memory: 64 x nperseg complex64).
+_SEGMENTS_PER_CALL = 64
+
+
+@dataclass(frozen=True)
+class WindowProperties:
+    """Figures of merit of a DFT window (Harris 1978).
+
+    ``coherent_gain`` = sum(w)/N; ``enbw_bins`` = N*sum(w**2)/sum(w)**2; ``scalloping_loss_db`` is
+    the loss of a tone halfway between two bins, relative to one on a bin.
+    """
+
+    name: str
+    n: int
+    coherent_gain: float
+    enbw_bins: float
+    scalloping_loss_db: float
+
+
+def get_window(window: str | tuple, nperseg: int) -> np.ndarray:
+    """The periodic (DFT-even) window of ``nperseg`` points, float64."""
+    if nperseg < 16:
+        raise ValueError(f"{nperseg=} must be at least 16")
+    return scipy.signal.get_window(window, nperseg, fftbins=True).astype(np.float64)
+
+
+def window_properties(window: str | tuple, nperseg: int) -> WindowProperties:
+    """Coherent gain, ENBW (bins) and scalloping loss (dB) of a periodic window.
+
+    Examples
+    --------
+    >>> round(window_properties("hann", 4096).enbw_bins, 3)
+    1.5
+    """
+    w = get_window(window, nperseg)
+    n = np.arange(nperseg)
+    half_bin = abs(np.sum(w * np.exp(-1j * np.pi * n / nperseg)))
+    return WindowProperties(
+        name=str(window),
+        n=nperseg,
+        coherent_gain=float(w.sum() / nperseg),
+        enbw_bins=float(nperseg * np.sum(w**2) / w.sum() ** 2),
+        scalloping_loss_db=float(-20.0 * np.log10(half_bin / w.sum())),
+    )
+
+
+def kernel(window: np.ndarray, offsets_bins: np.ndarray) -> np.ndarray:
+    """|W(delta)|^2 / (N * sum(w**2)) at fractional bin offsets: the PSD shape of a pure tone.
+
+    Normalised so that summing it over all N bins gives 1 (Parseval); so ``power * kernel / bin_width``
+    is the expected density of a tone of ``power`` at that offset.
+    """
+    w = np.asarray(window, dtype=float)
+    n = np.arange(w.size)
+    d = np.atleast_1d(np.asarray(offsets_bins, dtype=float))
+    ph = np.exp(-2j * np.pi * np.outer(d, n) / w.size)
+    return np.abs(ph @ w) ** 2 / (w.size * np.sum(w**2))
+
+
+def welch_dof(n_segments: int, window: np.ndarray, step: int) -> float:
+    """Equivalent degrees of freedom of a Welch average of complex (two-sided) periodograms.
+
+    Notes
+    -----
+    nu = 2K / [1 + 2*sum_{m=1}^{K-1} (1 - m/K) * rho(m)**2], with rho(m) the correlation of the
+    window with itself shifted by m*step (Welch 1967); for Hann at 50 % overlap,
+    rho(1) = 1/6 and nu ~ 36K^2/(19K - 1) (Percival & Walden 1993).
+    """
+    if n_segments < 1:
+        raise ValueError(f"{n_segments=} must be >= 1")
+    w = np.asarray(window, dtype=float)
+    norm = np.sum(w**2)
+    total = 0.0
+    for m in range(1, n_segments):
+        shift = m * step
+        if shift >= w.size:
+            break
+        rho = np.sum(w[shift:] * w[: w.size - shift]) / norm
+        total += (1.0 - m / n_segments) * rho**2
+    return 2.0 * n_segments / (1.0 + 2.0 * total)
+
+
+@dataclass(frozen=True)
+class Psd:
+    """An averaged power spectral density in full-scale units.
+
+    Attributes
+    ----------
+    frequency_hz : ndarray
+        Bin centres, ascending: offsets from the centre frequency (-fs/2..fs/2) for complex input,
+        0..fs/2 for real input.
+    density : ndarray
+        Averaged PSD, full-scale power per Hz (FS**2/Hz); ``density.sum() * bin_width_hz`` equals the
+        mean power ``mean(|x|**2)``.
+    batch_density : ndarray
+        ``(n_batches, n_bins)`` time-ordered sub-averages of ``density`` (for Type A scatter).
+    batch_counts : ndarray
+        Segments behind each row of ``batch_density``.
+    bin_width_hz, enbw_hz : float
+        DFT bin width, and the window's equivalent noise bandwidth in Hz.
+    dof : float
+        Equivalent degrees of freedom of each bin of ``density`` (Welch 1967).
+    n_segments : int
+        Periodograms averaged.
+    sample_rate_hz : float
+    one_sided : bool
+        True for real input (density folded onto positive frequencies).
+    window : tuple
+        The window samples (for kernels), as a tuple-free ndarray held read-only.
+    """
+
+    frequency_hz: np.ndarray
+    density: np.ndarray
+    batch_density: np.ndarray
+    batch_counts: np.ndarray
+    bin_width_hz: float
+    enbw_hz: float
+    dof: float
+    n_segments: int
+    sample_rate_hz: float
+    one_sided: bool
+    window: np.ndarray
+
+    @property
+    def nperseg(self) -> int:
+        return int(self.window.size)
+
+    def index_of(self, frequency_hz: float) -> int:
+        """Index of the bin whose centre is nearest ``frequency_hz``."""
+        return int(np.argmin(np.abs(self.frequency_hz - frequency_hz)))
+
+
+class PsdAccumulator:
+    """Streaming Welch estimator: feed blocks of any length, get the averaged PSD.
+
+    Parameters
+    ----------
+    sample_rate_hz : float
+        Sample rate, Hz.
+    nperseg : int
+        Segment (FFT) length, samples.
+    window : str or tuple
+        Any window ``scipy.signal.get_window`` knows; periodic form.
+    overlap : float
+        Fraction of ``nperseg`` by which consecutive segments overlap, 0 <= overlap < 1.
+    one_sided : bool
+        Real input: fold the spectrum onto positive frequencies.
+
+    Notes
+    -----
+    Segments run continuously across block boundaries, so the result does not depend on how the
+    capture was cut into blocks. Complex64 input is transformed in single precision (scipy.fft, all
+    cores); sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
+    of them, merged pairwise as the capture grows) give the Type A scatter of any reading.
+    """
+
+    def __init__(
+        self,
+        sample_rate_hz: float,
+        nperseg: int = 4096,
+        window: str | tuple = "hann",
+        overlap: float = 0.5,
+        one_sided: bool = False,
+    ):
+        if not np.isfinite(sample_rate_hz) or sample_rate_hz <= 0:
+            raise ValueError(f"{sample_rate_hz=} must be a positive number of Hz")
+        if not 0.0 <= overlap < 1.0:
+            raise ValueError(f"{overlap=} must be in [0, 1)")
+        self.sample_rate_hz = float(sample_rate_hz)
+        self.nperseg = int(nperseg)
+        self.window = get_window(window, self.nperseg)
+        self._window32 = self.window.astype(np.float32)
+        self.step = max(1, int(round(self.nperseg * (1.0 - overlap))))
+        self.one_sided = bool(one_sided)
+        self._tail = None
+        self._batches: list[np.ndarray] = []
+        self._counts: list[int] = []
+        self._batch_len = 1
+        self.n_segments = 0
+
+    def update(self, block) -> None:
+        """Add a block of samples (complex for two-sided, real for one-sided)."""
+        x = np.asarray(block)
+        if x.ndim != 1:
+            raise ValueError(f"block must be one-dimensional, got shape {x.shape}")
+        if self.one_sided and np.iscomplexobj(x):
+            raise ValueError("one-sided accumulator takes real samples")
+        if self._tail is not None and self._tail.size:
+            x = np.concatenate([self._tail, x.astype(self._tail.dtype, copy=False)])
+        n_seg = 0 if x.size < self.nperseg else 1 + (x.size - self.nperseg) // self.step
+        for first in range(0, n_seg, _SEGMENTS_PER_CALL):
+            count = min(_SEGMENTS_PER_CALL, n_seg - first)
+            start = first * self.step
+            stop = start + (count - 1) * self.step + self.nperseg
+            view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
+            self._add(self._periodograms(view))
+        self._tail = x[n_seg * self.step :].copy()
+
+    def _periodograms(self, segments: np.ndarray) -> np.ndarray:
+        win = self._window32 if segments.dtype in (np.complex64, np.float32) else self.window
+        if self.one_sided:
+            spec = scipy.fft.rfft(segments * win, axis=-1, workers=-1)
+        else:
+            spec = scipy.fft.fft(segments * win, axis=-1, workers=-1)
+        return spec.real**2 + spec.imag**2
+
+    def _add(self, power: np.ndarray) -> None:
+        i = 0
+        while i < power.shape[0]:
+            if not self._batches or self._counts[-1] == self._batch_len:
+                if len(self._batches) == 2 * N_BATCHES:
+                    self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
+                    self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
+                    self._batch_len *= 2
+                if not self._batches or self._counts[-1] == self._batch_len:
+                    self._batches.append(np.zeros(power.shape[1]))
+                    self._counts.append(0)
+            take = min(self._batch_len - self._counts[-1], power.shape[0] - i)
+            self._batches[-1] += power[i : i + take].sum(axis=0, dtype=np.float64)
+            self._counts[-1] += take
+            i += take
+        self.n_segments += power.shape[0]
+
+    def result(self) -> Psd:
+        """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
+        if self.n_segments == 0:
+            raise ValueError(
+                f"fewer samples than one segment ({self.nperseg=}): the capture is too short"
+            )
+        fs, n = self.sample_rate_hz, self.nperseg
+        scale = 1.0 / (fs * np.sum(self.window**2))
+        sums = np.array(self._batches)
+        counts = np.array(self._counts)
+        if self.one_sided:
+            freq = scipy.fft.rfftfreq(n, 1.0 / fs)
+            fold = np.full(freq.size, 2.0)
+            fold[0] = 1.0
+            if n % 2 == 0:
+                fold[-1] = 1.0
+            scale = scale * fold
+        else:
+            freq = scipy.fft.fftshift(scipy.fft.fftfreq(n, 1.0 / fs))
+            sums = scipy.fft.fftshift(sums, axes=-1)
+        batch_density = sums * scale / counts[:, None]
+        density = sums.sum(axis=0) * scale / self.n_segments
+        props_enbw = n * np.sum(self.window**2) / self.window.sum() ** 2
+        window = self.window.copy()
+        window.setflags(write=False)
+        return Psd(
+            frequency_hz=freq,
+            density=density,
+            batch_density=batch_density,
+            batch_counts=counts,
+            bin_width_hz=fs / n,
+            enbw_hz=float(props_enbw * fs / n),
+            dof=welch_dof(self.n_segments, self.window, self.step),
+            n_segments=self.n_segments,
+            sample_rate_hz=fs,
+            one_sided=self.one_sided,
+            window=window,
+        )
+
+
+def psd(x, sample_rate_hz: float, **kwargs) -> Psd:
+    """Averaged PSD of one array (see :class:`PsdAccumulator` for the parameters)."""
+    x = np.asarray(x)
+    kwargs.setdefault("one_sided", not np.iscomplexobj(x))
+    acc = PsdAccumulator(sample_rate_hz, **kwargs)
+    acc.update(x)
+    return acc.result()
+
+
+def band_power(spectrum: Psd, low_hz: float, high_hz: float, density=None) -> float:
+    """Power in [low_hz, high_hz]: the density integrated over the bins whose centres lie there.
+
+    ``density`` defaults to ``spectrum.density``; pass a row of ``batch_density`` or a
+    noise-subtracted density to integrate that instead. Units: FS**2 (or the density's units * Hz).
+    """
+    if not high_hz >= low_hz:
+        raise ValueError(f"{high_hz=} must be >= {low_hz=}")
+    d = spectrum.density if density is None else np.asarray(density)
+    sel = (spectrum.frequency_hz >= low_hz) & (spectrum.frequency_hz <= high_hz)
+    total = np.sum(d[..., sel], axis=-1) * spectrum.bin_width_hz
+    return float(total) if np.ndim(total) == 0 else total

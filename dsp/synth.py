@@ -1,0 +1,177 @@
+"""Synthetic captures with known truth: tones, thermal noise, a noise source, passive losses, and a
+dongle with its impairments.
+
+Signals before the dongle are in sqrt(W) (|x|**2 averages to watts into the matched input); the
+dongle turns them into full-scale complex64 samples. Invented data lives here and in ``recordings/``
+only; nothing in this module is a measurement.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import scipy.fft
+
+from dsp.units import K_B, T0_K, amplitude_from_db, power_from_db
+
+LossSpec = float | Callable[[np.ndarray], np.ndarray]
+
+
+def tone(
+    n: int,
+    sample_rate_hz: float,
+    *,
+    power_w: float,
+    offset_hz: float,
+    drift_hz: float = 0.0,
+    phase_rad: float = 0.0,
+) -> np.ndarray:
+    """A complex tone of ``power_w`` at ``offset_hz``, drifting linearly by ``drift_hz`` over the capture."""
+    t = np.arange(n) / sample_rate_hz
+    duration = n / sample_rate_hz
+    phase = 2 * np.pi * (offset_hz * t + 0.5 * drift_hz / duration * t**2) + phase_rad
+    return np.sqrt(power_w) * np.exp(1j * phase)
+
+
+def thermal_noise(n: int, sample_rate_hz: float, temperature_k: float, rng: np.random.Generator) -> np.ndarray:
+    """Complex white Gaussian noise of available power k*T*fs (W)."""
+    if temperature_k < 0:
+        raise ValueError(f"{temperature_k=} must be >= 0 K")
+    sigma = np.sqrt(K_B * temperature_k * sample_rate_hz / 2.0)
+    return sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+
+
+def noise_source(n: int, sample_rate_hz: float, enr_db: float, hot: bool, rng: np.random.Generator) -> np.ndarray:
+    """A noise source's output: T0*(ENR + 1) when on (hot), T0 when off (cold)."""
+    temperature = T0_K * (power_from_db(enr_db) + 1.0) if hot else T0_K
+    return thermal_noise(n, sample_rate_hz, temperature, rng)
+
+
+def antenna_noise(n: int, sample_rate_hz: float, fa_db: float, rng: np.random.Generator) -> np.ndarray:
+    """Band noise from an antenna whose external noise factor is ``fa_db`` (Ta = T0 * 10**(Fa/10))."""
+    return thermal_noise(n, sample_rate_hz, T0_K * power_from_db(fa_db), rng)
+
+
+def passive_loss(
+    x: np.ndarray,
+    sample_rate_hz: float,
+    loss_db: LossSpec,
+    rng: np.random.Generator,
+    temperature_k: float = T0_K,
+) -> np.ndarray:
+    """Pass ``x`` through a matched passive device at ``temperature_k``.
+
+    ``loss_db`` is a number, or a callable of offset frequency (Hz, array) returning dB. The device
+    adds its own thermal noise, T*(1 - |H(f)|**2) per frequency (Bedrosian 1960), so a passive loss at
+    T0 in front of a T0 source leaves the noise density unchanged.
+    """
+    x = np.asarray(x, dtype=np.complex128)
+    if callable(loss_db):
+        f = scipy.fft.fftfreq(x.size, 1.0 / sample_rate_hz)
+        h2 = power_from_db(-np.asarray(loss_db(f), dtype=float))
+        if np.any(h2 > 1):
+            raise ValueError("a passive device cannot have negative loss")
+        out = scipy.fft.ifft(scipy.fft.fft(x) * np.sqrt(h2))
+        noise = scipy.fft.fft(thermal_noise(x.size, sample_rate_hz, temperature_k, rng))
+        return out + scipy.fft.ifft(noise * np.sqrt(1.0 - h2))
+    if loss_db < 0:
+        raise ValueError(f"a passive device cannot have negative loss, got {loss_db=}")
+    h2 = power_from_db(-loss_db)
+    return x * np.sqrt(h2) + thermal_noise(x.size, sample_rate_hz, temperature_k * (1 - h2), rng)
+
+
+def rapp(x: np.ndarray, saturation: float, p: float = 2.0) -> np.ndarray:
+    """Rapp AM/AM compression: |y| = |x| / (1 + (|x|/saturation)**(2p))**(1/(2p)), phase kept."""
+    r = np.abs(x)
+    return x / (1.0 + (r / saturation) ** (2 * p)) ** (1.0 / (2 * p))
+
+
+@dataclass(frozen=True)
+class Dongle:
+    """A simulated RTL2832U-class receiver.
+
+    Attributes
+    ----------
+    gain_db : float
+        Conversion gain: dBFS = dBm at the input + ``gain_db``.
+    noise_figure_db : float
+        Noise figure of the receiver, dB (its own noise, referred to the input, T0*(F - 1)).
+    dc_offset : complex
+        Added at the output, full-scale units.
+    iq_gain_db, iq_phase_deg : float
+        I/Q amplitude and phase imbalance.
+    compression_dbfs : float or None
+        Output amplitude saturation of the Rapp model (dBFS); None for a linear receiver.
+    rapp_p : float
+        Smoothness of the Rapp knee.
+    bits : int or None
+        ADC resolution (8 as the RTL2832U delivers); None leaves samples unquantised.
+    freq_offset_ppm, center_hz : float
+        Tuning error (ppm of ``center_hz``) shifts everything by ppm*1e-6*center_hz.
+    """
+
+    gain_db: float = 40.0
+    noise_figure_db: float = 6.0
+    dc_offset: complex = 0.0
+    iq_gain_db: float = 0.0
+    iq_phase_deg: float = 0.0
+    compression_dbfs: float | None = None
+    rapp_p: float = 2.0
+    bits: int | None = 8
+    freq_offset_ppm: float = 0.0
+    center_hz: float = 100e6
+
+    @property
+    def noise_temperature_k(self) -> float:
+        return T0_K * (power_from_db(self.noise_figure_db) - 1.0)
+
+    def _analog(self, x_w: np.ndarray, sample_rate_hz: float, rng: np.random.Generator) -> np.ndarray:
+        x = np.asarray(x_w, dtype=np.complex128) + thermal_noise(
+            np.size(x_w), sample_rate_hz, self.noise_temperature_k, rng
+        )
+        x = x * np.sqrt(1e3) * amplitude_from_db(self.gain_db)
+        if self.freq_offset_ppm:
+            shift = self.freq_offset_ppm * 1e-6 * self.center_hz
+            x = x * np.exp(2j * np.pi * shift * np.arange(x.size) / sample_rate_hz)
+        if self.compression_dbfs is not None:
+            x = rapp(x, amplitude_from_db(self.compression_dbfs), self.rapp_p)
+        if self.iq_gain_db or self.iq_phase_deg:
+            g, phi = amplitude_from_db(self.iq_gain_db), np.deg2rad(self.iq_phase_deg)
+            x = x.real + 1j * g * (x.imag * np.cos(phi) - x.real * np.sin(phi))
+        return x + self.dc_offset
+
+    def receive_cu8(self, x_w: np.ndarray, sample_rate_hz: float, rng: np.random.Generator) -> np.ndarray:
+        """Interleaved unsigned 8-bit I/Q codes, as the dongle delivers them."""
+        x = self._analog(x_w, sample_rate_hz, rng)
+        out = np.empty(2 * x.size, dtype=np.uint8)
+        out[0::2] = np.clip(np.rint(x.real * 127.5 + 127.5), 0, 255)
+        out[1::2] = np.clip(np.rint(x.imag * 127.5 + 127.5), 0, 255)
+        return out
+
+    def receive(self, x_w: np.ndarray, sample_rate_hz: float, rng: np.random.Generator) -> np.ndarray:
+        """Full-scale complex64 samples (quantised to 8 bits unless ``bits`` is None)."""
+        if self.bits is None:
+            return self._analog(x_w, sample_rate_hz, rng).astype(np.complex64)
+        if self.bits != 8:
+            raise ValueError(f"only 8-bit quantisation is modelled, got bits={self.bits}")
+        return cu8_to_complex(self.receive_cu8(x_w, sample_rate_hz, rng))
+
+    def noise_density_dbfs_per_hz(self, source_temperature_k: float = T0_K) -> float:
+        """Expected output noise density with a matched source at ``source_temperature_k`` (no quantisation)."""
+        return float(
+            10 * np.log10(K_B * (source_temperature_k + self.noise_temperature_k) * 1e3) + self.gain_db
+        )
+
+
+def cu8_to_complex(raw: np.ndarray) -> np.ndarray:
+    """Interleaved cu8 codes -> complex64 at +/-1 full scale: (u - 127.5)/127.5 per rail."""
+    raw = np.asarray(raw, dtype=np.uint8)
+    x = (raw.astype(np.float32) - np.float32(127.5)) / np.float32(127.5)
+    return x.view(np.complex64)
+
+
+#: Quantisation noise density of an ideal 8-bit cu8 converter, FS**2 per sample (both rails):
+#: step 1/127.5, variance step**2/12 per rail (Bennett 1948).
+CU8_QUANTISATION_POWER = 2.0 * (1.0 / 127.5) ** 2 / 12.0
