@@ -256,15 +256,18 @@ def band_dof(dof_per_bin, n_bins, window) -> np.ndarray:
     """
     w2 = np.asarray(window, dtype=float) ** 2
     rho2 = (np.abs(np.fft.fft(w2)) / w2.sum()) ** 2
+    scalar = np.ndim(n_bins) == 0
     n = np.atleast_1d(np.asarray(n_bins, dtype=float))
     out = np.zeros_like(n)
     for i, ni in enumerate(n):
         if ni < 1:
             out[i] = 0.0
             continue
-        m = np.arange(1, int(min(ni, w2.size)))
+        # Lags beyond N/2 would only meet again round the circle (through +/-fs/2, which the
+        # usable band never spans).
+        m = np.arange(1, int(min(ni, w2.size // 2)))
         out[i] = dof_per_bin * ni**2 / (ni + 2.0 * np.sum((ni - m) * rho2[m]))
-    return _out(out)
+    return float(out[0]) if scalar else out
 
 
 def _propagate(func: Callable, values: Sequence, rel_u: Sequence):
