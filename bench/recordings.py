@@ -17,6 +17,7 @@ interrupted recording is kept under a ``.partial`` name, marked incomplete.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import datetime as _dt
 import json
 import os
@@ -409,6 +410,24 @@ def _link_into_place(tmp: Path, final: Path, overwrite: bool) -> None:
         os.rename(tmp, final)
         return
     os.unlink(tmp)
+
+
+@contextlib.contextmanager
+def atomic_path(final, overwrite: bool = False):
+    """Yield a temporary path in ``final``'s folder; on success move it to ``final`` (refusing to
+    replace an existing file unless ``overwrite``); on failure remove it."""
+    final = Path(final)
+    if not final.parent.is_dir():
+        raise CaptureError(final.parent, "no such folder")
+    if final.exists() and not overwrite:
+        raise CaptureError(final, "already exists; not overwriting it")
+    tmp = final.parent / f".{final.name}.{secrets.token_hex(4)}.tmp{final.suffix}"
+    try:
+        yield tmp
+        _link_into_place(tmp, final, overwrite)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
 
 
 class SigmfWriter:

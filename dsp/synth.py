@@ -27,10 +27,16 @@ def tone(
     offset_hz: float,
     drift_hz: float = 0.0,
     phase_rad: float = 0.0,
+    start: int = 0,
+    total: int | None = None,
 ) -> np.ndarray:
-    """A complex tone of ``power_w`` at ``offset_hz``, drifting linearly by ``drift_hz`` over the capture."""
-    t = np.arange(n) / sample_rate_hz
-    duration = n / sample_rate_hz
+    """A complex tone of ``power_w`` at ``offset_hz``, drifting linearly by ``drift_hz`` over the capture.
+
+    ``start``/``total`` generate samples ``start .. start+n`` of a ``total``-sample capture, so long
+    captures can be made block by block with a continuous phase.
+    """
+    t = (start + np.arange(n)) / sample_rate_hz
+    duration = (total or n) / sample_rate_hz
     phase = 2 * np.pi * (offset_hz * t + 0.5 * drift_hz / duration * t**2) + phase_rad
     return np.sqrt(power_w) * np.exp(1j * phase)
 

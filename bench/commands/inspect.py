@@ -77,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
         lo, hi = t.ci95_dbfs
         lines += [
             f"  tone          {t.offset_hz:+.1f} Hz{freq}",
-            f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo)} .. {fmt_db(hi)})",
+            f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)})",
             f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
             f"  SNR           {fmt_db(t.snr_db, 1)} dB in {t.snr_bandwidth_hz:g} Hz",
         ]

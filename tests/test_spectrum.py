@@ -1,0 +1,118 @@
+"""The streaming Welch accumulator against Harris 1978, Welch 1967, Parseval and scipy.signal.welch."""
+
+import numpy as np
+import pytest
+import scipy.signal
+from hypothesis import given, settings, strategies as st
+
+from dsp.spectrum import PsdAccumulator, band_power, kernel, psd, welch_dof, window_properties
+
+
+@pytest.mark.parametrize(
+    "window, cg, enbw, scallop",
+    [
+        # Harris, Proc. IEEE 66(1), 1978, table I; values for periodic 4096-point windows from
+        # REFERENCES.md [calc], matching Harris's table [mem].
+        ("boxcar", 1.000, 1.000, 3.92),
+        ("hann", 0.500, 1.500, 1.42),
+        ("hamming", 0.540, 1.363, 1.75),
+        ("blackmanharris", 0.359, 2.004, 0.83),
+    ],
+)
+def test_window_figures_match_harris_1978(window, cg, enbw, scallop):
+    p = window_properties(window, 4096)
+    assert p.coherent_gain == pytest.approx(cg, abs=5e-4)
+    assert p.enbw_bins == pytest.approx(enbw, abs=5e-4)
+    assert p.scalloping_loss_db == pytest.approx(scallop, abs=5e-3)
+
+
+@pytest.mark.parametrize("k, nu", [(10, 19.05), (20, 37.99)])
+def test_equivalent_dof_hann_half_overlap(k, nu):
+    # Welch 1967; Hann at 50 % overlap: nu = 36K^2/(19K - 1) (Percival & Walden 1993 [mem]);
+    # K = 10 -> 19.05, K = 20 -> 37.99 (REFERENCES.md [calc]).
+    w = scipy.signal.get_window("hann", 1024)
+    assert welch_dof(k, w, 512) == pytest.approx(nu, abs=0.01)
+    assert welch_dof(k, w, 512) == pytest.approx(36 * k**2 / (19 * k - 1), rel=2e-3)
+    # No overlap: independent periodograms, 2K degrees of freedom.
+    assert welch_dof(k, w, 1024) == 2 * k
+
+
+def test_agrees_with_scipy_welch_two_sided(rng):
+    # scipy.signal.welch (reference library), same window, overlap and density scaling.
+    x = (rng.standard_normal(50_000) + 1j * rng.standard_normal(50_000)).astype(np.complex128)
+    ours = psd(x, 1e5, nperseg=512)
+    f, ref = scipy.signal.welch(x, fs=1e5, nperseg=512, noverlap=256, window="hann", detrend=False,
+                                return_onesided=False, scaling="density")
+    assert np.allclose(ours.frequency_hz, np.fft.fftshift(f))
+    assert np.allclose(ours.density, np.fft.fftshift(ref), rtol=1e-10)
+
+
+def test_agrees_with_scipy_welch_one_sided(rng):
+    x = rng.standard_normal(40_000)
+    ours = psd(x, 48e3, nperseg=1024)
+    f, ref = scipy.signal.welch(x, fs=48e3, nperseg=1024, noverlap=512, detrend=False, scaling="density")
+    assert np.allclose(ours.frequency_hz, f)
+    assert np.allclose(ours.density, ref, rtol=1e-10)
+
+
+def test_integrated_density_is_the_variance(rng):
+    # Parseval: the integrated PSD of white noise equals its variance (physical invariant).
+    sigma2 = 0.37
+    n = 1 << 18
+    x = np.sqrt(sigma2 / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    s = psd(x.astype(np.complex64), 1e6, nperseg=1024)
+    total = band_power(s, -np.inf, np.inf)
+    assert total == pytest.approx(np.mean(np.abs(x) ** 2), rel=2e-3)
+    assert 10 * np.log10(total / sigma2) == pytest.approx(0.0, abs=0.03)  # 4.343/sqrt(N) = 0.008 dB
+
+
+def test_tone_peak_integrates_to_its_power():
+    # A complex tone of amplitude A has power A^2 wherever it falls between bins (Parseval).
+    fs, n, a = 1e5, 1 << 15, 0.3
+    for frac in (0.0, 0.25, 0.5):
+        f0 = (100 + frac) * fs / 1024
+        x = a * np.exp(2j * np.pi * f0 * np.arange(n) / fs)
+        s = psd(x, fs, nperseg=1024)
+        assert band_power(s, f0 - 20 * s.bin_width_hz, f0 + 20 * s.bin_width_hz) == pytest.approx(a**2, rel=1e-6)
+
+
+def test_kernel_sums_to_one_over_all_bins():
+    w = scipy.signal.get_window("hann", 256)
+    for delta in (0.0, 0.3, 0.5):
+        assert kernel(w, np.arange(256) - delta).sum() == pytest.approx(1.0, rel=1e-12)
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.lists(st.integers(min_value=1, max_value=3000), min_size=1, max_size=12))
+def test_result_does_not_depend_on_block_boundaries(cuts):
+    x = np.random.default_rng(7).standard_normal(12_000).astype(np.float32).view(np.complex64)
+    whole = psd(x, 1e4, nperseg=256)
+    acc = PsdAccumulator(1e4, nperseg=256)
+    i = 0
+    for c in cuts:
+        acc.update(x[i : i + c])
+        i += c
+    acc.update(x[i:])
+    part = acc.result()
+    assert part.n_segments == whole.n_segments
+    assert np.allclose(part.density, whole.density, rtol=1e-5)
+
+
+def test_sub_averages_partition_the_segments(rng):
+    x = (rng.standard_normal(300_000) + 1j * rng.standard_normal(300_000)).astype(np.complex64)
+    s = psd(x, 1e6, nperseg=256)
+    assert s.batch_counts.sum() == s.n_segments
+    assert 16 <= s.batch_density.shape[0] <= 32
+    weighted = (s.batch_density * s.batch_counts[:, None]).sum(0) / s.n_segments
+    assert np.allclose(weighted, s.density, rtol=1e-9)
+
+
+def test_too_short_and_bad_parameters():
+    acc = PsdAccumulator(1e3, nperseg=256)
+    acc.update(np.zeros(100, np.complex64))
+    with pytest.raises(ValueError, match="shorter|too short"):
+        acc.result()
+    with pytest.raises(ValueError, match="overlap"):
+        PsdAccumulator(1e3, overlap=1.0)
+    with pytest.raises(ValueError, match="sample_rate_hz"):
+        PsdAccumulator(0.0)
