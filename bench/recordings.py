@@ -257,7 +257,6 @@ def sigmf_paths(path: Path) -> tuple[Path, Path]:
 def open_sigmf(path: Path) -> Capture:
     """A SigMF recording (metadata checked against the SigMF schema)."""
     from sigmf import SigMFFile
-    from sigmf.error import SigMFError
 
     meta_path, data_path = sigmf_paths(path)
     try:
@@ -274,12 +273,11 @@ def open_sigmf(path: Path) -> Capture:
         raise CaptureError(meta_path, "metadata has no 'global' object")
     try:
         SigMFFile(metadata=meta).validate()
-    except SigMFError as exc:
-        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema: {first}") from None
-    except Exception as exc:  # the schema validator raises its own types
-        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema: {first}") from None
+    except Exception as exc:  # SigMFError, or the schema validator's own ValidationError
+        where = "/".join(str(p) for p in getattr(exc, "path", ()) or ())
+        text = getattr(exc, "message", None) or (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+        where = f" at {where}" if where else ""
+        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema{where}: {text}") from None
     g = meta["global"]
     datatype = str(g.get(keys.DATATYPE, ""))
     if datatype.endswith("_be"):
