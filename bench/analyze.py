@@ -70,10 +70,9 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
     h = health.result()
     if h.n_nonfinite:
         raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")
-    psd = acc.result()
-    if not np.any(psd.density > 0):
+    if h.power - abs(h.dc_offset) ** 2 <= 1e-9 * h.power or h.power == 0:
         raise CaptureError(capture.path, "all samples are equal: there is no signal or noise to measure")
-    return psd, h
+    return acc.result(), h
 
 
 def read_capture(
