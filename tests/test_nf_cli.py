@@ -7,9 +7,11 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from bench.cli import main
-from bench.enr import parse_enr_table, EnrTableError
+from bench.enr import EnrTableError, parse_enr_table
 from bench.recordings import write_sigmf
 from dsp import synth
 from dsp.units import T0_K, power_from_db, w_from_dbm
@@ -261,3 +263,21 @@ def test_missing_enr_is_an_error(tmp_path, capsys):
     hot, cold = _pair(tmp_path, "ref", rng, n=20_000)
     err = _fails(capsys, ["nf", "--hot", hot, "--cold", cold])
     assert "--enr-db" in err
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.lists(st.tuples(st.floats(1e3, 6e9), st.floats(-5.0, 40.0)), min_size=1, max_size=12,
+                unique_by=lambda p: p[0]),
+       st.booleans())
+def test_enr_table_round_trip(points, header):
+    # Round trip: a table written as CSV reads back point for point, and interpolation returns the
+    # table's own values at its frequencies (np.interp as the reference library).
+    points = sorted(points)
+    text = ("frequency_hz,enr_db\n" if header else "") + "".join(f"{f!r},{e!r}\n" for f, e in points)
+    table = parse_enr_table(text, "t.csv")
+    f = np.array([p[0] for p in points])
+    e = np.array([p[1] for p in points])
+    assert np.array_equal(table.frequency_hz, f) and np.array_equal(table.enr_db, e)
+    assert np.allclose(table.enr_db_at(f), e)
+    assert table.enr_db_at(f[0] / 2) == e[0] and table.enr_db_at(f[-1] * 2) == e[-1]  # held at the ends
+    assert np.allclose(table.enr_db_at((f[:-1] + f[1:]) / 2), (e[:-1] + e[1:]) / 2)

@@ -116,6 +116,8 @@ def _validate(args) -> None:
         raise UsageError(f"--sub-bands must be >= 1, got {args.sub_bands}")
     if args.level_dbm is not None and not math.isfinite(args.level_dbm):
         raise UsageError(f"--level-dbm must be a finite number, got {args.level_dbm}")
+    if args.csv and not Path(args.csv).resolve().parent.is_dir():
+        raise UsageError(f"{args.csv}: the folder does not exist")
     if args.csv and Path(args.csv).exists() and not args.overwrite:
         raise UsageError(f"{args.csv}: already exists; not overwriting it (give --overwrite to replace it)")
 
