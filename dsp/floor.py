@@ -14,7 +14,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from dsp.distributions import chi2_isf, chi2_pdf, chi2_ppf
 
 from dsp.spectrum import Psd
 
@@ -63,13 +63,13 @@ def median_bias(dof: float) -> float:
     """
     if dof <= 0:
         raise ValueError(f"{dof=} must be positive")
-    return float(stats.chi2.ppf(0.5, dof) / dof)
+    return float(chi2_ppf(0.5, dof) / dof)
 
 
 def detection_threshold(dof: float, n_bins: int, false_alarm: float = FALSE_ALARM) -> float:
     """Ratio to the mean density above which a bin is called a signal (chi2 tail)."""
     p = false_alarm / max(n_bins, 1)
-    return float(stats.chi2.isf(p, dof) / dof)
+    return float(chi2_isf(p, dof) / dof)
 
 
 def usable_mask(spectrum: Psd, *, edge_fraction: float = 0.1, dc_halfwidth_hz: float | None = None):
@@ -135,8 +135,8 @@ def noise_floor(
     level = float(np.median(d[mask]) / bias)
     nu = spectrum.dof
     # Density of chi2(nu)/nu at its median, times the noise level: f(m) for the standard error.
-    med = stats.chi2.ppf(0.5, nu)
-    f_at_median = stats.chi2.pdf(med, nu) * nu  # density of chi2/nu at med/nu
+    med = chi2_ppf(0.5, nu)
+    f_at_median = chi2_pdf(med, nu) * nu  # density of chi2/nu at med/nu
     n_eff = mask.sum() / (spectrum.enbw_hz / spectrum.bin_width_hz)
     u_median = 1.0 / (2.0 * f_at_median * np.sqrt(n_eff))  # in units of the mean
     return NoiseFloor(

@@ -17,7 +17,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 #: Number of time-ordered sub-averages kept for Type A scatter (between N_BATCHES and 2*N_BATCHES).
 N_BATCHES = 16
@@ -40,11 +39,30 @@ class WindowProperties:
     scalloping_loss_db: float
 
 
+#: Generalised cosine windows, w[n] = sum_k (-1)**k a_k cos(2 pi k n / N) (Harris 1978), by name.
+#: Other names go to scipy.signal.get_window (imported only then: it is slow to import).
+COSINE_WINDOWS = {
+    "boxcar": (1.0,),
+    "rectangular": (1.0,),
+    "hann": (0.5, 0.5),
+    "hamming": (0.54, 0.46),
+    "blackmanharris": (0.35875, 0.48829, 0.14128, 0.01168),
+}
+
+
 def get_window(window: str | tuple, nperseg: int) -> np.ndarray:
     """The periodic (DFT-even) window of ``nperseg`` points, float64."""
     if nperseg < 16:
         raise ValueError(f"{nperseg=} must be at least 16")
-    return scipy.signal.get_window(window, nperseg, fftbins=True).astype(np.float64)
+    if isinstance(window, str) and window in COSINE_WINDOWS:
+        phase = 2.0 * np.pi * np.arange(nperseg) / nperseg
+        return sum((-1) ** k * a * np.cos(k * phase) for k, a in enumerate(COSINE_WINDOWS[window]))
+    import scipy.signal
+
+    try:
+        return scipy.signal.get_window(window, nperseg, fftbins=True).astype(np.float64)
+    except ValueError as exc:
+        raise ValueError(f"unknown window {window!r}: {exc}") from None
 
 
 def window_properties(window: str | tuple, nperseg: int) -> WindowProperties:

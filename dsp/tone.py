@@ -23,7 +23,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
+
+from dsp.distributions import t_ppf
 
 from dsp.floor import NoiseFloor, detection_threshold
 from dsp.spectrum import Psd, kernel
@@ -77,7 +79,7 @@ class Tone:
     @property
     def ci95_dbfs(self) -> tuple[float, float]:
         """95 % interval of the tone power, dBFS (Student t on ``dof_u``); low end -inf if it reaches 0."""
-        k = stats.t.ppf(0.975, self.dof_u)
+        k = float(t_ppf(0.975, self.dof_u))
         lo, hi = self.power - k * self.u_power, self.power + k * self.u_power
         return db_from_power(max(lo, 0.0)), db_from_power(max(hi, 0.0))
 

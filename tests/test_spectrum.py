@@ -116,3 +116,11 @@ def test_too_short_and_bad_parameters():
         PsdAccumulator(1e3, overlap=1.0)
     with pytest.raises(ValueError, match="sample_rate_hz"):
         PsdAccumulator(0.0)
+
+
+@pytest.mark.parametrize("window", ["boxcar", "hann", "hamming", "blackmanharris", "flattop"])
+def test_windows_match_scipy_get_window(window):
+    # scipy.signal.get_window (reference library), periodic form.
+    from dsp.spectrum import get_window
+
+    assert np.allclose(get_window(window, 1000), scipy.signal.get_window(window, 1000, fftbins=True), atol=1e-12)

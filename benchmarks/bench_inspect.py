@@ -1,0 +1,81 @@
+"""Speed and memory of ``rxbench inspect``, whole process, against numpy-load + scipy.signal.welch.
+
+Run on demand (not part of the test run):
+
+    python benchmarks/bench_inspect.py [--workdir DIR] [--repeat 3] [--big-gb 1.0]
+
+It writes a 10 s, 2.4 MS/s cu8 capture (48 MB) with ``rxbench synth``, then times, as separate
+processes and side by side, ``rxbench inspect`` and a script that loads the same file with numpy and
+runs ``scipy.signal.welch(nperseg=4096)``; and reports the peak resident memory of
+``rxbench inspect`` on a capture of ``--big-gb`` GB (0 skips it). Targets: >= 10x faster than the
+welch script; peak memory <= 200 MB whatever the capture length.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+WELCH_SCRIPT = """
+import sys, numpy as np, scipy.signal
+raw = np.fromfile(sys.argv[1], dtype=np.uint8).astype(np.float32)
+x = ((raw[0::2] - 127.5) + 1j * (raw[1::2] - 127.5)) / 127.5
+f, p = scipy.signal.welch(x, fs=2.4e6, nperseg=4096, return_onesided=False)
+k = int(np.argmax(p)); print(f[k], 10 * np.log10(p[k]))
+"""
+
+
+def run_timed(cmd: list[str]) -> tuple[float, float]:
+    """Wall time (s) and peak RSS (MB) of one child process."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    elapsed = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.read().decode()[-500:]}")
+    return elapsed, usage.ru_maxrss / 1024.0
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--workdir", type=Path, help="where to write the captures (default: a temp folder)")
+    ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--big-gb", type=float, default=1.0, help="size of the memory-test capture, GB (0: skip)")
+    args = ap.parse_args()
+    work = args.workdir or Path(tempfile.mkdtemp(prefix="rxbench-bench-"))
+    work.mkdir(parents=True, exist_ok=True)
+    rx = [sys.executable, "-m", "bench.cli"]
+    cap = work / "ten_seconds.cu8"
+    if not cap.exists():
+        subprocess.run([*rx, "synth", str(cap), "--rate", "2.4e6", "--duration", "10"], check=True)
+    script = work / "welch_script.py"
+    script.write_text(WELCH_SCRIPT)
+    ours, theirs = [], []
+    for _ in range(args.repeat):
+        ours.append(run_timed([*rx, "inspect", str(cap), "--rate", "2.4e6", "--json"]))
+        theirs.append(run_timed([sys.executable, str(script), str(cap)]))
+    t_ours = statistics.median(t for t, _ in ours)
+    t_theirs = statistics.median(t for t, _ in theirs)
+    print(f"capture: {cap} ({cap.stat().st_size / 1e6:.0f} MB, 10 s at 2.4 MS/s cu8)")
+    print(f"rxbench inspect          {t_ours:7.2f} s   peak {max(m for _, m in ours):7.0f} MB")
+    print(f"numpy + scipy welch      {t_theirs:7.2f} s   peak {max(m for _, m in theirs):7.0f} MB")
+    print(f"speed-up                 {t_theirs / t_ours:7.1f} x   (target >= 10 x)")
+    if args.big_gb > 0:
+        big = work / "big.cu8"
+        seconds = args.big_gb * 1e9 / (2 * 2.4e6)
+        if not big.exists():
+            subprocess.run([*rx, "synth", str(big), "--rate", "2.4e6", "--duration", f"{seconds:.3f}"], check=True)
+        t_big, m_big = run_timed([*rx, "inspect", str(big), "--rate", "2.4e6", "--json"])
+        print(f"rxbench inspect {big.stat().st_size / 1e9:.2f} GB: {t_big:.1f} s, peak {m_big:.0f} MB "
+              "(target <= 200 MB)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
