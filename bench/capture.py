@@ -1,0 +1,427 @@
+"""Running a plan into a session folder.
+
+A session is a folder holding:
+
+- one SigMF recording per capture, raw cu8 as the dongle delivers it, named ``NN-STEP`` (``NN`` the
+  capture's position in the plan); its metadata carries, under the ``rxbench:`` extension namespace,
+  ``role``, ``step``, ``repeat``, ``attenuation_db``, ``gain_db``, ``with_dut``, ``ppm``,
+  ``generator_dbm`` and ``tone_offset_hz`` (tone roles, when known), ``enr_db`` (hot/cold),
+  ``dropped_samples`` and ``simulated``; ``core:datetime`` is the capture's start;
+- ``plan.toml``, the plan's text as it was run;
+- ``log.txt``, one timestamped line per event (appended, never rewritten);
+- ``NN-STEP.partial.sigmf-*``: what an interrupted capture had, marked ``rxbench:incomplete``;
+- ``replaced/``: earlier recordings of steps captured again with ``--redo`` (never deleted).
+
+Running a plan into an existing session resumes it: captures already there are kept and skipped.
+Nothing is ever overwritten, and nothing appears under a final name before it is complete.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import os
+import secrets
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Sequence, TextIO
+
+from bench import keys
+from bench.device import CHUNK_BYTES, CaptureSource
+from bench.errors import CaptureError, PlanError, UsageError
+from bench.plan import TONE_ROLES, Plan, PlannedCapture
+from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
+
+PLAN_NAME = "plan.toml"
+LOG_NAME = "log.txt"
+REPLACED_DIR = "replaced"
+
+#: Damage level of a dongle's input, dBm (about +10 dBm; from memory, common practice).
+DAMAGE_DBM = 10.0
+#: Estimated input levels above this are refused unless forced, dBm (10 dB below damage).
+REFUSE_ABOVE_DBM = 0.0
+#: A tone within this much of full scale is warned about (noise peaks ride on it), dB.
+CLIP_MARGIN_DB = 3.0
+#: Without a known full-scale level, tone levels above this are warned about as likely to clip, dBm:
+#: dongles commonly reach full scale somewhere between about -50 and -10 dBm depending on the gain
+#: (common practice).
+UNKNOWN_CLIP_WARN_DBM = -40.0
+
+CAUTIONS = (
+    "Cautions: never connect a transmitter's output to the dongle without attenuation rated for the "
+    "power (its input is damaged at a few milliwatts); feed points of high-impedance antennas carry "
+    "high voltage while transmitting; observe RF-exposure limits. Defer to local codes and licensed "
+    "practice."
+)
+
+
+def _extra(key: str) -> str:
+    """A metadata key without the namespace prefix, as SigmfWriter's ``extra`` takes it."""
+    return key.split(":", 1)[1]
+
+
+def round_up_512(n: float) -> int:
+    return int(math.ceil(n / 512.0)) * 512
+
+
+def check_levels(plan: Plan, *, force: bool = False) -> list[str]:
+    """The input-level guard: estimate each tone capture's level at the dongle's input.
+
+    Returns warnings (likely clipping, unknown level); raises UsageError for any level above
+    :data:`REFUSE_ABOVE_DBM` unless ``force``.
+    """
+    warnings: list[str] = []
+    fs_dbm = plan.dongle.full_scale_dbm
+    worst: dict[str, float] = {}
+    for cap in plan.expand():
+        level = cap.input_dbm
+        if level is not None and cap.step.name not in worst:
+            worst[cap.step.name] = level
+    for name, level in worst.items():
+        if level > REFUSE_ABOVE_DBM:
+            msg = (f"step {name!r}: about {level:+.1f} dBm would reach the dongle's input (generator "
+                   f"{plan.generator_dbm:+.1f} dBm minus the attenuation); its input is damaged near "
+                   f"{DAMAGE_DBM:+.0f} dBm")
+            if not force:
+                raise UsageError(f"{plan.source}: {msg}. Add attenuation; --force only if you know the "
+                                 "real level is lower")
+            warnings.append(msg + " (forced)")
+        elif fs_dbm is not None and level > fs_dbm - CLIP_MARGIN_DB:
+            warnings.append(f"step {name!r}: about {level:+.1f} dBm at the input is within "
+                            f"{CLIP_MARGIN_DB:g} dB of full scale ({fs_dbm:+.1f} dBm): it will clip")
+        elif fs_dbm is None and level > UNKNOWN_CLIP_WARN_DBM:
+            warnings.append(f"step {name!r}: about {level:+.1f} dBm at the input may clip the dongle "
+                            "(give [dongle] full_scale_dbm, e.g. from a ladder check, for a firmer check)")
+    return warnings
+
+
+class _Progress:
+    """Progress of one capture on a stream: an updating line on a terminal, plain lines otherwise."""
+
+    def __init__(self, stream: TextIO | None):
+        self.stream = stream
+        self.tty = bool(stream is not None and hasattr(stream, "isatty") and stream.isatty())
+
+    def line(self, text: str) -> None:
+        if self.stream is not None:
+            self.stream.write(text + "\n")
+            self.stream.flush()
+
+    def update(self, label: str, done: int, total: int) -> None:
+        if self.tty and total:
+            self.stream.write(f"\r{label}: {100 * done / total:5.1f} %")
+            self.stream.flush()
+
+    def finish(self, label: str, text: str) -> None:
+        if self.stream is None:
+            return
+        if self.tty:
+            self.stream.write("\r\x1b[K")
+        self.line(f"{label}: {text}")
+
+
+def stdin_prompt(message: str) -> str:
+    """Show ``message`` on stderr and read one line from stdin (EOF -> UsageError)."""
+    sys.stderr.write(message)
+    sys.stderr.flush()
+    line = sys.stdin.readline() if sys.stdin is not None else ""
+    if not line:
+        raise UsageError("no operator at the terminal (standard input closed): use --yes for an "
+                         "unattended run")
+    return line.strip()
+
+
+@dataclass
+class SessionRun:
+    """What one run of a plan did."""
+
+    session_dir: Path
+    written: list[Path] = field(default_factory=list)
+    kept: list[Path] = field(default_factory=list)
+    skipped: list[str] = field(default_factory=list)
+    replaced: list[Path] = field(default_factory=list)
+    partial: Path | None = None
+    stopped: bool = False
+    warnings: list[str] = field(default_factory=list)
+
+
+class _Log:
+    def __init__(self, path: Path):
+        self.path = path
+
+    def __call__(self, message: str) -> None:
+        stamp = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+        with open(self.path, "a", encoding="utf-8") as f:
+            f.write(f"{stamp} {message}\n")
+
+
+def _write_new(path: Path, text: str) -> None:
+    """Write ``text`` to a new file atomically; never replaces an existing one."""
+    tmp = path.parent / f".{path.name}.{secrets.token_hex(4)}.tmp"
+    with open(tmp, "x", encoding="utf-8") as f:
+        f.write(text)
+        f.flush()
+        os.fsync(f.fileno())
+    try:
+        os.link(tmp, path)
+    except FileExistsError:
+        raise CaptureError(path, "already exists; not overwriting it") from None
+    finally:
+        tmp.unlink()
+
+
+def prepare_session(plan: Plan, session_dir) -> Path:
+    """Create the session folder or check that an existing one holds this plan; returns its path."""
+    session = Path(session_dir)
+    if session.exists() and not session.is_dir():
+        raise UsageError(f"{session}: exists and is not a folder")
+    session.mkdir(parents=True, exist_ok=True)
+    plan_copy = session / PLAN_NAME
+    if plan_copy.exists():
+        try:
+            old = plan_copy.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as exc:
+            raise UsageError(f"{plan_copy}: cannot read the session's plan: {exc}") from None
+        if old != plan.text:
+            raise UsageError(f"{plan_copy}: the session was made with a different plan than {plan.source}; "
+                             "a session holds one plan: choose a new --out folder")
+    else:
+        if any(session.glob("*" + META_SUFFIX)):
+            raise UsageError(f"{session}: holds recordings but no {PLAN_NAME}: not an rxbench session; "
+                             "choose a new --out folder")
+        _write_new(plan_copy, plan.text)
+    return session
+
+
+def _move_aside(session: Path, meta: Path) -> list[Path]:
+    """Move a recording into ``replaced/`` under a new name (never deleting anything)."""
+    folder = session / REPLACED_DIR
+    folder.mkdir(exist_ok=True)
+    meta_path, data_path = sigmf_paths(meta)
+    base = meta_path.name[: -len(META_SUFFIX)]
+    stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    for i in range(1000):
+        stem = f"{base}.{stamp}" + (f"-{i}" if i else "")
+        targets = [folder / (stem + p.name[len(base):]) for p in (meta_path, data_path)]
+        if not any(t.exists() for t in targets):
+            break
+    moved = []
+    for src, dst in zip((meta_path, data_path), targets):
+        if src.exists():
+            os.rename(src, dst)
+            moved.append(dst)
+    return moved
+
+
+def _instruction_text(plan: Plan, cap: PlannedCapture, total_steps: int) -> str:
+    s = cap.step
+    lines = [f"Step {s.index}/{total_steps} {s.name!r} ({s.role}, attenuator {s.attenuation_db:g} dB, "
+             f"{s.center_hz / 1e6:.6g} MHz, {s.duration_s:g} s x {s.repeats}):",
+             f"  {s.instruction}"]
+    if cap.role in TONE_ROLES:
+        tone_mhz = (s.center_hz + (cap.tone_offset_hz or 0.0)) / 1e6
+        if cap.generator_dbm is not None:
+            lines.append(f"  Generator: {cap.generator_dbm:+.1f} dBm at {tone_mhz:.6f} MHz -> about "
+                         f"{cap.input_dbm:+.1f} dBm at the dongle")
+        else:
+            lines.append(f"  Generator at {tone_mhz:.6f} MHz (level not in the plan: check it is safe)")
+    return "\n".join(lines)
+
+
+def run_session(
+    plan: Plan,
+    session_dir,
+    device: CaptureSource,
+    *,
+    yes: bool = False,
+    force: bool = False,
+    redo: Sequence[str] = (),
+    progress: TextIO | None = None,
+    prompt: Callable[[str], str] | None = None,
+) -> SessionRun:
+    """Run ``plan`` into ``session_dir`` with ``device``; see :func:`run_plan`. Returns a SessionRun."""
+    for name in redo:
+        plan.step_named(name)  # PlanError naming the plan for an unknown step
+    warnings = list(plan.warnings) + check_levels(plan, force=force)
+    session = prepare_session(plan, session_dir)
+    run = SessionRun(session, warnings=warnings)
+    log = _Log(session / LOG_NAME)
+    show = _Progress(progress)
+    ask = prompt or stdin_prompt
+    captures = plan.expand()
+    log(f"run of {plan.source} with device {device.name}"
+        + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
+    for w in warnings:
+        log(f"warning: {w}")
+
+    # What is already there, and what --redo moves aside.
+    todo: list[PlannedCapture] = []
+    for cap in captures:
+        meta = session / (cap.base_name + META_SUFFIX)
+        if meta.exists() or sigmf_paths(meta)[1].exists():
+            if cap.step.name in redo:
+                moved = _move_aside(session, meta)
+                run.replaced.extend(moved)
+                log(f"moved {cap.base_name} to {REPLACED_DIR}/ to capture it again")
+            else:
+                if not meta.exists():
+                    raise CaptureError(sigmf_paths(meta)[1], "a recording's data has no metadata beside it: "
+                                                             "move it away before resuming")
+                run.kept.append(meta)
+                continue
+        todo.append(cap)
+    if run.kept:
+        show.line(f"resuming {session}: {len(run.kept)} capture(s) already there are kept")
+    if not todo:
+        log("nothing to capture: every capture of the plan is in the session")
+        return run
+
+    n_steps = len(plan.steps)
+    device.open()
+    try:
+        skipping: str | None = None
+        announced: set[str] = set()
+        for cap in todo:
+            name = cap.step.name
+            if skipping == name:
+                continue
+            if name not in announced:
+                announced.add(name)
+                text = _instruction_text(plan, cap, n_steps)
+                if yes:
+                    show.line(text)
+                else:
+                    answer = ask(text + "\n  Enter: capture   s: skip this step   q: stop here > ").lower()
+                    if answer in ("q", "quit", "stop"):
+                        log(f"operator stopped before {cap.base_name}")
+                        run.stopped = True
+                        break
+                    if answer in ("s", "skip"):
+                        log(f"operator skipped step {name}")
+                        run.skipped.append(name)
+                        skipping = name
+                        continue
+            meta = _capture_one(plan, cap, session, device, show, log, run)
+            run.written.append(meta)
+    finally:
+        device.close()
+    log("run finished" + (" (stopped by the operator)" if run.stopped else ""))
+    return run
+
+
+def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
+                 show: _Progress, log: _Log, run: SessionRun) -> Path:
+    settings = plan.dongle
+    device.arrange(cap)
+    applied = device.configure(settings, cap.center_hz)
+    rate = applied.sample_rate_hz
+    # Every capture starts with a settling discard: the first samples after a retune or gain change,
+    # and after (re)starting the stream, are not representative.
+    settle_bytes = round_up_512(settings.settle_s * rate * 2) if settings.settle_s > 0 else 0
+    total = round_up_512(math.ceil(cap.duration_s * rate) * 2)
+    label = f"{cap.number:02d} {cap.step.name}" + (f" #{cap.repeat}" if cap.step.repeats > 1 else "")
+    done = 0
+    while done < settle_bytes:
+        n = min(CHUNK_BYTES, settle_bytes - done)
+        device.read_bytes(n)
+        done += n
+    dropped_before = device.dropped_bytes
+    extra = {
+        _extra(keys.ROLE): cap.role,
+        _extra(keys.STEP): cap.step.name,
+        "repeat": cap.repeat,
+        _extra(keys.ATTENUATION_DB): cap.attenuation_db,
+        _extra(keys.GAIN_DB): applied.gain_db,
+        "with_dut": cap.with_dut,
+        _extra(keys.PPM): settings.ppm,
+        _extra(keys.SIMULATED): device.name == "simulated",
+    }
+    if cap.generator_dbm is not None:
+        extra[_extra(keys.GENERATOR_DBM)] = cap.generator_dbm
+    if cap.tone_offset_hz is not None:
+        extra["tone_offset_hz"] = cap.tone_offset_hz
+    if cap.enr_db is not None:
+        extra[_extra(keys.ENR_DB)] = cap.enr_db
+    if settings.direct_sampling != "off":
+        extra["direct_sampling"] = settings.direct_sampling
+    if settings.upconverter_hz:
+        extra["upconverter_hz"] = settings.upconverter_hz
+    writer = SigmfWriter(session / cap.base_name, sample_rate_hz=rate, datatype="cu8", center_hz=applied.center_hz,
+                         description=cap.step.instruction, extra=extra)
+    done = 0
+    try:
+        while done < total:
+            n = min(CHUNK_BYTES, total - done)
+            writer.write(device.read_bytes(n))
+            done += n
+            show.update(label, done, total)
+        dropped = (device.dropped_bytes - dropped_before) // 2
+        meta = writer.commit({_extra(keys.DROPPED_SAMPLES): dropped})
+    except BaseException as exc:
+        dropped = (device.dropped_bytes - dropped_before) // 2
+        kept = writer.abandon(keep_partial=True)
+        run.partial = kept
+        what = "interrupted" if isinstance(exc, KeyboardInterrupt) else f"failed ({exc})"
+        where = f"; partial kept as {kept.name} (marked incomplete)" if kept else "; nothing kept"
+        log(f"{cap.base_name}: {what} after {done // 2} samples{where}")
+        show.finish(label, what + where)
+        raise
+    n_samples = total // 2
+    msg = f"{n_samples} samples at {rate:g} Hz, {applied.center_hz / 1e6:.6g} MHz, gain {applied.gain_db:g} dB"
+    if dropped:
+        w = (f"{cap.base_name}: {dropped} samples were dropped during the capture (USB too slow?); the "
+             "recording has gaps: lower the sample rate or capture again with --redo")
+        run.warnings.append(w)
+        log(f"warning: {w}")
+    log(f"{cap.base_name}: written ({msg}, {dropped} dropped)")
+    show.finish(label, f"written {meta.name} ({n_samples / rate:.2f} s)")
+    return meta
+
+
+def run_plan(
+    plan: Plan,
+    session_dir,
+    device: CaptureSource,
+    *,
+    yes: bool = False,
+    force: bool = False,
+    redo: Sequence[str] = (),
+    progress: TextIO | None = None,
+    prompt: Callable[[str], str] | None = None,
+) -> list[Path]:
+    """Run ``plan`` into the session folder ``session_dir`` and return the metadata paths written.
+
+    Parameters
+    ----------
+    plan : Plan
+        A validated plan (:func:`bench.plan.load_plan` / :func:`bench.plan.parse_plan`).
+    session_dir : path
+        Created if missing; an existing session of the same plan is resumed (captures already there
+        are kept and skipped); one of another plan is refused.
+    device : CaptureSource
+        A :class:`bench.device.RtlSdrSource` or :class:`bench.simulated.SimulatedBench`, not yet open;
+        it is opened and closed here.
+    yes : bool
+        Unattended: show each step's instruction but do not wait for the operator.
+    force : bool
+        Capture even where the estimated input level is above :data:`REFUSE_ABOVE_DBM`.
+    redo : sequence of str
+        Step names to capture again; their earlier recordings are moved to ``replaced/``.
+    progress : text stream, optional
+        Where progress goes (stderr from the command line); None for silence.
+    prompt : callable, optional
+        Asks the operator (message -> reply); default reads stdin, prompting on stderr.
+
+    Raises
+    ------
+    UsageError, PlanError, DeviceError, CaptureError
+        Refused levels, a session of another plan, unknown --redo steps, dongle failures.
+    KeyboardInterrupt
+        After keeping the interrupted capture as a ``.partial`` recording marked incomplete.
+    """
+    return run_session(plan, session_dir, device, yes=yes, force=force, redo=redo, progress=progress,
+                       prompt=prompt).written
+
+
+__all__ = ["run_plan", "run_session", "check_levels", "prepare_session", "SessionRun", "CAUTIONS", "PlanError"]

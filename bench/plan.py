@@ -1,0 +1,519 @@
+"""Measurement plans: a TOML file that says what to capture, in what order, and what to tell the operator.
+
+A plan is data, never code: it is parsed with :mod:`tomllib` and every field is checked against the
+schema below. An error names the file, the line and the field, and repeats the value received.
+
+Schema (every quantity carries its unit in its name)::
+
+    title = "Direct loss of the band-pass filter"      # optional
+    description = "..."                                # optional
+
+    [dongle]                 # required
+    sample_rate_hz = 250000  # 225001-300000 or 900001-3200000 (what the RTL2832U accepts)
+    gain_db = 30.0           # fixed tuner gain; automatic gain is never used
+    ppm = 0                  # frequency correction, whole ppm
+    direct_sampling = "off"  # "off", "i" or "q" (HF through the ADC input, no tuner)
+    upconverter_hz = 0       # an upconverter in front: the dongle tunes to center_hz + this
+    bias_tee = false         # DC on the antenna input: only when something there needs it
+    settle_s = 0.1           # discarded after every retune or gain change
+    full_scale_dbm = -40.0   # optional: input level that reaches full scale at this gain
+
+    [generator]              # optional: a signal generator's tone
+    level_dbm = -30.0        # its output level, when known (the input-level guard uses it)
+    offset_hz = 10000        # tone frequency minus the dongle's centre frequency
+
+    [noise_source]           # optional: needed by hot/cold steps
+    enr_db = 15.0            # excess noise ratio; or a table:
+    # enr_table = [[26e6, 15.3], [30e6, 15.1]]     # [frequency_hz, enr_db] rows, ascending
+
+    [defaults]               # optional: values every step takes unless it gives its own
+    center_hz = 28.4e6
+    duration_s = 0.5
+    repeats = 1
+    attenuation_db = 0
+
+    [[step]]                 # one or more, captured in order
+    name = "thru"            # unique; letters, digits, '-', '_', '.'; used in file names
+    role = "thru"            # thru, dut, step, hot, cold, antenna or load
+    attenuation_db = 60      # the step attenuator's setting (nominal), dB
+    center_hz = 28.4e6       # the dongle's centre frequency (the RF frequency with an upconverter)
+    duration_s = 0.5
+    repeats = 1
+    with_dut = false         # the DUT is in the path (implied by role "dut")
+    instruction = "Connect the generator through the attenuator and a thru adapter."
+
+:func:`Plan.expand` turns the steps into the concrete captures, one per repeat.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from bench.errors import PlanError
+from bench.keys import ROLES
+
+#: Sample rates the RTL2832U accepts (Hz): (low, high] intervals, as librtlsdr checks them.
+VALID_RATE_RANGES_HZ = ((225_000.0, 300_000.0), (900_000.0, 3_200_000.0))
+#: Above this rate USB transfers commonly start to lose samples (common practice).
+RELIABLE_RATE_HZ = 2_400_000.0
+#: Roles whose input is the signal generator's tone.
+TONE_ROLES = ("thru", "dut", "step")
+#: Roles whose input is the noise source.
+NOISE_SOURCE_ROLES = ("hot", "cold")
+#: Lowest frequency most dongle tuners reach without direct sampling or an upconverter, Hz
+#: (about 24 MHz for the common R820T-family tuners; from memory).
+TUNER_LOW_HZ = 24e6
+#: Highest useful frequency in direct sampling: the Nyquist frequency of the 28.8 MHz ADC clock.
+DIRECT_SAMPLING_HIGH_HZ = 14.4e6
+
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+
+_DEFAULT_INSTRUCTIONS = {
+    "thru": "Connect the generator through the step attenuator ({att}) and a thru adapter to the dongle.",
+    "dut": "Insert the device under test between the step attenuator ({att}) and the dongle.",
+    "step": "Set the step attenuator to {att}; generator -> attenuator -> thru -> dongle.",
+    "hot": "Connect the noise source{dut} to the dongle and switch it ON.",
+    "cold": "Connect the noise source{dut} to the dongle and switch it OFF.",
+    "antenna": "Connect the antenna{dut} to the dongle (attenuator at {att}).",
+    "load": "Replace the antenna by a 50-ohm load{dut} on the dongle's input.",
+}
+
+
+@dataclass(frozen=True)
+class DongleSettings:
+    """How the dongle is set up for the whole plan."""
+
+    sample_rate_hz: float
+    gain_db: float
+    ppm: int = 0
+    direct_sampling: str = "off"
+    upconverter_hz: float = 0.0
+    bias_tee: bool = False
+    settle_s: float = 0.1
+    full_scale_dbm: float | None = None
+
+
+@dataclass(frozen=True)
+class Step:
+    """One step of a plan, as written (defaults applied)."""
+
+    index: int  # 1-based, in plan order
+    name: str
+    role: str
+    attenuation_db: float
+    center_hz: float
+    duration_s: float
+    repeats: int
+    instruction: str
+    with_dut: bool
+    line: int  # line of the step's [[step]] header
+
+
+@dataclass(frozen=True)
+class PlannedCapture:
+    """One concrete capture of a plan: a step at one repeat."""
+
+    number: int  # 1-based position in the session
+    step: Step
+    repeat: int  # 1-based
+    base_name: str  # file name without suffix, unique in the session
+    generator_dbm: float | None  # nominal generator level (tone roles only)
+    tone_offset_hz: float | None  # tone minus centre frequency (tone roles only)
+    enr_db: float | None  # noise-source ENR at the centre frequency (hot/cold only)
+
+    @property
+    def role(self) -> str:
+        return self.step.role
+
+    @property
+    def center_hz(self) -> float:
+        return self.step.center_hz
+
+    @property
+    def attenuation_db(self) -> float:
+        return self.step.attenuation_db
+
+    @property
+    def duration_s(self) -> float:
+        return self.step.duration_s
+
+    @property
+    def with_dut(self) -> bool:
+        return self.step.with_dut
+
+    @property
+    def input_dbm(self) -> float | None:
+        """Estimated tone level at the dongle's input (generator minus attenuation; the DUT's loss
+        is not counted, so the estimate errs high), or None when the generator level is unknown."""
+        if self.generator_dbm is None:
+            return None
+        return self.generator_dbm - self.attenuation_db
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A validated measurement plan."""
+
+    source: str  # file name (or label) the plan came from
+    text: str  # the TOML text, kept verbatim for the session's copy
+    title: str
+    description: str
+    dongle: DongleSettings
+    steps: tuple[Step, ...]
+    generator_dbm: float | None = None
+    tone_offset_hz: float = 10_000.0
+    enr_db: float | None = None
+    enr_table: tuple[tuple[float, float], ...] = ()
+    warnings: tuple[str, ...] = field(default=())
+
+    def step_named(self, name: str) -> Step:
+        for s in self.steps:
+            if s.name == name:
+                return s
+        known = ", ".join(s.name for s in self.steps)
+        raise PlanError(f"{self.source}: no step named {name!r} (the plan has: {known})")
+
+    def enr_at(self, frequency_hz: float) -> float | None:
+        """ENR (dB) at ``frequency_hz``: the table interpolated linearly, or the constant value.
+
+        Outside the table's range the nearest end value is used and :meth:`expand` records a warning.
+        """
+        if self.enr_table:
+            f = [r[0] for r in self.enr_table]
+            e = [r[1] for r in self.enr_table]
+            if frequency_hz <= f[0]:
+                return e[0]
+            if frequency_hz >= f[-1]:
+                return e[-1]
+            for i in range(1, len(f)):
+                if frequency_hz <= f[i]:
+                    w = (frequency_hz - f[i - 1]) / (f[i] - f[i - 1])
+                    return e[i - 1] + w * (e[i] - e[i - 1])
+        return self.enr_db
+
+    def expand(self) -> list[PlannedCapture]:
+        """The concrete captures, in order: each step once per repeat."""
+        out: list[PlannedCapture] = []
+        for step in self.steps:
+            for r in range(1, step.repeats + 1):
+                number = len(out) + 1
+                base = f"{number:02d}-{step.name}"
+                tone = step.role in TONE_ROLES
+                out.append(PlannedCapture(
+                    number=number,
+                    step=step,
+                    repeat=r,
+                    base_name=base,
+                    generator_dbm=self.generator_dbm if tone else None,
+                    tone_offset_hz=self.tone_offset_hz if tone else None,
+                    enr_db=self.enr_at(step.center_hz) if step.role in NOISE_SOURCE_ROLES else None,
+                ))
+        return out
+
+
+# ------------------------------------------------------------------------------------------------
+# Parsing
+
+
+class _Lines:
+    """Where keys sit in the TOML text, for error messages (tomllib gives no positions)."""
+
+    _HEADER = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_.\-\"' ]+?)\s*\]\]?\s*(#.*)?$")
+    _KEY = re.compile(r"^\s*([A-Za-z0-9_\-]+|\"[^\"]*\")\s*=")
+
+    def __init__(self, text: str):
+        self.tables: dict[tuple[str, int], tuple[int, dict[str, int]]] = {}
+        counts: dict[str, int] = {}
+        current = ("", 0)
+        self.tables[current] = (1, {})
+        for lineno, line in enumerate(text.splitlines(), start=1):
+            m = self._HEADER.match(line)
+            if m:
+                name = m.group(2).strip().strip("\"'")
+                if m.group(1) == "[[":
+                    counts[name] = counts.get(name, 0) + 1
+                    current = (name, counts[name])
+                else:
+                    current = (name, 0)
+                self.tables[current] = (lineno, {})
+                continue
+            k = self._KEY.match(line)
+            if k:
+                self.tables[current][1].setdefault(k.group(1).strip('"'), lineno)
+
+    def line(self, table: str, key: str | None = None, number: int = 0) -> int:
+        header, keys = self.tables.get((table, number), (1, {}))
+        if key is not None and key in keys:
+            return keys[key]
+        return header
+
+
+class _Checker:
+    def __init__(self, source: str, text: str):
+        self.source = source
+        self.lines = _Lines(text)
+
+    def fail(self, table: str, key: str | None, problem: str, number: int = 0, label: str | None = None):
+        line = self.lines.line(table, key, number)
+        where = label or (f"[{table}]" if table else "top level")
+        fieldname = f"{where} {key}" if key else where
+        raise PlanError(f"{self.source}, line {line}: {fieldname}: {problem}")
+
+    def known(self, table: str, data: dict, allowed: tuple[str, ...], number: int = 0, label=None):
+        for key in data:
+            if key not in allowed:
+                self.fail(table, key, f"unknown field (known fields: {', '.join(allowed)})", number, label)
+
+    def number(self, table, data, key, *, default=None, required=False, low=None, high=None,
+               low_open=False, integer=False, number=0, label=None):
+        if key not in data:
+            if required:
+                self.fail(table, None, f"missing required field {key!r}", number, label)
+            return default
+        value = data[key]
+        kind = "a whole number" if integer else "a number"
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or (integer and not isinstance(value, int)):
+            self.fail(table, key, f"must be {kind}, got {value!r}", number, label)
+        if not math.isfinite(value):
+            self.fail(table, key, f"must be finite, got {value!r}", number, label)
+        if low is not None and (value <= low if low_open else value < low):
+            self.fail(table, key, f"must be {'>' if low_open else '>='} {low:g}, got {value!r}", number, label)
+        if high is not None and value > high:
+            self.fail(table, key, f"must be <= {high:g}, got {value!r}", number, label)
+        return int(value) if integer else float(value)
+
+    def string(self, table, data, key, *, default=None, choices=None, number=0, label=None):
+        if key not in data:
+            return default
+        value = data[key]
+        if not isinstance(value, str):
+            self.fail(table, key, f"must be a string, got {value!r}", number, label)
+        if choices is not None and value not in choices:
+            self.fail(table, key, f"must be one of {', '.join(choices)}; got {value!r}", number, label)
+        return value
+
+    def boolean(self, table, data, key, *, default=False, number=0, label=None):
+        if key not in data:
+            return default
+        value = data[key]
+        if not isinstance(value, bool):
+            self.fail(table, key, f"must be true or false, got {value!r}", number, label)
+        return value
+
+    def table(self, data: dict, key: str, required=False) -> dict:
+        if key not in data:
+            if required:
+                self.fail("", None, f"missing required table [{key}]")
+            return {}
+        value = data[key]
+        if not isinstance(value, dict):
+            self.fail("", key, f"must be a table ([{key}]), got {value!r}")
+        return value
+
+
+_TOP = ("title", "description", "dongle", "generator", "noise_source", "defaults", "step")
+_DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_hz", "bias_tee",
+           "settle_s", "full_scale_dbm")
+_GENERATOR = ("level_dbm", "offset_hz")
+_NOISE = ("enr_db", "enr_table")
+_STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
+_STEP = ("name", "role", "instruction") + _STEP_COMMON
+
+
+def _valid_rate(rate_hz: float) -> bool:
+    return any(lo < rate_hz <= hi for lo, hi in VALID_RATE_RANGES_HZ)
+
+
+def parse_plan(text: str, name: str = "<plan>") -> Plan:
+    """Parse and validate a plan's TOML text; ``name`` (usually the file name) labels errors.
+
+    Raises
+    ------
+    PlanError
+        Malformed TOML, an unknown or missing field, or a value out of range; the message names
+        ``name``, the line and the field.
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
+        if m:
+            msg = msg[: m.start()].strip()
+            raise PlanError(f"{name}, line {m.group(1)}: not valid TOML: {msg}") from None
+        raise PlanError(f"{name}: not valid TOML: {msg}") from None
+    c = _Checker(name, text)
+    c.known("", data, _TOP)
+    title = c.string("", data, "title", default="") or ""
+    description = c.string("", data, "description", default="") or ""
+    warnings: list[str] = []
+
+    d = c.table(data, "dongle", required=True)
+    c.known("dongle", d, _DONGLE)
+    rate = c.number("dongle", d, "sample_rate_hz", required=True, low=0, low_open=True)
+    if not _valid_rate(rate):
+        c.fail("dongle", "sample_rate_hz",
+               f"{rate:g} Hz is not a rate the dongle accepts (225001-300000 Hz or 900001-3200000 Hz)")
+    if rate > RELIABLE_RATE_HZ:
+        warnings.append(f"{name}: sample rate {rate:g} Hz is above {RELIABLE_RATE_HZ:g} Hz, where USB "
+                        "transfers commonly lose samples")
+    if "gain_db" in d and isinstance(d["gain_db"], str):
+        c.fail("dongle", "gain_db", f"must be a fixed gain in dB (automatic gain spoils comparisons), got {d['gain_db']!r}")
+    gain = c.number("dongle", d, "gain_db", required=True, low=0, high=60)
+    ppm = c.number("dongle", d, "ppm", default=0, integer=True, low=-500, high=500)
+    ds = c.string("dongle", d, "direct_sampling", default="off", choices=("off", "i", "q"))
+    up = c.number("dongle", d, "upconverter_hz", default=0.0, low=0)
+    if ds != "off" and up:
+        c.fail("dongle", "upconverter_hz", "direct sampling and an upconverter exclude each other")
+    dongle = DongleSettings(
+        sample_rate_hz=rate,
+        gain_db=gain,
+        ppm=ppm,
+        direct_sampling=ds,
+        upconverter_hz=up,
+        bias_tee=c.boolean("dongle", d, "bias_tee"),
+        settle_s=c.number("dongle", d, "settle_s", default=0.1, low=0, high=10),
+        full_scale_dbm=c.number("dongle", d, "full_scale_dbm", default=None, low=-150, high=20),
+    )
+    if dongle.bias_tee:
+        warnings.append(f"{name}: bias tee ON: DC is put on the antenna input; make sure what is "
+                        "connected there expects it (a generator, filter or attenuator can be damaged)")
+
+    g = c.table(data, "generator")
+    c.known("generator", g, _GENERATOR)
+    level = c.number("generator", g, "level_dbm", default=None, low=-200, high=60)
+    offset = c.number("generator", g, "offset_hz", default=10_000.0)
+    if abs(offset) >= rate / 2:
+        c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (+/-{rate / 2:g} Hz)")
+
+    ns = c.table(data, "noise_source")
+    c.known("noise_source", ns, _NOISE)
+    enr = c.number("noise_source", ns, "enr_db", default=None, low=-10, high=60)
+    enr_table: list[tuple[float, float]] = []
+    if "enr_table" in ns:
+        rows = ns["enr_table"]
+        bad = not isinstance(rows, list) or not rows
+        for row in rows if isinstance(rows, list) else ():
+            if (not isinstance(row, list) or len(row) != 2
+                    or not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in row)):
+                bad = True
+                break
+            enr_table.append((float(row[0]), float(row[1])))
+        if bad:
+            c.fail("noise_source", "enr_table", "must be a list of [frequency_hz, enr_db] pairs of numbers")
+        if any(b[0] <= a[0] for a, b in zip(enr_table, enr_table[1:])):
+            c.fail("noise_source", "enr_table", "frequencies must be strictly ascending")
+        if enr is not None:
+            c.fail("noise_source", "enr_table", "give enr_db or enr_table, not both")
+
+    defaults = c.table(data, "defaults")
+    c.known("defaults", defaults, _STEP_COMMON)
+
+    raw_steps = data.get("step")
+    if raw_steps is None:
+        c.fail("", None, "the plan has no steps (add one or more [[step]] tables)")
+    if not isinstance(raw_steps, list) or not all(isinstance(s, dict) for s in raw_steps):
+        c.fail("", "step", "must be written as [[step]] tables")
+    steps: list[Step] = []
+    seen: dict[str, int] = {}
+    for i, s in enumerate(raw_steps, start=1):
+        label = f"step {i}"
+        if isinstance(s.get("name"), str):
+            label = f"step {i} ({s['name']!r})"
+        kw = dict(number=i, label=label)
+        c.known("step", s, _STEP, **kw)
+        nm = c.string("step", s, "name", **kw)
+        if nm is None:
+            c.fail("step", None, "missing required field 'name'", **kw)
+        if not _NAME_RE.match(nm) or len(nm) > 64:
+            c.fail("step", "name", f"must be 1-64 letters, digits, '-', '_' or '.', starting with a letter "
+                                   f"or digit; got {nm!r}", **kw)
+        if nm in seen:
+            c.fail("step", "name", f"{nm!r} is already the name of step {seen[nm]}", **kw)
+        seen[nm] = i
+        role = c.string("step", s, "role", choices=ROLES, **kw)
+        if role is None:
+            c.fail("step", None, f"missing required field 'role' (one of {', '.join(ROLES)})", **kw)
+
+        def field_(key, **opts):
+            src = s if key in s else defaults
+            tbl, num, lab = ("step", i, label) if key in s else ("defaults", 0, None)
+            return c.number(tbl, src, key, number=num, label=lab, **opts)
+
+        att = field_("attenuation_db", default=0.0, low=0, high=200)
+        center = field_("center_hz", default=None, low=0, low_open=True, high=6e9)
+        if center is None:
+            c.fail("step", None, "missing required field 'center_hz' (in the step or in [defaults])", **kw)
+        duration = field_("duration_s", default=1.0, low=0, low_open=True, high=3600)
+        repeats = int(field_("repeats", default=1, integer=True, low=1, high=100))
+        with_dut_src = s if "with_dut" in s else defaults
+        with_dut = c.boolean("step" if "with_dut" in s else "defaults", with_dut_src, "with_dut",
+                             number=i if "with_dut" in s else 0, label=label if "with_dut" in s else None)
+        if role == "dut":
+            with_dut = True
+        instruction = c.string("step", s, "instruction", **kw)
+        if role in NOISE_SOURCE_ROLES and enr is None and not enr_table:
+            c.fail("step", "role", f"{role!r} needs the noise source's ENR: add [noise_source] enr_db "
+                                   "or enr_table", **kw)
+        if not instruction:
+            instruction = _DEFAULT_INSTRUCTIONS[role].format(
+                att=f"{att:g} dB", dut=" through the device under test" if with_dut else "")
+        n_samples = duration * rate
+        if n_samples < 16384:
+            c.fail("step", "duration_s", f"{duration:g} s at {rate:g} Hz is only {n_samples:.0f} samples; "
+                                         "take at least 16384", **kw)
+        line = c.lines.line("step", None, i)
+        steps.append(Step(i, nm, role, att, center, duration, repeats, instruction, with_dut, line))
+        tuned = center + dongle.upconverter_hz
+        if ds == "off" and tuned < TUNER_LOW_HZ:
+            warnings.append(f"{name}, line {line}: step {nm!r} tunes {tuned / 1e6:g} MHz, below what most "
+                            "tuners reach (about 24 MHz): use direct_sampling or an upconverter")
+        if ds != "off" and center > DIRECT_SAMPLING_HIGH_HZ:
+            warnings.append(f"{name}, line {line}: step {nm!r} at {center / 1e6:g} MHz is above the "
+                            f"{DIRECT_SAMPLING_HIGH_HZ / 1e6:g} MHz Nyquist limit of direct sampling (aliased)")
+        if enr_table and role in NOISE_SOURCE_ROLES and not enr_table[0][0] <= center <= enr_table[-1][0]:
+            warnings.append(f"{name}, line {line}: step {nm!r} at {center / 1e6:g} MHz is outside the ENR "
+                            "table; its end value is used")
+    if any(s.role in TONE_ROLES for s in steps) and level is None:
+        warnings.append(f"{name}: no [generator] level_dbm: the level at the dongle's input cannot be "
+                        "checked before capture")
+    return Plan(
+        source=name,
+        text=text,
+        title=title,
+        description=description,
+        dongle=dongle,
+        steps=tuple(steps),
+        generator_dbm=level,
+        tone_offset_hz=offset,
+        enr_db=enr,
+        enr_table=tuple(enr_table),
+        warnings=tuple(warnings),
+    )
+
+
+def load_plan(path) -> Plan:
+    """Read and validate a plan file; errors name the file (and the line and field)."""
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise PlanError(f"{p}: no such plan file") from None
+    except IsADirectoryError:
+        raise PlanError(f"{p}: is a folder, not a plan file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise PlanError(f"{p}: cannot read the plan: {exc}") from None
+    return parse_plan(text, str(p))
+
+
+#: Folder of the example plans shipped with rxbench.
+EXAMPLES_DIR = Path(__file__).parent / "data" / "plans"
+
+
+def example_plans() -> list[Path]:
+    """The example plan files shipped with rxbench, sorted by name."""
+    return sorted(EXAMPLES_DIR.glob("*.toml"))
