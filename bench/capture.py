@@ -5,12 +5,13 @@ A session is a folder holding:
 - one SigMF recording per capture, raw cu8 as the dongle delivers it, named ``NN-STEP`` (``NN`` the
   capture's position in the plan); its metadata carries, under the ``rxbench:`` extension namespace,
   ``role``, ``step``, ``repeat``, ``attenuation_db``, ``gain_db``, ``with_dut``, ``ppm``,
-  ``generator_dbm`` and ``tone_offset_hz`` (tone roles, when known), ``enr_db`` (hot/cold),
-  ``dropped_samples`` and ``simulated``; ``core:datetime`` is the capture's start;
+  ``generator_dbm`` and ``tone_offset_hz`` (tone roles, when known), ``enr_db`` and ``u_enr_db``
+  (hot/cold), ``attenuator_tolerance_db``, ``devices`` (a back-to-back pair: 2), ``dropped_samples``
+  and ``simulated``; ``core:datetime`` is the capture's start;
 - ``plan.toml``, the plan's text as it was run;
 - ``log.txt``, one timestamped line per event (appended, never rewritten);
 - ``NN-STEP.partial.sigmf-*``: what an interrupted capture had, marked ``rxbench:incomplete``;
-- ``replaced/``: earlier recordings of steps captured again with ``--redo`` (never deleted).
+- ``.replaced/``: earlier recordings of steps captured again with ``--redo`` (never deleted).
 
 Running a plan into an existing session resumes it: captures already there are kept and skipped.
 Nothing is ever overwritten, and nothing appears under a final name before it is complete.
@@ -35,7 +36,8 @@ from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 
 PLAN_NAME = "plan.toml"
 LOG_NAME = "log.txt"
-REPLACED_DIR = "replaced"
+#: Earlier recordings of steps captured again; a dot folder, so session readers pass it by.
+REPLACED_DIR = ".replaced"
 
 #: Damage level of a dongle's input, dBm (about +10 dBm; from memory, common practice).
 DAMAGE_DBM = 10.0
@@ -244,70 +246,68 @@ def run_session(
     for name in redo:
         plan.step_named(name)  # PlanError naming the plan for an unknown step
     warnings = list(plan.warnings) + check_levels(plan, force=force)
-    session = prepare_session(plan, session_dir)
-    run = SessionRun(session, warnings=warnings)
+    device.open()
+    try:
+        session = prepare_session(plan, session_dir)
+        run = SessionRun(session, warnings=warnings)
+        _run_captures(plan, session, device, run, yes=yes, redo=redo, show=_Progress(progress),
+                      ask=prompt or stdin_prompt)
+    finally:
+        device.close()
+    return run
+
+
+def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, *, yes: bool,
+                  redo: Sequence[str], show: _Progress, ask: Callable[[str], str]) -> None:
     log = _Log(session / LOG_NAME)
-    show = _Progress(progress)
-    ask = prompt or stdin_prompt
-    captures = plan.expand()
     log(f"run of {plan.source} with device {device.name}"
         + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
-    for w in warnings:
+    for w in run.warnings:
         log(f"warning: {w}")
-
-    # What is already there, and what --redo moves aside.
-    todo: list[PlannedCapture] = []
-    for cap in captures:
+    todo: list[tuple[PlannedCapture, bool]] = []  # (capture, an earlier recording must move aside)
+    for cap in plan.expand():
         meta = session / (cap.base_name + META_SUFFIX)
-        if meta.exists() or sigmf_paths(meta)[1].exists():
-            if cap.step.name in redo:
-                moved = _move_aside(session, meta)
-                run.replaced.extend(moved)
-                log(f"moved {cap.base_name} to {REPLACED_DIR}/ to capture it again")
-            else:
-                if not meta.exists():
-                    raise CaptureError(sigmf_paths(meta)[1], "a recording's data has no metadata beside it: "
-                                                             "move it away before resuming")
-                run.kept.append(meta)
-                continue
-        todo.append(cap)
+        there = meta.exists() or sigmf_paths(meta)[1].exists()
+        if there and cap.step.name not in redo:
+            if not meta.exists():
+                raise CaptureError(sigmf_paths(meta)[1], "a recording's data has no metadata beside it: "
+                                                         "move it away before resuming")
+            run.kept.append(meta)
+            continue
+        todo.append((cap, there))
     if run.kept:
         show.line(f"resuming {session}: {len(run.kept)} capture(s) already there are kept")
     if not todo:
         log("nothing to capture: every capture of the plan is in the session")
-        return run
-
+        return
     n_steps = len(plan.steps)
-    device.open()
-    try:
-        skipping: str | None = None
-        announced: set[str] = set()
-        for cap in todo:
-            name = cap.step.name
-            if skipping == name:
-                continue
-            if name not in announced:
-                announced.add(name)
-                text = _instruction_text(plan, cap, n_steps)
-                if yes:
-                    show.line(text)
-                else:
-                    answer = ask(text + "\n  Enter: capture   s: skip this step   q: stop here > ").lower()
-                    if answer in ("q", "quit", "stop"):
-                        log(f"operator stopped before {cap.base_name}")
-                        run.stopped = True
-                        break
-                    if answer in ("s", "skip"):
-                        log(f"operator skipped step {name}")
-                        run.skipped.append(name)
-                        skipping = name
-                        continue
-            meta = _capture_one(plan, cap, session, device, show, log, run)
-            run.written.append(meta)
-    finally:
-        device.close()
+    skipping: str | None = None
+    announced: set[str] = set()
+    for cap, move in todo:
+        name = cap.step.name
+        if skipping == name:
+            continue
+        if name not in announced:
+            announced.add(name)
+            text = _instruction_text(plan, cap, n_steps)
+            if yes:
+                show.line(text)
+            else:
+                answer = ask(text + "\n  Enter: capture   s: skip this step   q: stop here > ").lower()
+                if answer in ("q", "quit", "stop"):
+                    log(f"operator stopped before {cap.base_name}")
+                    run.stopped = True
+                    break
+                if answer in ("s", "skip"):
+                    log(f"operator skipped step {name}")
+                    run.skipped.append(name)
+                    skipping = name
+                    continue
+        if move:  # --redo: the earlier recording goes aside only now, just before its replacement
+            run.replaced.extend(_move_aside(session, session / (cap.base_name + META_SUFFIX)))
+            log(f"moved the earlier {cap.base_name} to {REPLACED_DIR}/ to capture it again")
+        run.written.append(_capture_one(plan, cap, session, device, show, log, run))
     log("run finished" + (" (stopped by the operator)" if run.stopped else ""))
-    return run
 
 
 def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
@@ -343,6 +343,12 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         extra["tone_offset_hz"] = cap.tone_offset_hz
     if cap.enr_db is not None:
         extra[_extra(keys.ENR_DB)] = cap.enr_db
+    if cap.u_enr_db is not None:
+        extra["u_enr_db"] = cap.u_enr_db
+    if cap.attenuator_tolerance_db is not None:
+        extra["attenuator_tolerance_db"] = cap.attenuator_tolerance_db
+    if cap.step.devices != 1:
+        extra["devices"] = cap.step.devices
     if settings.direct_sampling != "off":
         extra["direct_sampling"] = settings.direct_sampling
     if settings.upconverter_hz:
@@ -407,7 +413,7 @@ def run_plan(
     force : bool
         Capture even where the estimated input level is above :data:`REFUSE_ABOVE_DBM`.
     redo : sequence of str
-        Step names to capture again; their earlier recordings are moved to ``replaced/``.
+        Step names to capture again; their earlier recordings are moved to ``.replaced/``.
     progress : text stream, optional
         Where progress goes (stderr from the command line); None for silence.
     prompt : callable, optional

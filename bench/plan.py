@@ -22,9 +22,13 @@ Schema (every quantity carries its unit in its name)::
     level_dbm = -30.0        # its output level, when known (the input-level guard uses it)
     offset_hz = 10000        # tone frequency minus the dongle's centre frequency
 
+    [attenuator]             # optional
+    tolerance_db = 0.3       # the step attenuator's stated accuracy (per setting), dB
+
     [noise_source]           # optional: needed by hot/cold steps
     enr_db = 15.0            # excess noise ratio; or a table:
     # enr_table = [[26e6, 15.3], [30e6, 15.1]]     # [frequency_hz, enr_db] rows, ascending
+    u_enr_db = 0.2           # standard uncertainty of the ENR, dB (from its calibration)
 
     [defaults]               # optional: values every step takes unless it gives its own
     center_hz = 28.4e6
@@ -40,6 +44,7 @@ Schema (every quantity carries its unit in its name)::
     duration_s = 0.5
     repeats = 1
     with_dut = false         # the DUT is in the path (implied by role "dut")
+    devices = 1              # identical devices in series (2 for a back-to-back pair)
     instruction = "Connect the generator through the attenuator and a thru adapter."
 
 :func:`Plan.expand` turns the steps into the concrete captures, one per repeat.
@@ -111,6 +116,7 @@ class Step:
     instruction: str
     with_dut: bool
     line: int  # line of the step's [[step]] header
+    devices: int = 1  # identical devices in series (back-to-back pair: 2)
 
 
 @dataclass(frozen=True)
@@ -124,6 +130,8 @@ class PlannedCapture:
     generator_dbm: float | None  # nominal generator level (tone roles only)
     tone_offset_hz: float | None  # tone minus centre frequency (tone roles only)
     enr_db: float | None  # noise-source ENR at the centre frequency (hot/cold only)
+    u_enr_db: float | None = None  # its standard uncertainty (hot/cold only, when given)
+    attenuator_tolerance_db: float | None = None  # the attenuator's stated accuracy, when given
 
     @property
     def role(self) -> str:
@@ -168,6 +176,8 @@ class Plan:
     tone_offset_hz: float = 10_000.0
     enr_db: float | None = None
     enr_table: tuple[tuple[float, float], ...] = ()
+    u_enr_db: float | None = None
+    attenuator_tolerance_db: float | None = None
     warnings: tuple[str, ...] = field(default=())
 
     def step_named(self, name: str) -> Step:
@@ -211,6 +221,8 @@ class Plan:
                     generator_dbm=self.generator_dbm if tone else None,
                     tone_offset_hz=self.tone_offset_hz if tone else None,
                     enr_db=self.enr_at(step.center_hz) if step.role in NOISE_SOURCE_ROLES else None,
+                    u_enr_db=self.u_enr_db if step.role in NOISE_SOURCE_ROLES else None,
+                    attenuator_tolerance_db=self.attenuator_tolerance_db,
                 ))
         return out
 
@@ -315,13 +327,14 @@ class _Checker:
         return value
 
 
-_TOP = ("title", "description", "dongle", "generator", "noise_source", "defaults", "step")
+_TOP = ("title", "description", "dongle", "generator", "attenuator", "noise_source", "defaults", "step")
 _DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_hz", "bias_tee",
            "settle_s", "full_scale_dbm")
 _GENERATOR = ("level_dbm", "offset_hz")
-_NOISE = ("enr_db", "enr_table")
+_NOISE = ("enr_db", "enr_table", "u_enr_db")
+_ATTENUATOR = ("tolerance_db",)
 _STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
-_STEP = ("name", "role", "instruction") + _STEP_COMMON
+_STEP = ("name", "role", "instruction", "devices") + _STEP_COMMON
 
 
 def _valid_rate(rate_hz: float) -> bool:
@@ -390,9 +403,14 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     if abs(offset) >= rate / 2:
         c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (+/-{rate / 2:g} Hz)")
 
+    at = c.table(data, "attenuator")
+    c.known("attenuator", at, _ATTENUATOR)
+    tolerance = c.number("attenuator", at, "tolerance_db", default=None, low=0, high=20)
+
     ns = c.table(data, "noise_source")
     c.known("noise_source", ns, _NOISE)
     enr = c.number("noise_source", ns, "enr_db", default=None, low=-10, high=60)
+    u_enr = c.number("noise_source", ns, "u_enr_db", default=None, low=0, high=10)
     enr_table: list[tuple[float, float]] = []
     if "enr_table" in ns:
         rows = ns["enr_table"]
@@ -456,6 +474,9 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         if role == "dut":
             with_dut = True
         instruction = c.string("step", s, "instruction", **kw)
+        devices = c.number("step", s, "devices", default=1, integer=True, low=1, high=100, **kw)
+        if devices != 1 and role != "dut":
+            c.fail("step", "devices", f"only a 'dut' step holds devices in series; this one is {role!r}", **kw)
         if role in NOISE_SOURCE_ROLES and enr is None and not enr_table:
             c.fail("step", "role", f"{role!r} needs the noise source's ENR: add [noise_source] enr_db "
                                    "or enr_table", **kw)
@@ -467,7 +488,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
             c.fail("step", "duration_s", f"{duration:g} s at {rate:g} Hz is only {n_samples:.0f} samples; "
                                          "take at least 16384", **kw)
         line = c.lines.line("step", None, i)
-        steps.append(Step(i, nm, role, att, center, duration, repeats, instruction, with_dut, line))
+        steps.append(Step(i, nm, role, att, center, duration, repeats, instruction, with_dut, line, devices))
         tuned = center + dongle.upconverter_hz
         if ds == "off" and tuned < TUNER_LOW_HZ:
             warnings.append(f"{name}, line {line}: step {nm!r} tunes {tuned / 1e6:g} MHz, below what most "
@@ -492,6 +513,8 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         tone_offset_hz=offset,
         enr_db=enr,
         enr_table=tuple(enr_table),
+        u_enr_db=u_enr,
+        attenuator_tolerance_db=tolerance,
         warnings=tuple(warnings),
     )
 

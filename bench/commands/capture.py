@@ -1,0 +1,78 @@
+"""``rxbench capture PLAN --out SESSION``: run a measurement plan with the dongle (or the simulated
+bench) into a session folder, prompting the operator at each step."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from bench.capture import CAUTIONS, run_session
+from bench.device import open_source
+from bench.errors import UsageError
+from bench.output import add_json_option, emit
+from bench.plan import load_plan
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "capture",
+        help="run a measurement plan into a session folder (dongle or simulated bench)",
+        description=(
+            "Run a measurement plan (TOML) step by step: tell the operator what to connect, capture "
+            "each step as a SigMF recording with its role and settings, and keep a copy of the plan "
+            "and a log. Re-running into the same folder resumes it. " + CAUTIONS
+        ),
+    )
+    p.add_argument("plan", metavar="PLAN", help="the plan file (TOML)")
+    p.add_argument("--out", required=True, metavar="SESSION", help="session folder (created, or resumed)")
+    p.add_argument("--device", choices=("rtlsdr", "simulated"), default="rtlsdr",
+                   help="capture from an RTL2832U dongle (default) or from the simulated bench")
+    p.add_argument("--device-index", type=int, default=0, metavar="N", help="which dongle, when several are attached")
+    p.add_argument("--seed", type=int, default=None, metavar="N",
+                   help="noise seed of the simulated bench (default: a fresh one each run)")
+    p.add_argument("--yes", action="store_true",
+                   help="unattended: do not wait for the operator at each step (nothing needs moving)")
+    p.add_argument("--force", action="store_true",
+                   help="capture even where the plan's levels would put more than 0 dBm into the dongle")
+    p.add_argument("--redo", action="append", default=[], metavar="STEP",
+                   help="capture this step again (repeatable); its earlier recordings are kept aside")
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.device_index < 0:
+        raise UsageError(f"--device-index must be >= 0, got {args.device_index}")
+    plan = load_plan(args.plan)
+    device = open_source(args.device, device_index=args.device_index, seed=args.seed)
+    sys.stderr.write(CAUTIONS + "\n")
+    if plan.title:
+        sys.stderr.write(f"Plan: {plan.title}\n")
+    result = run_session(plan, args.out, device, yes=args.yes, force=args.force, redo=tuple(args.redo),
+                         progress=sys.stderr)
+    out = {
+        "session": str(result.session_dir),
+        "plan": str(plan.source),
+        "device": device.name,
+        "written": [str(p) for p in result.written],
+        "kept": [str(p) for p in result.kept],
+        "replaced": [str(p) for p in result.replaced],
+        "skipped_steps": list(result.skipped),
+        "stopped": result.stopped,
+        "complete": not result.stopped and not result.skipped,
+        "warnings": list(result.warnings),
+        "cautions": CAUTIONS,
+    }
+    lines = [f"session {result.session_dir}: {len(result.written)} capture(s) written, "
+             f"{len(result.kept)} kept from before"]
+    if result.replaced:
+        lines.append(f"  earlier recordings of the redone steps are in {result.session_dir}/.replaced/")
+    if result.skipped:
+        lines.append(f"  skipped steps: {', '.join(result.skipped)} (run again to capture them)")
+    if result.stopped:
+        lines.append("  stopped before the end: run the same command again to resume")
+    if out["complete"]:
+        lines.append(f"  next: rxbench analyze {result.session_dir}")
+    lines.append(CAUTIONS)
+    emit(args, out, "\n".join(lines), result.warnings)
+    return 0
