@@ -1,0 +1,122 @@
+"""``rxbench ladder --step DB=C ...``: check each attenuator step, and the dongle's linear range.
+
+The numerics are :func:`dsp.ladder.check_ladder`; reading the captures alike is shared with
+``rxbench loss``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+
+from bench.commands.loss import CAUTION, parse_step, read_tones, tone_db
+from bench.errors import MeasurementError, UsageError
+from bench.output import add_json_option, emit, fmt_db
+from bench.recordings import add_capture_options
+from dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "ladder", help="check the attenuator steps and the dongle's linear range",
+        description="Thru captures at known attenuator settings: the error of each step against its "
+                    "nominal value (referenced so that one bad step cannot pollute the others), where the "
+                    "dongle compresses at the top and sinks into noise at the bottom, and its usable "
+                    "linear range.",
+        epilog=CAUTION)
+    p.add_argument("--step", action="append", default=[], metavar="DB=CAPTURE",
+                   help="thru capture with the attenuator at DB (repeat; at least 3 steps)")
+    p.add_argument("--tolerance-db", type=float, default=DEFAULT_TOLERANCE_DB, metavar="DB",
+                   help="flag a step whose error exceeds this, dB (default %(default)g)")
+    p.add_argument("--linearity-db", type=float, default=DEFAULT_LINEARITY_DB, metavar="DB",
+                   help="shortfall at the top that counts as compression, dB (default %(default)g)")
+    p.add_argument("--reference-step", type=float, metavar="DB",
+                   help="reference the errors to this step instead of the median of the linear steps")
+    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
+    add_capture_options(p)
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+def _signed(value: float) -> str:
+    return f"{value:+.2f}" if math.isfinite(value) else "n/a"
+
+
+def _steps_text(values) -> str:
+    return ", ".join(f"{v:g}" for v in values) + " dB"
+
+
+def run(args: argparse.Namespace) -> int:
+    if len(args.step) < 3:
+        raise UsageError(f"a ladder check needs at least 3 --step DB=CAPTURE, got {len(args.step)}")
+    for name in ("tolerance_db", "linearity_db"):
+        v = getattr(args, name)
+        if not (math.isfinite(v) and v >= 0) or (name == "tolerance_db" and v == 0):
+            raise UsageError(f"--{name.replace('_', '-')} must be a finite number "
+                             f"{'> 0' if name == 'tolerance_db' else '>= 0'}, got {v}")
+    steps = sorted((parse_step(s, args) for s in args.step), key=lambda s: s[0])
+    dbs = [db for db, _ in steps]
+    if len(set(dbs)) != len(dbs):
+        raise UsageError(f"--step: each attenuator setting may appear once, got {dbs}")
+    readings, warnings = read_tones([cap for _, cap in steps], args)
+    values = [tone_db(r) for r in readings]
+    try:
+        c = check_ladder(dbs, [v[0] for v in values], [v[1] for v in values], tolerance_db=args.tolerance_db,
+                         linearity_db=args.linearity_db, reference_db=args.reference_step)
+    except ValueError as exc:
+        raise MeasurementError(f"ladder check: {exc}") from None
+    # check_ladder sorts by nominal; the steps are sorted already, so c.order is the identity
+    compressed = [db for db, reg in zip(c.nominal_db, c.region) if reg == COMPRESSED]
+    noisy = [db for db, reg in zip(c.nominal_db, c.region) if reg == NOISE_LIMITED]
+    if compressed:
+        warnings.append(f"step(s) {_steps_text(compressed)}: the dongle compresses at the top of the ladder "
+                        f"({c.compression_db:.2f} dB short at {compressed[0]:g} dB); these steps say nothing "
+                        "about the attenuator")
+    if noisy:
+        warnings.append(f"step(s) {_steps_text(noisy)}: too close to the noise to check to "
+                        f"+/-{c.tolerance_db:g} dB")
+    steps_out = []
+    for i, r in enumerate(readings):
+        snr = None if r.tone is None else r.tone.snr_db
+        steps_out.append({
+            "nominal_db": float(c.nominal_db[i]), "measured_db": float(c.measured_db[i]),
+            "error_db": float(c.error_db[i]), "u_error_db": float(c.u_error_db[i]),
+            "flagged": bool(c.flagged[i]), "region": c.region[i],
+            "reading_dbfs": float(c.reading_dbfs[i]), "u_reading_db": float(c.u_reading_db[i]),
+            "snr_db": snr, "capture": str(r.capture.path)})
+    result = {
+        "steps": steps_out,
+        "tolerance_db": c.tolerance_db,
+        "reference": c.reference,
+        "offset_dbfs": c.offset_dbfs,
+        "n_flagged": int(c.flagged.sum()),
+        "compression_db": c.compression_db,
+        "usable_range_db": c.usable_range_db,
+        "usable_top_db": c.usable_top_db,
+        "usable_bottom_db": c.usable_bottom_db,
+        "top_limited_by": c.top_limited_by,
+        "bottom_limited_by": c.bottom_limited_by,
+        "warnings": warnings,
+    }
+    ref = "median of the linear steps" if c.reference == "median" else c.reference
+    lines = [f"ladder check: {len(steps_out)} steps, reference {ref} "
+             f"({c.offset_dbfs:.2f} dBFS at 0 dB), tolerance +/-{c.tolerance_db:g} dB",
+             f"  {'nominal':>8} {'reading':>10} {'measured':>9} {'error':>7} {'u':>6} {'SNR':>6}",
+             f"  {'dB':>8} {'dBFS':>10} {'dB':>9} {'dB':>7} {'dB':>6} {'dB':>6}"]
+    for s in steps_out:
+        mark = "FLAGGED" if s["flagged"] else ("" if s["region"] == "linear" else s["region"])
+        snr = "-" if s["snr_db"] is None else f"{s['snr_db']:.1f}"
+        lines.append(f"  {s['nominal_db']:8g} {fmt_db(s['reading_dbfs']):>10} {fmt_db(s['measured_db']):>9} "
+                     f"{_signed(s['error_db']):>7} "
+                     f"{fmt_db(s['u_error_db'], 3):>6} {snr:>6}  {mark}".rstrip())
+    limits = {"compression": "compression", "noise": "noise", "ladder": "end of the ladder"}
+    lower_bound = " (at least: the ladder ended first)" if "ladder" in (c.top_limited_by, c.bottom_limited_by) else ""
+    lines.append(f"usable linear range: {c.usable_range_db:g} dB{lower_bound}, steps {c.usable_top_db:g} .. "
+                 f"{c.usable_bottom_db:g} dB (top: {limits[c.top_limited_by]}, bottom: "
+                 f"{limits[c.bottom_limited_by]})")
+    n = result["n_flagged"]
+    lines.append(f"{n} step{'s' if n != 1 else ''} outside +/-{c.tolerance_db:g} dB" if n else
+                 f"all linear-range steps within +/-{c.tolerance_db:g} dB")
+    emit(args, result, "\n".join(lines), warnings)
+    return 0

@@ -1,0 +1,421 @@
+"""``rxbench loss``: insertion loss of a device, direct or by substitution, with its GUM budget.
+
+Direct: ``--thru C --dut C [--thru-after C] [--pair]``; substitution: ``--step DB=C ... --dut C
+[--dut-step DB]``. The numerics are in :mod:`dsp.ladder`; this module reads the captures, checks
+that they can be compared, and reports. The helpers that read a set of captures alike are shared
+with ``rxbench ladder``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import math
+
+import numpy as np
+
+from bench.analyze import choose_nperseg, read_capture
+from bench.errors import MeasurementError, UsageError
+from bench.output import add_json_option, emit, fmt_db
+from bench.recordings import add_capture_options, capture_from_args
+from dsp.ladder import direct_loss, mean_reading, mismatch_components, substitution_loss
+from dsp.uncertainty import Component
+
+#: Relative difference of sample rates accepted as "the same rate".
+RATE_TOLERANCE = 1e-9
+#: Difference of centre frequencies accepted as "the same tuning", Hz.
+CENTER_TOLERANCE_HZ = 1.0
+
+CAUTION = ("Caution: never connect a transmitter to the dongle without attenuation rated for its "
+           "power; the dongle's input is damaged at a few milliwatts.")
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "loss", help="insertion loss of a device, direct or by substitution, with its uncertainty",
+        description="Insertion loss of a device from tone captures. Direct: the same generator level "
+                    "through a thru and through the DUT (--thru/--dut). Substitution: thru captures at "
+                    "known attenuator settings (--step DB=CAPTURE ...) and the DUT (--dut) at --dut-step; "
+                    "the dongle is then only a comparator.",
+        epilog=CAUTION)
+    g = p.add_argument_group("direct method")
+    g.add_argument("--thru", action="append", default=[], metavar="CAPTURE",
+                   help="thru capture before the DUT (repeat for several)")
+    g.add_argument("--thru-after", action="append", default=[], metavar="CAPTURE",
+                   help="thru captured again after the DUT: drift is interpolated to the DUT's time")
+    g.add_argument("--linearity-db", type=float, metavar="DB",
+                   help="half-width of the dongle's linearity error between the two levels, dB "
+                        "(rectangular; from a ladder check)")
+    g = p.add_argument_group("substitution method")
+    g.add_argument("--step", action="append", default=[], metavar="DB=CAPTURE",
+                   help="thru capture with the attenuator at DB (repeat for each step; DB may come from "
+                        "the capture's metadata when only CAPTURE is given)")
+    g.add_argument("--dut-step", type=float, metavar="DB",
+                   help="attenuator setting while the DUT was captured, dB (default 0)")
+    p.add_argument("--dut", action="append", default=[], metavar="CAPTURE",
+                   help="capture through the DUT (repeat for several)")
+    p.add_argument("--pair", action="store_true",
+                   help="the DUT is two identical devices back to back: per-device loss = pair loss / 2")
+    g = p.add_argument_group("uncertainty")
+    g.add_argument("--atten-tolerance-db", type=float, metavar="DB",
+                   help="attenuator setting tolerance, +/- dB (rectangular)")
+    g.add_argument("--source-swr", type=float, metavar="SWR", help="SWR of the source (generator and pads)")
+    g.add_argument("--load-swr", type=float, metavar="SWR", help="SWR of the dongle's input")
+    g.add_argument("--dut-swr", type=float, metavar="SWR", help="SWR of the DUT's ports")
+    g.add_argument("--budget", action="store_true", help="print the uncertainty budget")
+    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
+    add_capture_options(p)
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+# --------------------------------------------------------------------------------------------
+# Shared with `rxbench ladder`
+
+
+def parse_step(text: str, args: argparse.Namespace, option: str = "--step"):
+    """``DB=CAPTURE`` (or ``CAPTURE`` whose metadata gives ``rxbench:attenuation_db``) -> (dB, Capture)."""
+    db = None
+    path = text
+    if "=" in text:
+        head, tail = text.split("=", 1)
+        try:
+            db = float(head)
+            path = tail
+        except ValueError:
+            pass
+    cap = capture_from_args(path, args)
+    meta_db = cap.extra.get("attenuation_db")
+    if db is None:
+        if meta_db is None:
+            raise UsageError(f"{option} {text}: give the attenuator setting as DB=CAPTURE "
+                             "(the capture's metadata has no attenuation)")
+        try:
+            db = float(meta_db)
+        except (TypeError, ValueError):
+            raise UsageError(f"{cap.path}: metadata attenuation {meta_db!r} is not a number") from None
+    if not math.isfinite(db) or db < 0:
+        raise UsageError(f"{option} {text}: the attenuator setting must be a finite number >= 0 dB")
+    return db, cap
+
+
+def check_comparable(captures) -> list[str]:
+    """Refuse captures that cannot be compared (rate, tuning, gain, real/complex); warn on unknowns."""
+    warnings = []
+    ref = captures[0]
+    for cap in captures[1:]:
+        if abs(cap.sample_rate_hz - ref.sample_rate_hz) > RATE_TOLERANCE * ref.sample_rate_hz:
+            raise MeasurementError(
+                f"{cap.path}: sample rate {cap.sample_rate_hz:g} Hz differs from {ref.path} "
+                f"({ref.sample_rate_hz:g} Hz); compared captures must share one rate")
+        if cap.is_complex != ref.is_complex:
+            raise MeasurementError(f"{cap.path}: {'complex' if cap.is_complex else 'real'} samples, but "
+                                   f"{ref.path} is {'complex' if ref.is_complex else 'real'}")
+    known = [c for c in captures if c.center_hz is not None]
+    for cap in known[1:]:
+        if abs(cap.center_hz - known[0].center_hz) > CENTER_TOLERANCE_HZ:
+            raise MeasurementError(
+                f"{cap.path}: centre frequency {cap.center_hz:.0f} Hz differs from {known[0].path} "
+                f"({known[0].center_hz:.0f} Hz); compared captures must be tuned alike")
+    if known and len(known) < len(captures):
+        unknown = ", ".join(str(c.path) for c in captures if c.center_hz is None)
+        warnings.append(f"centre frequency unknown for {unknown}: cannot check that the captures were "
+                        "tuned alike")
+    gains = {c.path: c.extra.get("gain_db") for c in captures if c.extra.get("gain_db") is not None}
+    if len(set(gains.values())) > 1:
+        listed = ", ".join(f"{p} ({g} dB)" for p, g in gains.items())
+        raise MeasurementError(f"the dongle gain differs between captures: {listed}; compared captures "
+                               "must use one fixed gain")
+    return warnings
+
+
+def read_tones(captures, args: argparse.Namespace):
+    """Read the tone of every capture alike (one FFT length, the tone of the first capture).
+
+    Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
+    """
+    warnings = check_comparable(captures)
+    if args.nperseg is not None and args.nperseg < 16:
+        raise UsageError(f"--nperseg must be at least 16, got {args.nperseg}")
+    nperseg = choose_nperseg(min(c.n_samples for c in captures), args.nperseg)
+
+    def read(cap, near):
+        try:
+            return read_capture(cap, near_hz=near, nperseg=nperseg)
+        except ValueError as exc:
+            raise UsageError(f"{cap.path}: {exc}") from None
+
+    first = read(captures[0], args.near)
+    if first.tone is None:
+        where = "; give --near HZ" if args.near is None else f" near {args.near:g} Hz"
+        raise MeasurementError(f"{captures[0].path}: no tone found above the noise{where}")
+    near = first.tone.offset_hz
+    readings = [first] + [read(cap, near) for cap in captures[1:]]
+    for r in readings:
+        warnings.extend(r.warnings)
+    return readings, warnings
+
+
+def tone_db(reading):
+    """(power dBFS, standard uncertainty dB, dof) of a reading's tone; nan when there is none."""
+    t = reading.tone
+    if t is None or not t.power > 0:
+        return math.nan, math.nan, math.inf
+    return t.power_dbfs, t.u_power_db, t.dof_u
+
+
+def reading_dict(reading, **more) -> dict:
+    p, u, _ = tone_db(reading)
+    t = reading.tone
+    return {"capture": str(reading.capture.path), "power_dbfs": p, "u_power_db": u,
+            "offset_hz": None if t is None else t.offset_hz, "snr_db": None if t is None else t.snr_db,
+            "clip_fraction": reading.health.clip_fraction, **more}
+
+
+def _capture_time_s(cap):
+    """Mid-capture time from the metadata (s since the epoch), or None."""
+    if not cap.datetime:
+        return None
+    try:
+        start = _dt.datetime.fromisoformat(str(cap.datetime).replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    if start.tzinfo is None:
+        start = start.replace(tzinfo=_dt.timezone.utc)
+    return start.timestamp() + cap.duration_s / 2
+
+
+def budget_rows(budget) -> list[dict]:
+    return [{"name": c.name, "type": c.kind, "distribution": c.distribution, "half_width_db": c.half_width,
+             "u_db": c.u, "sensitivity": c.sensitivity, "contribution_db": c.contribution, "dof": c.dof,
+             "note": c.note} for c in budget.components]
+
+
+def budget_table(budget) -> str:
+    """The budget as a small fixed-width table (dB)."""
+    lines = ["uncertainty budget (dB)",
+             f"  {'component':<34} {'type':<4} {'distribution':<12} {'a':>6} {'u':>7} {'c':>6} {'|c|u':>7}  note"]
+    for c in budget.components:
+        a = "-" if c.half_width is None else f"{c.half_width:.3f}"
+        lines.append(f"  {c.name:<34} {c.kind:<4} {c.distribution:<12} {a:>6} {c.u:7.4f} "
+                     f"{c.sensitivity:6.2f} {c.contribution:7.4f}  {c.note}".rstrip())
+    lines.append(f"  {'combined standard uncertainty u_c':<72} {budget.combined_u:7.4f}")
+    lines.append(f"  {f'expanded uncertainty U (k = {budget.k:g})':<72} {budget.expanded_u:7.4f}")
+    dof = budget.dof_eff
+    lines.append(f"  {'effective degrees of freedom':<72} {dof:7.0f}" if dof < 1000 else
+                 f"  {'effective degrees of freedom':<72} {'>1000':>7}")
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------------------------
+
+
+def _check_options(args) -> str:
+    if not args.dut:
+        raise UsageError("give the DUT capture with --dut")
+    if args.thru and args.step:
+        raise UsageError("give either --thru (direct method) or --step (substitution), not both")
+    if not args.thru and not args.step:
+        raise UsageError("give --thru CAPTURE (direct method) or --step DB=CAPTURE ... (substitution)")
+    method = "direct" if args.thru else "substitution"
+    if method == "substitution":
+        if args.thru_after:
+            raise UsageError("--thru-after applies to the direct method (--thru), not to substitution")
+        if args.linearity_db is not None:
+            raise UsageError("--linearity-db applies to the direct method; substitution does not rely "
+                             "on the dongle's linearity")
+    elif args.dut_step is not None:
+        raise UsageError("--dut-step applies to substitution (--step); the direct method compares "
+                         "thru and DUT at the same setting")
+    for name in ("atten_tolerance_db", "linearity_db"):
+        v = getattr(args, name)
+        if v is not None and not (math.isfinite(v) and v >= 0):
+            raise UsageError(f"--{name.replace('_', '-')} must be a finite number >= 0, got {v}")
+    for name in ("source_swr", "load_swr", "dut_swr"):
+        v = getattr(args, name)
+        if v is not None and not (math.isfinite(v) and v >= 1):
+            raise UsageError(f"--{name.replace('_', '-')} must be a finite number >= 1, got {v}")
+    if args.dut_step is not None and not (math.isfinite(args.dut_step) and args.dut_step >= 0):
+        raise UsageError(f"--dut-step must be a finite number >= 0 dB, got {args.dut_step}")
+    return method
+
+
+def _mismatch(args, loss_db, warnings):
+    comps = mismatch_components(args.source_swr, args.load_swr, args.dut_swr, loss_db)
+    if comps:
+        if args.dut_swr is None:
+            comps.append(Component.normal("mismatch at the DUT's ports", 0.0, kind="B",
+                                          note="not assessed (give --dut-swr)"))
+        return comps
+    if any(v is not None for v in (args.source_swr, args.load_swr, args.dut_swr)):
+        warnings.append("mismatch is not in the budget: it needs both --source-swr and --load-swr")
+    return [Component.normal("mismatch", 0.0, kind="B",
+                             note="not assessed (give --source-swr, --load-swr, --dut-swr)")]
+
+
+def _pooled(readings, role):
+    values = [tone_db(r) for r in readings]
+    for r, (p, _, _) in zip(readings, values):
+        if not math.isfinite(p):
+            raise MeasurementError(f"{r.capture.path}: no {role} tone could be read (none above the noise)")
+    p, u, dof = zip(*values)
+    return mean_reading(p, u, dof)
+
+
+def _direct(args, readings, n_thru, n_dut, warnings):
+    thru_r, dut_r, after_r = readings[:n_thru], readings[n_thru:n_thru + n_dut], readings[n_thru + n_dut:]
+    thru = _pooled(thru_r, "thru")
+    dut = _pooled(dut_r, "DUT")
+    kw = {}
+    times_from = None
+    if after_r:
+        after = _pooled(after_r, "thru-after")
+        caps = [r.capture for r in readings]
+        stamps = [_capture_time_s(c) for c in caps]
+        if all(s is not None for s in stamps):
+            times_from = "metadata"
+        else:
+            times_from = "order given"
+            if any(s is not None for s in stamps):
+                warnings.append("only some captures carry a start time; drift is interpolated by the order "
+                                "the captures were given")
+            stamps = list(range(len(caps)))
+        t = [float(np.mean(stamps[:n_thru])), float(np.mean(stamps[n_thru:n_thru + n_dut])),
+             float(np.mean(stamps[n_thru + n_dut:]))]
+        kw = dict(thru_after_dbfs=after[0], u_thru_after_db=after[1], times_s=t)
+        dof = (thru[2], dut[2], after[2])
+    else:
+        dof = (thru[2], dut[2], math.inf)
+    linearity = 0.0 if args.linearity_db is None else args.linearity_db
+    if args.linearity_db is None:
+        warnings.append("the direct method assumes the dongle is linear between the thru and DUT levels; "
+                        "that is not in the budget (give --linearity-db from a ladder check, or use "
+                        "substitution)")
+
+    def compute(extra):
+        try:
+            return direct_loss(thru[0], thru[1], dut[0], dut[1], dof=dof, linearity_db=linearity,
+                               extra_components=extra, **kw)
+        except ValueError as exc:
+            raise MeasurementError(str(exc)) from None
+
+    loss = compute(())
+    loss = compute(_mismatch(args, loss.loss_db, warnings))
+    if after_r and abs(loss.drift_db) > 2 * math.hypot(thru[1], after[1]):
+        warnings.append(f"the thru moved by {loss.drift_db:+.3f} dB between before and after; corrected by "
+                        "interpolating linearly in time")
+    detail = {"thru_dbfs": loss.reference_dbfs, "dut_dbfs": loss.dut_dbfs, "drift_db": loss.drift_db,
+              "times_from": times_from,
+              "readings": {"thru": [reading_dict(r) for r in thru_r], "dut": [reading_dict(r) for r in dut_r],
+                           "thru_after": [reading_dict(r) for r in after_r]}}
+    if after_r:
+        rows = [("thru before", thru[0], thru[1], n_thru), ("DUT", dut[0], dut[1], n_dut),
+                ("thru after", after[0], after[1], len(after_r)),
+                ("thru at DUT time", loss.reference_dbfs, math.nan, None)]
+    else:
+        rows = [("thru", thru[0], thru[1], n_thru), ("DUT", dut[0], dut[1], n_dut)]
+    return loss, detail, rows
+
+
+def _substitution(args, readings, steps_db, n_dut, warnings):
+    step_r, dut_r = readings[:len(steps_db)], readings[len(steps_db):]
+    dut = _pooled(dut_r, "DUT")
+    nominal, reading, u, dof = [], [], [], []
+    for db, r in zip(steps_db, step_r):
+        p, ur, nu = tone_db(r)
+        if not math.isfinite(p):
+            warnings.append(f"{r.capture.path}: no tone at step {db:g} dB; that step is left out")
+            continue
+        nominal.append(db)
+        reading.append(p)
+        u.append(ur)
+        dof.append(nu)
+    if len(nominal) < 2:
+        raise MeasurementError("substitution needs at least 2 ladder steps with a readable tone")
+    dut_step = 0.0 if args.dut_step is None else args.dut_step
+    tol = 0.0 if args.atten_tolerance_db is None else args.atten_tolerance_db
+    if args.atten_tolerance_db is None:
+        warnings.append("attenuator tolerance not given (--atten-tolerance-db): the uncertainty covers the "
+                        "readings only, not the attenuator the result rests on")
+
+    def compute(extra):
+        try:
+            return substitution_loss(nominal, reading, u, dut[0], dut[1], dut_step_db=dut_step,
+                                     atten_tolerance_db=tol, dof_dut=dut[2], dof_steps=dof,
+                                     extra_components=extra)
+        except ValueError as exc:
+            msg = str(exc)
+            if "outside the ladder" in msg:
+                msg += "; extend the ladder or capture the DUT at another --dut-step"
+            raise MeasurementError(msg) from None
+
+    loss = compute(())
+    loss = compute(_mismatch(args, loss.loss_db, warnings))
+    detail = {"attenuation_db": loss.attenuation_db, "bracket_db": list(loss.bracket_db),
+              "dut_step_db": dut_step, "dut_dbfs": loss.dut_dbfs,
+              "readings": {"steps": [reading_dict(r, nominal_db=db) for db, r in zip(steps_db, step_r)],
+                           "dut": [reading_dict(r) for r in dut_r]}}
+    lo, hi = loss.bracket_db
+    rows = [(f"step {lo:g} dB", reading[nominal.index(lo)], u[nominal.index(lo)], 1),
+            ("DUT", dut[0], dut[1], n_dut),
+            (f"step {hi:g} dB", reading[nominal.index(hi)], u[nominal.index(hi)], 1)]
+    return loss, detail, rows
+
+
+def run(args: argparse.Namespace) -> int:
+    method = _check_options(args)
+    if method == "direct":
+        captures = [capture_from_args(p, args) for p in (*args.thru, *args.dut, *args.thru_after)]
+        readings, warnings = read_tones(captures, args)
+        loss, detail, rows = _direct(args, readings, len(args.thru), len(args.dut), warnings)
+    else:
+        steps = [parse_step(s, args) for s in args.step]
+        dbs = [db for db, _ in steps]
+        if len(set(dbs)) != len(dbs):
+            raise UsageError(f"--step: each attenuator setting may appear once, got {sorted(dbs)}")
+        order = np.argsort(dbs)
+        dbs = [dbs[i] for i in order]
+        captures = [steps[i][1] for i in order] + [capture_from_args(p, args) for p in args.dut]
+        readings, warnings = read_tones(captures, args)
+        loss, detail, rows = _substitution(args, readings, dbs, len(args.dut), warnings)
+
+    U = loss.expanded_uncertainty_db
+    per_device = loss.loss_db / 2 if args.pair else loss.loss_db
+    per_device_u = U / 2 if args.pair else U
+    if loss.loss_db + U < 0:
+        warnings.append(f"the DUT reads stronger than the thru by more than the uncertainty "
+                        f"({-loss.loss_db:.3f} dB): a passive device cannot gain; check the set-up")
+    result = {
+        "method": method,
+        "insertion_loss_db": loss.loss_db,
+        "expanded_uncertainty_db": U,
+        "standard_uncertainty_db": loss.u_db,
+        "coverage_factor": loss.budget.k,
+        "effective_dof": loss.budget.dof_eff,
+        "pair": bool(args.pair),
+        "per_device_db": per_device,
+        "per_device_expanded_uncertainty_db": per_device_u,
+        "budget": budget_rows(loss.budget),
+        **detail,
+        "warnings": warnings,
+    }
+    digits = 3 if U < 0.095 else 2
+    lines = [f"insertion loss, {method} method"]
+    for label, p, u, n in rows:
+        count = "" if n is None else f"  ({n} capture{'s' if n != 1 else ''})"
+        unc = "" if not math.isfinite(u) else f"  u {u:.3f} dB"
+        lines.append(f"  {label:<18} {fmt_db(p, 3):>9} dBFS{unc}{count}")
+    if method == "substitution":
+        lines.append(f"  {'ladder setting':<18} {loss.attenuation_db:9.3f} dB  (DUT at {detail['dut_step_db']:g} dB)")
+    lines.append(f"  {'loss':<18} {loss.loss_db:9.{digits}f} dB  +/- {U:.{digits}f} dB  (k = {loss.budget.k:g}, "
+                 "about 95 %)")
+    if args.pair:
+        lines.append(f"  {'per device':<18} {per_device:9.{digits}f} dB  +/- {per_device_u:.{digits}f} dB  "
+                     "(pair / 2)")
+    if args.budget:
+        lines += ["", budget_table(loss.budget)]
+        if args.pair:
+            lines.append("  (per device: half of each contribution)")
+    emit(args, result, "\n".join(lines), warnings)
+    return 0
