@@ -290,3 +290,14 @@ def test_human_output_is_a_small_table(tmp_path, capsys):
     assert any(line.strip().startswith("loss") and "+/-" in line and "k = 2" in line for line in lines)
     assert "uncertainty budget" not in out
     assert len(lines) <= 6
+
+
+def test_few_degrees_of_freedom_are_called_out(tmp_path, capsys):
+    # two thru captures that disagree by far more than their estimators allow (a reconnection):
+    # the scatter (1 dof) then sets u, and k = 2 would cover well under 95 % (GUM G.3, Table G.2)
+    rng = np.random.default_rng(40)
+    thrus = [_capture(tmp_path, "thru_a", rng, -20.0), _capture(tmp_path, "thru_b", rng, -20.4)]
+    dut = _capture(tmp_path, "dut", rng, -20.0, loss_db=1.0)
+    r, err = _json(capsys, "loss", "--thru", thrus[0], "--thru", thrus[1], "--dut", dut)
+    assert r["insertion_loss_db"] == pytest.approx(0.8, abs=0.05)
+    assert r["effective_dof"] < 10 and "degrees of freedom" in err

@@ -19,7 +19,7 @@ from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args
 from dsp.ladder import direct_loss, mean_reading, mismatch_components, substitution_loss
-from dsp.uncertainty import Component
+from dsp.uncertainty import Component, coverage_factor
 
 #: Relative difference of sample rates accepted as "the same rate".
 RATE_TOLERANCE = 1e-9
@@ -383,6 +383,11 @@ def run(args: argparse.Namespace) -> int:
     U = loss.expanded_uncertainty_db
     per_device = loss.loss_db / 2 if args.pair else loss.loss_db
     per_device_u = U / 2 if args.pair else U
+    dof = loss.budget.dof_eff
+    if dof < 10:
+        warnings.append(f"only {dof:.1f} effective degrees of freedom behind the uncertainty: k = 2 covers "
+                        f"less than 95 % (the Student t factor for 95 % would be "
+                        f"{coverage_factor(dof, 0.95):.2f}); take more captures")
     if loss.loss_db + U < 0:
         warnings.append(f"the DUT reads stronger than the thru by more than the uncertainty "
                         f"({-loss.loss_db:.3f} dB): a passive device cannot gain; check the set-up")
