@@ -217,6 +217,7 @@ class PsdAccumulator:
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
+        self._nbins = self.nperseg // 2 + 1 if self.one_sided else self.nperseg
         self.n_segments = 0
 
     def update(self, block) -> None:
@@ -229,38 +230,44 @@ class PsdAccumulator:
         if self._tail is not None and self._tail.size:
             x = np.concatenate([self._tail, x.astype(self._tail.dtype, copy=False)])
         n_seg = 0 if x.size < self.nperseg else 1 + (x.size - self.nperseg) // self.step
-        for first in range(0, n_seg, _SEGMENTS_PER_CALL):
-            count = min(_SEGMENTS_PER_CALL, n_seg - first)
+        first = 0
+        while first < n_seg:
+            self._open_batch()
+            count = min(_SEGMENTS_PER_CALL, n_seg - first, self._batch_len - self._counts[-1])
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
             view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
-            self._add(self._periodograms(view))
+            self._batches[-1] += self._periodogram_sum(view)
+            self._counts[-1] += count
+            self.n_segments += count
+            first += count
         self._tail = x[n_seg * self.step :].copy()
 
-    def _periodograms(self, segments: np.ndarray) -> np.ndarray:
-        win = self._window32 if segments.dtype in (np.complex64, np.float32) else self.window
+    def _periodogram_sum(self, segments: np.ndarray) -> np.ndarray:
+        """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64."""
+        single = segments.dtype in (np.complex64, np.float32)
+        win = self._window32 if single else self.window
+        windowed = segments * win
         if self.one_sided:
-            spec = scipy.fft.rfft(segments * win, axis=-1, workers=-1)
+            spec = scipy.fft.rfft(windowed, axis=-1, workers=-1)
         else:
-            spec = scipy.fft.fft(segments * win, axis=-1, workers=-1)
-        return spec.real**2 + spec.imag**2
+            spec = scipy.fft.fft(windowed, axis=-1, workers=-1, overwrite_x=True)
+        rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
+        squares = np.einsum("ij,ij->j", rails, rails, dtype=np.float64)
+        return squares[0::2] + squares[1::2]
 
-    def _add(self, power: np.ndarray) -> None:
-        i = 0
-        while i < power.shape[0]:
-            if not self._batches or self._counts[-1] == self._batch_len:
-                if len(self._batches) == 2 * N_BATCHES:
-                    self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
-                    self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
-                    self._batch_len *= 2
-                if not self._batches or self._counts[-1] == self._batch_len:
-                    self._batches.append(np.zeros(power.shape[1]))
-                    self._counts.append(0)
-            take = min(self._batch_len - self._counts[-1], power.shape[0] - i)
-            self._batches[-1] += power[i : i + take].sum(axis=0, dtype=np.float64)
-            self._counts[-1] += take
-            i += take
-        self.n_segments += power.shape[0]
+    def _open_batch(self) -> None:
+        """Make sure the last sub-average has room; merge pairs when there are 2*N_BATCHES full ones."""
+        if self._batches and self._counts[-1] < self._batch_len:
+            return
+        if len(self._batches) == 2 * N_BATCHES:
+            self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
+            self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
+            self._batch_len *= 2
+            if self._counts[-1] < self._batch_len:
+                return
+        self._batches.append(np.zeros(self._nbins))
+        self._counts.append(0)
 
     def result(self) -> Psd:
         """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
