@@ -320,10 +320,11 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     # and after (re)starting the stream, are not representative.
     settle_bytes = round_up_512(settings.settle_s * rate * 2) if settings.settle_s > 0 else 0
     total = round_up_512(math.ceil(cap.duration_s * rate) * 2)
+    chunk = int(getattr(device, "chunk_bytes", CHUNK_BYTES))  # reads as large as the source's transfers
     label = f"{cap.number:02d} {cap.step.name}" + (f" #{cap.repeat}" if cap.step.repeats > 1 else "")
     done = 0
     while done < settle_bytes:
-        n = min(CHUNK_BYTES, settle_bytes - done)
+        n = min(chunk, settle_bytes - done)
         device.read_bytes(n)
         done += n
     dropped_before = device.dropped_bytes
@@ -358,7 +359,7 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     done = 0
     try:
         while done < total:
-            n = min(CHUNK_BYTES, total - done)
+            n = min(chunk, total - done)
             writer.write(device.read_bytes(n))
             done += n
             show.update(label, done, total)

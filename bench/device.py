@@ -225,7 +225,10 @@ class RtlSdrSource:
         if old is None or old.sample_rate_hz != settings.sample_rate_hz:
             self._setter(f"sample rate {settings.sample_rate_hz:g} Hz", sdr.set_sample_rate, settings.sample_rate_hz)
             changed = True
+        if old is None:  # the RTL2832's digital AGC stays off: levels are compared between captures
+            self._setter("digital AGC off", sdr.set_agc_mode, False)
         if old is None or old.gain_db != settings.gain_db:
+            # a number (never 'auto') also turns the tuner's AGC off
             self._setter(f"gain {settings.gain_db:g} dB", sdr.set_gain, settings.gain_db)
             changed = True
         # Setting the correction already in effect fails (and closes the device): compare first.
@@ -251,17 +254,21 @@ class RtlSdrSource:
         return Applied(sample_rate_hz=rate, center_hz=float(center_hz), gain_db=gain, changed=changed)
 
     def arrange(self, capture: PlannedCapture) -> None:
-        """Nothing to do: the operator arranges the real bench."""
+        """The operator arranges the real bench; here the stream stops, so that the capture starts
+        on fresh samples rather than on what queued up while the operator was busy."""
+        self._stop_stream()
 
     # -- reading ---------------------------------------------------------------------------------
 
     def _callback(self, values, context) -> None:
         # The library reuses ``values``: copy before anything else.
         data = np.frombuffer(values, dtype=np.uint8).copy()
+        seq = self._seq_in
+        self._seq_in += 1
         try:
-            self._queue.put_nowait(data)
+            self._queue.put_nowait((seq, data))
         except queue.Full:
-            self.dropped_bytes += data.size
+            pass  # counted by read_bytes as a gap in the sequence numbers
 
     def _run(self) -> None:
         try:
@@ -269,12 +276,18 @@ class RtlSdrSource:
         except BaseException as exc:  # reported to the reading thread
             self._thread_error = exc
 
+    def start(self) -> None:
+        """Start streaming now (:meth:`read_bytes` starts it when needed)."""
+        self._start_stream()
+
     def _start_stream(self) -> None:
         if self._thread is not None:
             return
         self._require_open()
         self._queue = queue.Queue(maxsize=self.queue_chunks)
         self._leftover = np.zeros(0, np.uint8)
+        self._seq_in = 0  # chunks the library delivered
+        self._seq_out = None  # sequence number of the last chunk handed out
         self._thread_error = None
         self._thread = threading.Thread(target=self._run, name="rxbench-dongle-reader", daemon=True)
         self._thread.start()
@@ -295,8 +308,9 @@ class RtlSdrSource:
     def read_bytes(self, n: int) -> np.ndarray:
         """The next ``n`` raw bytes (interleaved I/Q, unsigned 8-bit), a fresh array.
 
-        Bytes the reader thread had to drop (queue full) are counted in :attr:`dropped_bytes`; the
-        bytes returned are then not contiguous in time.
+        Chunks the reader thread had to drop (queue full) between two chunks handed out are counted
+        in :attr:`dropped_bytes`: the bytes returned then have a gap. (Chunks dropped before the first
+        one handed out, or after the last, leave no gap in what was read and are not counted.)
         """
         n = check_read_size(n)
         self._require_open()
@@ -312,6 +326,11 @@ class RtlSdrSource:
                 if err is not None:
                     raise DeviceError(f"reading from the dongle failed: {err}") from None
                 raise DeviceError(f"no samples from the dongle for {self.timeout_s:g} s") from None
+            seq, chunk = chunk
+            if self._seq_out is not None and seq != self._seq_out + 1:
+                # chunks were dropped between the last one handed out and this one: a gap in the data
+                self.dropped_bytes += (seq - self._seq_out - 1) * chunk.size
+            self._seq_out = seq
             parts.append(chunk)
             have += chunk.size
         data = np.concatenate(parts) if len(parts) > 1 else parts[0]
