@@ -1,0 +1,56 @@
+"""``rxbench analyze SESSION``: every result a session's captures support, and a report folder."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from bench.output import add_json_option, emit
+from bench.report import summary_lines, write_report
+from bench.session import analyze_session, open_session
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "analyze", help="analyse a session folder and write its report",
+        description=("Read every capture of a session folder (roles from the rxbench metadata), run every "
+                     "measurement the captures support (tone readings, direct and substitution loss, "
+                     "ladder check, noise figure and loss across frequency, external-noise excess, SNR cost "
+                     "per band), and write report.md, results.json, results.csv and PNG plots into a new "
+                     "report folder inside the session (report/, then report-2/, ...)."))
+    p.add_argument("session", metavar="SESSION", help="session folder (as written by rxbench capture)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="write the report into report/ even if it exists, replacing the earlier report")
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+def analyze_and_report(folder, *, overwrite: bool = False, extra_markdown=None, extra_json=None, progress=None):
+    """Open, analyse and report a session; returns (analysis, report folder)."""
+    session = open_session(folder)
+    analysis = analyze_session(session, progress=progress)
+    report_dir = write_report(analysis, overwrite=overwrite, extra_markdown=extra_markdown, extra_json=extra_json)
+    return analysis, report_dir
+
+
+def _progress(i: int, n: int, name: str) -> None:
+    if sys.stderr.isatty():
+        sys.stderr.write(f"\rreading {i + 1}/{n} {name}\x1b[K")
+        if i + 1 == n:
+            sys.stderr.write("\r\x1b[K")
+        sys.stderr.flush()
+
+
+def run(args: argparse.Namespace) -> int:
+    analysis, report_dir = analyze_and_report(args.session, overwrite=args.overwrite, progress=_progress)
+    result = analysis.to_dict()
+    result["report_dir"] = str(report_dir)
+    s = analysis.session
+    head = f"{s.folder}: {len(s.entries)} captures analysed"
+    if s.incomplete or s.skipped:
+        head += f" ({len(s.incomplete)} incomplete and {len(s.skipped)} unusable left out)"
+    lines = [head] + [f"  {x}" for x in summary_lines(analysis)]
+    lines.append(f"uncertainties: expanded, k = 2 (about 95 %); {len(analysis.warnings)} warning(s)")
+    lines.append(f"report: {report_dir / 'report.md'}")
+    emit(args, result, "\n".join(lines), analysis.warnings)
+    return 0

@@ -1,0 +1,478 @@
+"""``rxbench demo``: a built-in plan run on the simulated bench, analysed, with the report written.
+
+The scenario is invented: a club's field station shares one antenna between two receivers through
+a splitter and a 10 m band-pass filter. Does that hurt 10 m reception? The plan measures the
+device's insertion loss with a tone (direct, and by substitution on an attenuator ladder, which is
+checked step by step), the receiver's noise figure and the device's loss across 10 m with a noise
+source, and the band noise of the antenna against a 50-ohm load; the analysis turns these into the
+SNR the device costs on 10 m. The simulated bench's hidden truth is then set beside every number,
+so the demo also shows that the stated uncertainties cover the truth.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+from pathlib import Path
+
+import numpy as np
+
+from bench.errors import UsageError
+from bench.output import add_json_option, emit
+from bench.report import summary_lines
+from dsp import synth
+from dsp.units import K_B, T0_K, db_from_power, power_from_db
+
+DEFAULT_OUT = "rxbench-demo"
+#: Seed of the simulated bench's noise: the demo gives the same numbers every time.
+SEED = 2026
+#: Sub-band centres of the noise-source curves are compared with the truth averaged over the sub-band.
+SUB_BAND_TRUTH_POINTS = 64
+
+SCENARIO = ("A club's field station shares one antenna between two receivers through a splitter and a "
+            "10 m band-pass filter. Does the pair hurt 10 m reception?")
+
+#: The built-in plan (invented scenario). Levels suit the simulated bench's dongle, which reaches
+#: full scale at -80 dBm at this gain.
+PLAN_TEXT = """\
+# rxbench demo plan: the field station's splitter and 10 m band-pass filter (invented scenario).
+title = "Field station: does the splitter and 10 m band-pass filter hurt 10 m reception?"
+description = "Tone loss (direct and substitution), ladder check, noise figure and loss across 10 m, band noise at the antenna."
+
+[dongle]
+sample_rate_hz = 250000
+gain_db = 30.0
+settle_s = 0.03
+full_scale_dbm = -80.0
+
+[generator]
+level_dbm = -85.0
+offset_hz = 20000
+
+[noise_source]
+enr_db = 15.0
+
+[defaults]
+center_hz = 28.4e6
+duration_s = 0.15
+
+# 1. The attenuator ladder: generator -> step attenuator -> thru -> dongle.
+[[step]]
+name = "ladder-00"
+role = "step"
+attenuation_db = 0
+[[step]]
+name = "ladder-02"
+role = "step"
+attenuation_db = 2
+[[step]]
+name = "ladder-04"
+role = "step"
+attenuation_db = 4
+[[step]]
+name = "ladder-06"
+role = "step"
+attenuation_db = 6
+[[step]]
+name = "ladder-08"
+role = "step"
+attenuation_db = 8
+[[step]]
+name = "ladder-10"
+role = "step"
+attenuation_db = 10
+[[step]]
+name = "ladder-20"
+role = "step"
+attenuation_db = 20
+[[step]]
+name = "ladder-30"
+role = "step"
+attenuation_db = 30
+[[step]]
+name = "ladder-40"
+role = "step"
+attenuation_db = 40
+[[step]]
+name = "ladder-50"
+role = "step"
+attenuation_db = 50
+
+# 2. The device at the top of the ladder (substitution), then a thru / device / thru sandwich at 10 dB
+#    where the dongle is linear (direct loss, drift removed).
+[[step]]
+name = "device-00"
+role = "dut"
+attenuation_db = 0
+instruction = "Insert the splitter and band-pass filter (other splitter port into a 50-ohm load); attenuator at 0 dB."
+[[step]]
+name = "thru-10-before"
+role = "thru"
+attenuation_db = 10
+[[step]]
+name = "device-10"
+role = "dut"
+attenuation_db = 10
+instruction = "Insert the splitter and band-pass filter again; attenuator at 10 dB."
+[[step]]
+name = "thru-10-after"
+role = "thru"
+attenuation_db = 10
+
+# 3. Noise source across 10 m: off and on, without and with the device.
+[[step]]
+name = "cold-28.0"
+role = "cold"
+center_hz = 28.0e6
+duration_s = 0.1
+[[step]]
+name = "hot-28.0"
+role = "hot"
+center_hz = 28.0e6
+duration_s = 0.1
+[[step]]
+name = "cold-device-28.0"
+role = "cold"
+with_dut = true
+center_hz = 28.0e6
+duration_s = 0.1
+[[step]]
+name = "hot-device-28.0"
+role = "hot"
+with_dut = true
+center_hz = 28.0e6
+duration_s = 0.1
+[[step]]
+name = "cold-28.4"
+role = "cold"
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "hot-28.4"
+role = "hot"
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "cold-device-28.4"
+role = "cold"
+with_dut = true
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "hot-device-28.4"
+role = "hot"
+with_dut = true
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "cold-28.8"
+role = "cold"
+center_hz = 28.8e6
+duration_s = 0.1
+[[step]]
+name = "hot-28.8"
+role = "hot"
+center_hz = 28.8e6
+duration_s = 0.1
+[[step]]
+name = "cold-device-28.8"
+role = "cold"
+with_dut = true
+center_hz = 28.8e6
+duration_s = 0.1
+[[step]]
+name = "hot-device-28.8"
+role = "hot"
+with_dut = true
+center_hz = 28.8e6
+duration_s = 0.1
+[[step]]
+name = "cold-29.2"
+role = "cold"
+center_hz = 29.2e6
+duration_s = 0.1
+[[step]]
+name = "hot-29.2"
+role = "hot"
+center_hz = 29.2e6
+duration_s = 0.1
+[[step]]
+name = "cold-device-29.2"
+role = "cold"
+with_dut = true
+center_hz = 29.2e6
+duration_s = 0.1
+[[step]]
+name = "hot-device-29.2"
+role = "hot"
+with_dut = true
+center_hz = 29.2e6
+duration_s = 0.1
+[[step]]
+name = "cold-29.6"
+role = "cold"
+center_hz = 29.6e6
+duration_s = 0.1
+[[step]]
+name = "hot-29.6"
+role = "hot"
+center_hz = 29.6e6
+duration_s = 0.1
+[[step]]
+name = "cold-device-29.6"
+role = "cold"
+with_dut = true
+center_hz = 29.6e6
+duration_s = 0.1
+[[step]]
+name = "hot-device-29.6"
+role = "hot"
+with_dut = true
+center_hz = 29.6e6
+duration_s = 0.1
+
+# 4. Band noise: the antenna against a 50-ohm load (and through 6 and 12 dB for the knee).
+[[step]]
+name = "antenna-28.4"
+role = "antenna"
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "antenna-28.4-06"
+role = "antenna"
+attenuation_db = 6
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "antenna-28.4-12"
+role = "antenna"
+attenuation_db = 12
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "load-28.4"
+role = "load"
+center_hz = 28.4e6
+duration_s = 0.1
+[[step]]
+name = "antenna-29.6"
+role = "antenna"
+center_hz = 29.6e6
+duration_s = 0.1
+[[step]]
+name = "load-29.6"
+role = "load"
+center_hz = 29.6e6
+duration_s = 0.1
+"""
+
+
+def demo_truth():
+    """The simulated bench of the demo (invented): the field station's device, a step attenuator
+    whose low steps are good and whose 30 dB step is 0.45 dB off, a quiet rural site with galactic
+    noise on 10 m, and a dongle that compresses near full scale."""
+    from bench.simulated import BenchTruth
+
+    return BenchTruth(
+        attenuator_errors_db=((30.0, 0.45), (40.0, 0.08), (50.0, -0.1)),
+        environment="quiet-rural",
+        galactic=True,
+    )
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "demo", help="run a built-in plan on the simulated bench, analyse it and write the report",
+        description=("Run the built-in demo plan on the simulated bench (no hardware; invented scenario: "
+                     + SCENARIO + "), analyse the session and write its report. Every number is set "
+                     "beside the simulated truth."))
+    p.add_argument("--out", metavar="DIR", default=DEFAULT_OUT,
+                   help="session folder (default %(default)s; if it exists, DIR-2, DIR-3, ... is used)")
+    add_json_option(p)
+    p.set_defaults(func=run)
+
+
+def fresh_folder(path) -> Path:
+    """``path`` if it does not exist yet, else the first free ``path-2``, ``path-3``, ..."""
+    p = Path(path)
+    if not p.exists():
+        return p
+    for n in range(2, 10000):
+        cand = p.with_name(f"{p.name}-{n}")
+        if not cand.exists():
+            return cand
+    raise UsageError(f"{p}: too many demo folders beside it; give --out")
+
+
+# --------------------------------------------------------------------------------------------
+# The truth beside the numbers
+
+
+def receiver_temperature_k(truth, plan) -> float:
+    """Noise temperature of the simulated receive chain, K: the dongle's own plus its 8-bit
+    quantisation noise referred to the input (Bennett 1948: step**2/12 per rail)."""
+    gain_db = truth.conversion_gain_db(plan.dongle.gain_db)
+    fs = plan.dongle.sample_rate_hz
+    fs2_per_w = 1e3 * power_from_db(gain_db)
+    t_q = synth.CU8_QUANTISATION_POWER / fs / fs2_per_w / K_B
+    return truth.dongle(plan.dongle.gain_db).noise_temperature_k + t_q
+
+
+def _band_loss_truth(truth, low_hz: float, high_hz: float) -> float:
+    f = np.linspace(low_hz, high_hz, SUB_BAND_TRUTH_POINTS)
+    return float(-db_from_power(np.mean(power_from_db(-truth.dut_loss_db(f)))))
+
+
+def truth_checks(analysis, truth, plan) -> list[dict]:
+    """Every demo result beside the simulated truth: within its expanded uncertainty (k = 2)?"""
+    trx = receiver_temperature_k(truth, plan)
+    checks = []
+
+    def add(quantity, frequency_hz, measured, expanded, true, detail=""):
+        checks.append({"quantity": quantity, "frequency_hz": frequency_hz, "measured": measured,
+                       "expanded_uncertainty": expanded, "truth": true,
+                       "within": bool(abs(measured - true) <= expanded), "detail": detail})
+
+    for x in analysis.losses:
+        add(f"insertion loss ({x['method']})", x["frequency_hz"], x["insertion_loss_db"],
+            x["expanded_uncertainty_db"], truth.dut_loss_db(x["frequency_hz"]))
+    for lad in analysis.ladders:
+        lin = [s for s in lad["steps"] if s["region"] == "linear"]
+        if len(lin) >= 2:
+            # The check states each step relative to a reference, with the dongle taken as linear
+            # within the check's linearity limit; compare step differences to the 10 dB step (or the
+            # middle linear one), adding that limit for steps in the top 10 dB of the dongle's range.
+            ref = next((s for s in lin if s["nominal_db"] == 10.0), lin[len(lin) // 2])
+            ref_true = truth.attenuation_db(ref["nominal_db"])
+            top = lad["usable_top_db"]
+            for s in lin:
+                if s is ref:
+                    continue
+                measured = s["measured_db"] - ref["measured_db"]
+                true = truth.attenuation_db(s["nominal_db"]) - ref_true
+                expanded = lad["k"] * math.hypot(s["u_reading_db"], ref["u_reading_db"])
+                if min(s["nominal_db"], ref["nominal_db"]) < top + 10.0:
+                    expanded += lad["linearity_db"]
+                add("ladder step attenuation", lad["frequency_hz"], measured, expanded, true,
+                    f"{s['nominal_db']:g} dB step relative to the {ref['nominal_db']:g} dB step")
+    nf_true = float(db_from_power(1.0 + trx / T0_K))
+    for n in analysis.noise_figure:
+        add("receiver noise figure", n["center_hz"], n["noise_figure_db"], n["expanded_uncertainty_db"], nf_true,
+            "dongle plus 8-bit quantisation")
+        if n.get("insertion_loss_db") is not None:
+            lo, hi = n["band_hz"]
+            add("insertion loss (noise source, whole band)", n["center_hz"], n["insertion_loss_db"],
+                n["expanded_uncertainty_loss_db"], _band_loss_truth(truth, n["center_hz"] + lo, n["center_hz"] + hi))
+    curve = analysis.loss_vs_frequency
+    if curve is not None and curve["has_loss"]:
+        for f, w, loss, u in zip(curve["frequency_hz"], curve["width_hz"], curve["insertion_loss_db"],
+                                 curve["u_insertion_loss_db"]):
+            add("insertion loss (noise source, sub-band)", f, loss, 2.0 * u,
+                _band_loss_truth(truth, f - w / 2, f + w / 2))
+    x_true = {}
+    for ex in analysis.external_noise:
+        ta = T0_K * power_from_db(truth.fa_db(ex["frequency_hz"]))
+        x_true[ex["frequency_hz"]] = (ta + trx) / (T0_K + trx)
+        add("band-noise excess", ex["frequency_hz"], ex["excess_db"], ex["expanded_uncertainty_db"],
+            float(db_from_power(x_true[ex["frequency_hz"]])))
+    for c in analysis.snr_cost:
+        big_l = power_from_db(truth.dut_loss_db(c["loss_frequency_hz"]))
+        true = float(db_from_power(1.0 + (big_l - 1.0) / x_true[c["frequency_hz"]]))
+        add("SNR cost", c["frequency_hz"], c["snr_degradation_db"], c["expanded_uncertainty_db"], true, c["band"])
+    return checks
+
+
+def _check_line(c: dict) -> str:
+    f = "" if c["frequency_hz"] is None else f" at {c['frequency_hz'] / 1e6:.3f} MHz"
+    ok = "within" if c["within"] else "OUTSIDE"
+    return (f"{c['quantity']}{f}: {c['measured']:.3f} ± {c['expanded_uncertainty']:.3f} dB, "
+            f"truth {c['truth']:.3f} dB ({ok} U)")
+
+
+def truth_markdown(checks: list[dict]) -> str:
+    n_in = sum(c["within"] for c in checks)
+    lines = ["## The simulated truth", "",
+             "This session comes from the simulated bench (invented data). Each result beside the bench's "
+             f"hidden truth: {n_in} of {len(checks)} lie within their expanded uncertainty (k = 2; about "
+             "95 % are expected to).", "",
+             "| quantity | frequency | measured (dB) | U (dB) | truth (dB) | within U | detail |",
+             "|---|---|---|---|---|---|---|"]
+    for c in checks:
+        f = "" if c["frequency_hz"] is None else f"{c['frequency_hz'] / 1e6:.4f} MHz"
+        lines.append(f"| {c['quantity']} | {f} | {c['measured']:.3f} | {c['expanded_uncertainty']:.3f} | "
+                     f"{c['truth']:.3f} | {'yes' if c['within'] else '**no**'} | {c['detail']} |")
+    return "\n".join(lines)
+
+
+def _answer(analysis) -> str:
+    costs = [c for c in analysis.snr_cost if c["band"] == "10 m"]
+    if not costs:
+        return "no SNR cost on 10 m could be worked out (see the warnings)"
+    parts = [f"{c['snr_degradation_db']:.2f} ± {c['expanded_uncertainty_db']:.2f} dB at "
+             f"{c['frequency_hz'] / 1e6:.1f} MHz (loss {c['loss_db']:.2f} dB, band noise {c['excess_db']:.1f} dB "
+             "above the receiver's)" for c in costs]
+    return ("on 10 m the splitter and filter cost " + "; ".join(parts)
+            + ": the band noise at this quiet site sits well above the receiver's own, so the SNR suffers far "
+              "less than the loss")
+
+
+def run_demo(out, *, seed: int = SEED):
+    """Capture the demo plan on the simulated bench into a new folder, analyse it and write the report.
+
+    Returns (analysis, report_dir, checks, capture warnings).
+    """
+    from bench.capture import run_session
+    from bench.plan import parse_plan
+    from bench.simulated import SimulatedBench
+
+    folder = fresh_folder(out)
+    plan = parse_plan(PLAN_TEXT, "demo plan (built in)")
+    truth = demo_truth()
+    run = run_session(plan, folder, SimulatedBench(truth=truth, seed=seed), yes=True, progress=None)
+    # Analyse first, then write the report with the truth table in it.
+    from bench.report import write_report
+    from bench.session import analyze_session, open_session
+
+    analysis = analyze_session(open_session(folder))
+    checks = truth_checks(analysis, truth, plan)
+    md = f"## The question\n\n{SCENARIO}\n\nAnswer: {_answer(analysis)}.\n\n" + truth_markdown(checks)
+    report_dir = write_report(analysis, extra_markdown=md, extra_json={"truth_checks": checks, "scenario": SCENARIO})
+    return analysis, report_dir, checks, list(run.warnings)
+
+
+def run(args: argparse.Namespace) -> int:
+    analysis, report_dir, checks, cap_warnings = run_demo(args.out)
+    folder = analysis.session.folder
+    n_in = sum(c["within"] for c in checks)
+    result = {
+        "scenario": SCENARIO,
+        "simulated": True,
+        "session_dir": str(folder),
+        "report_dir": str(report_dir),
+        "answer": _answer(analysis),
+        "summary": analysis.summary(),
+        "truth_checks": checks,
+        "n_within": n_in,
+        "n_checks": len(checks),
+        "warnings": cap_warnings + analysis.warnings,
+    }
+    lines = [
+        "rxbench demo (simulated bench, no hardware; invented scenario)",
+        SCENARIO,
+        f"captured {len(analysis.session.entries)} recordings into {folder}/",
+        "results (expanded uncertainty, k = 2):",
+    ]
+    lines += [f"  {x}" for x in summary_lines(analysis)]
+    lines.append(f"against the simulated truth: {n_in} of {len(checks)} results within their uncertainty")
+    brief = [c for c in checks if c["quantity"] not in ("ladder step attenuation",
+                                                         "insertion loss (noise source, sub-band)")]
+    lines += [f"  {_check_line(c)}" for c in brief]
+    for q in ("ladder step attenuation", "insertion loss (noise source, sub-band)"):
+        sel = [c for c in checks if c["quantity"] == q]
+        if sel:
+            lines.append(f"  {q}: {sum(c['within'] for c in sel)} of {len(sel)} within U (table in the report)")
+    lines.append(f"answer: {_answer(analysis)}.")
+    lines.append(f"report: {report_dir / 'report.md'}")
+    lines.append(f"analyse it again with: rxbench analyze {folder}")
+    emit(args, result, "\n".join(lines), cap_warnings + analysis.warnings)
+    return 0
