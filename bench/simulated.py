@@ -151,6 +151,8 @@ class SimulatedBench:
     """
 
     name = "simulated"
+    #: Bytes per read the capture loop asks for (smaller reads: smoother progress, more overhead).
+    chunk_bytes = 65536
 
     def __init__(self, truth: BenchTruth | None = None, *, seed: int | None = 0):
         self.truth = truth if truth is not None else BenchTruth()
