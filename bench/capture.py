@@ -173,8 +173,19 @@ def _write_new(path: Path, text: str) -> None:
         tmp.unlink()
 
 
+def _same_plan_data(text_a: str, text_b: str) -> bool:
+    """True when two plan texts hold the same data (they differ only in comments or layout)."""
+    import tomllib
+
+    try:
+        return tomllib.loads(text_a) == tomllib.loads(text_b)
+    except tomllib.TOMLDecodeError:
+        return False
+
+
 def prepare_session(plan: Plan, session_dir) -> Path:
-    """Create the session folder or check that an existing one holds this plan; returns its path."""
+    """Create the session folder or check that an existing one holds this plan (the same data; comments
+    and layout may differ, and the session keeps its own copy); returns its path."""
     session = Path(session_dir)
     if session.exists() and not session.is_dir():
         raise UsageError(f"{session}: exists and is not a folder")
@@ -185,7 +196,7 @@ def prepare_session(plan: Plan, session_dir) -> Path:
             old = plan_copy.read_text(encoding="utf-8")
         except (OSError, UnicodeDecodeError) as exc:
             raise UsageError(f"{plan_copy}: cannot read the session's plan: {exc}") from None
-        if old != plan.text:
+        if old != plan.text and not _same_plan_data(old, plan.text):
             raise UsageError(f"{plan_copy}: the session was made with a different plan than {plan.source}; "
                              "a session holds one plan: choose a new --out folder")
     else:

@@ -156,13 +156,11 @@ class RtlSdrSource:
         self._thread: threading.Thread | None = None
         self._thread_error: BaseException | None = None
         self._leftover = np.zeros(0, np.uint8)
-        self._lib_error = Exception
 
     # -- opening and closing ---------------------------------------------------------------------
 
     def open(self) -> None:
         rtlsdr = import_rtlsdr()
-        self._lib_error = getattr(rtlsdr.rtlsdr, "LibUSBError", IOError) if hasattr(rtlsdr, "rtlsdr") else IOError
         try:
             count = int(rtlsdr.librtlsdr.rtlsdr_get_device_count())
         except Exception as exc:

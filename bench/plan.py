@@ -402,6 +402,9 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     offset = c.number("generator", g, "offset_hz", default=10_000.0)
     if abs(offset) >= rate / 2:
         c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (+/-{rate / 2:g} Hz)")
+    if abs(offset) < 1000.0:
+        warnings.append(f"{name}, line {c.lines.line('generator', 'offset_hz')}: a tone {offset:g} Hz from the "
+                        "centre sits on the dongle's DC spike; put it a few kHz away")
 
     at = c.table(data, "attenuator")
     c.known("attenuator", at, _ATTENUATOR)

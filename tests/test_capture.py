@@ -188,6 +188,10 @@ def test_never_overwrites_or_mixes_sessions(tmp_path):
     session = tmp_path / "s"
     run_plan(plan(one), session, SimulatedBench(seed=1), yes=True)
     before = session_files(session)
+    # the same plan with a comment added resumes (the session keeps its own copy)
+    commented = "# checked on the bench\n" + one
+    assert run_plan(plan(commented), session, SimulatedBench(seed=1), yes=True) == []
+    assert session_files(session) == before
     other = one.replace("attenuation_db = 50", "attenuation_db = 55")
     with pytest.raises(UsageError, match="different plan"):
         run_plan(plan(other), session, SimulatedBench(seed=1), yes=True)

@@ -464,3 +464,17 @@ def test_interruption_leaves_a_valid_partial_capture(fake_lib, tmp_path):
     metas = run_plan(plan, session, RtlSdrSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True)
     assert [m.name for m in metas] == ["02-dut.sigmf-meta"]
     assert np.array_equal(np.fromfile(session / "02-dut.partial.sigmf-data", dtype=np.uint8), raw)
+
+
+def test_cli_without_a_dongle_is_one_clear_line(fake_lib, tmp_path, capsys):
+    from bench.cli import main
+
+    fake_lib(FakeLibrtlsdr(n_devices=0))
+    path = tmp_path / "p.toml"
+    path.write_text(PLAN)
+    code = main(["capture", str(path), "--out", str(tmp_path / "s"), "--yes"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2
+    assert err[-1].startswith("rxbench capture: error: no dongle found")
+    assert "Traceback" not in "\n".join(err)
+    assert not (tmp_path / "s").exists()  # nothing created for a run that could not start

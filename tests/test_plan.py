@@ -172,6 +172,9 @@ def test_warnings_for_questionable_but_valid_plans():
     plan = parse_plan(no_level + '[[step]]\nname="a"\nrole="thru"\ncenter_hz = 7.1e6\n', "p.toml")
     text = " ".join(plan.warnings)
     assert "level_dbm" in text and "24 MHz" in text
+    plan = parse_plan(BASE.replace("level_dbm = -40.0", "level_dbm = -40.0\noffset_hz = 0")
+                      + '[[step]]\nname="a"\nrole="thru"\n', "p.toml")
+    assert any("line 9" in w and "DC spike" in w for w in plan.warnings)
     plan = parse_plan(BASE.replace("[dongle]", "[dongle]\nbias_tee = true") + '[[step]]\nname="a"\nrole="load"\n',
                       "p.toml")
     assert any("bias tee" in w for w in plan.warnings)
