@@ -128,6 +128,8 @@ def stdin_prompt(message: str) -> str:
     sys.stderr.write(message)
     sys.stderr.flush()
     line = sys.stdin.readline() if sys.stdin is not None else ""
+    if line and not sys.stdin.isatty():  # a piped answer is not echoed: end the prompt's line
+        sys.stderr.write("\n")
     if not line:
         raise UsageError("no operator at the terminal (standard input closed): use --yes for an "
                          "unattended run")
