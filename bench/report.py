@@ -31,7 +31,7 @@ import numpy as np
 
 from bench.errors import UsageError
 from bench.output import _clean, fmt_db
-from bench.session import Analysis, band_name
+from bench.session import QUIET_GALACTIC, Analysis
 from dsp.units import db_from_power
 
 REPORT_DIR = "report"
@@ -43,7 +43,9 @@ C_FLOOR = "#D55E00"
 C_TONE = "#009E73"
 C_BAD = "#CC0000"
 C_GREY = "#777777"
-ENV_COLOURS = {"city": "#E69F00", "residential": "#56B4E9", "rural": "#009E73", "quiet-rural": "#CC79A7"}
+ENV_COLOURS = {"city": "#E69F00", "residential": "#56B4E9", "rural": "#009E73", "quiet-rural": "#CC79A7",
+               QUIET_GALACTIC: "#999999"}
+C_DIRECT = "#1B3A5C"
 DPI = 100
 
 CAUTIONS = (
@@ -124,8 +126,8 @@ def summary_lines(analysis: Analysis) -> list[str]:
         per = ""
         if x["n_devices"] > 1:
             per = f"; per device {_pm(x['per_device_db'], x['expanded_uncertainty_per_device_db'])}"
-        lines.append(f"insertion loss ({x['method']}) at {_mhz(x['frequency_hz'])}: "
-                     f"{_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}")
+        lines.append(f"insertion loss ({x['method']}, device at {x['dut_attenuation_db']:g} dB) at "
+                     f"{_mhz(x['frequency_hz'])}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}")
     for lad in analysis.ladders:
         flagged = [s for s in lad["steps"] if s["flagged"]]
         text = (f"ladder at {_mhz(lad['center_hz'])}: {len(lad['steps'])} steps, dongle linear from "
@@ -145,9 +147,12 @@ def summary_lines(analysis: Analysis) -> list[str]:
         lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
                      f"{_pm(ex['excess_db'], ex['expanded_uncertainty_db'])} above the receiver's own")
     for c in analysis.snr_cost:
-        lines.append(f"SNR cost on {c['band']} ({_mhz(c['frequency_hz'])}): "
-                     f"{_pm(c['snr_degradation_db'], c['expanded_uncertainty_db'])} "
-                     f"for a loss of {c['loss_db']:.2f} dB")
+        text = (f"SNR cost on {c['band']} ({_mhz(c['frequency_hz'])}): "
+                f"{_pm(c['snr_degradation_db'], c['expanded_uncertainty_db'])} for a loss of {c['loss_db']:.2f} dB")
+        if c.get("snr_degradation_through_dut_db") is not None:
+            text += (f" (antenna through the device: "
+                     f"{_pm(c['snr_degradation_through_dut_db'], c['expanded_uncertainty_through_dut_db'])})")
+        lines.append(text)
     if not lines:
         lines.append("no measurement could be made from these captures (see the warnings)")
     return lines
@@ -175,14 +180,14 @@ def _spectrum_panel(ax, entry, reading) -> None:
     cap = entry.capture
     f_khz = psd.frequency_hz / 1e3
     dens_db = db_from_power(np.maximum(psd.density, 1e-300))
-    ax.plot(f_khz, dens_db, color=C_TRACE, lw=0.7, label="spectrum")
+    ax.plot(f_khz, dens_db, color=C_TRACE, lw=0.6, alpha=0.8, label="spectrum", zorder=2)
     floor_db = db_from_power(floor.density)
-    ax.axhline(floor_db, color=C_FLOOR, lw=1.2, ls="--", label=f"noise floor {floor_db:.1f} dBFS/Hz")
+    ax.axhline(floor_db, color="black", lw=1.6, ls="--", zorder=3, label=f"noise floor {floor_db:.1f} dBFS/Hz")
     top = float(np.max(dens_db))
     if tone is not None and entry.role in ("thru", "dut", "step"):
         k = psd.index_of(tone.offset_hz)
-        ax.plot([tone.offset_hz / 1e3], [dens_db[k]], marker="v", ms=8, color=C_TONE, ls="none",
-                label=f"tone {tone.power_dbfs:.2f} dBFS")
+        ax.plot([tone.offset_hz / 1e3], [dens_db[k] + 2.5], marker="v", ms=9, color=C_TONE, ls="none", zorder=4,
+                label=f"tone {tone.power_dbfs:.2f} dBFS at {tone.offset_hz / 1e3:+.2f} kHz")
     ax.set_ylim(floor_db - 15, max(top, floor_db + 10) + 6)
     ax.set_xlim(f_khz[0], f_khz[-1])
     centre = "" if cap.center_hz is None else f" from {cap.center_hz / 1e6:.3f} MHz"
@@ -323,31 +328,49 @@ def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
     if not costs:
         return False
     envs = [e for e in ENV_COLOURS if any(c["predicted"] and e in c["predicted"] for c in costs)]
-    n_bars = 1 + len(envs)
+    through = any(c.get("snr_degradation_through_dut_db") is not None for c in costs)
+    n_bars = 1 + int(through) + len(envs)
     width = 0.8 / n_bars
-    fig = _figure(max(6.0, 2.2 * len(costs) + 3.0), 4.8)
+    fig = _figure(max(7.0, 2.6 * len(costs) + 3.0), 5.2)
     ax = fig.subplots()
     x = np.arange(len(costs))
+    left = x - 0.4 + width / 2
+
+    def labelled(bars, values, bold=False):
+        for b, v in zip(bars, values):
+            if np.isfinite(v):
+                ax.annotate(f"{v:.2f}", (b.get_x() + b.get_width() / 2, v), textcoords="offset points",
+                            xytext=(0, 10 if bold else 2), ha="center", fontsize=9 if bold else 7,
+                            fontweight="bold" if bold else "normal")
+
     meas = np.array([c["snr_degradation_db"] for c in costs])
     err = np.array([c["expanded_uncertainty_db"] for c in costs])
-    bars = ax.bar(x - 0.4 + width / 2, meas, width, yerr=err, capsize=4, color=C_TRACE,
-                  label="measured at this site (±U)")
-    for b, v in zip(bars, meas):
-        ax.annotate(f"{v:.2f} dB", (b.get_x() + b.get_width() / 2, v), textcoords="offset points",
-                    xytext=(0, 12), ha="center", fontsize=9, fontweight="bold")
-    for j, e in enumerate(envs, start=1):
+    labelled(ax.bar(left, meas, width, yerr=err, capsize=4, color=C_TRACE,
+                    label="measured: loss and band-noise excess (±U)"), meas, bold=True)
+    j = 1
+    if through:
+        vals = np.array([np.nan if c.get("snr_degradation_through_dut_db") is None
+                         else c["snr_degradation_through_dut_db"] for c in costs])
+        errs = np.array([c.get("expanded_uncertainty_through_dut_db") or 0.0 for c in costs])
+        labelled(ax.bar(left + width, vals, width, yerr=errs, capsize=4, color=C_DIRECT,
+                        label="measured: antenna through the device (±U)"), vals, bold=True)
+        j = 2
+    for i, e in enumerate(envs):
         vals = np.array([c["predicted"].get(e, np.nan) if c["predicted"] else np.nan for c in costs])
-        ax.bar(x - 0.4 + width / 2 + j * width, vals, width, color=ENV_COLOURS[e], alpha=0.75,
-               label=f"predicted, ITU-R P.372 {e}")
-    labels = [f"{c['band']}\n{c['frequency_hz'] / 1e6:.3f} MHz\nloss {c['loss_db']:.2f} dB, "
-              f"excess {c['excess_db']:.1f} dB" for c in costs]
+        labelled(ax.bar(left + (j + i) * width, vals, width, color=ENV_COLOURS[e], alpha=0.8,
+                        label=f"predicted: ITU-R P.372 {e}"), vals)
+    for xi, c in zip(x, costs):
+        ax.hlines(c["loss_db"], xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
+    ax.plot([], [], ":", color=C_BAD, label="the loss itself (the cost if the receiver's noise dominated)")
+    labels = [f"{c['band']}, {c['frequency_hz'] / 1e6:.3f} MHz\nloss {c['loss_db']:.2f} dB, band noise "
+              f"{c['excess_db']:.1f} dB over the receiver's" for c in costs]
     ax.set_xticks(x, labels, fontsize=8)
     ax.set_ylabel("SNR lost to the device (dB)")
     ax.set_title("What the loss costs in signal-to-noise ratio, per band")
     top = float(np.nanmax(np.append(meas + err, [c["loss_db"] for c in costs])))
-    ax.set_ylim(0, top * 1.15 + 0.2)
+    ax.set_ylim(0, top * 1.45 + 0.2)
     ax.grid(True, axis="y", lw=0.3)
-    ax.legend(fontsize=8, loc="upper left")
+    ax.legend(fontsize=7.5, loc="upper left", ncols=2)
     _save(fig, path)
     return True
 
@@ -407,7 +430,10 @@ def csv_rows(analysis: Analysis) -> list[dict]:
             add("external_noise", "fa", ex["frequency_hz"], ex["fa_db"], "dB", None, "from excess and NF", ex["band"])
     for c in analysis.snr_cost:
         add("snr_cost", "snr_degradation", c["frequency_hz"], c["snr_degradation_db"], "dB",
-            c["expanded_uncertainty_db"], "measured", c["band"])
+            c["expanded_uncertainty_db"], "from loss and excess", c["band"])
+        if c.get("snr_degradation_through_dut_db") is not None:
+            add("snr_cost", "snr_degradation", c["frequency_hz"], c["snr_degradation_through_dut_db"], "dB",
+                c["expanded_uncertainty_through_dut_db"], "antenna through the device", c["band"])
         for env, v in (c["predicted"] or {}).items():
             add("snr_cost", "snr_degradation_predicted", c["frequency_hz"], v, "dB", None, f"ITU-R P.372 {env}",
                 c["band"])
@@ -462,15 +488,20 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
           "comparator (Kaylie 1966).\n\n")
         rows = []
         for x in analysis.losses:
-            rows.append([x["method"], _mhz(x["frequency_hz"]), _f(x["insertion_loss_db"], 3),
+            rows.append([x["method"], f"{x['dut_attenuation_db']:g}", _mhz(x["frequency_hz"]), _f(x["insertion_loss_db"], 3),
                          _f(x["expanded_uncertainty_db"], 3), x["n_devices"], _f(x["per_device_db"], 3),
                          "" if x["drift_db"] is None else f"{x['drift_db']:+.3f}",
                          "" if x["bracket_db"] is None else f"{x['bracket_db'][0]:g}–{x['bracket_db'][1]:g} dB"])
-        w(_table(["method", "frequency", "loss (dB)", "U (dB)", "devices", "per device (dB)", "thru drift (dB)",
-                  "between steps"], rows) + "\n\n")
+        w(_table(["method", "device at (dB)", "frequency", "loss (dB)", "U (dB)", "devices", "per device (dB)",
+                  "thru drift (dB)", "between steps"], rows) + "\n\n")
+        w("Mismatch between generator, attenuator, device and dongle is not in these budgets (no SWRs are "
+          "recorded in the session); with SWRs known, `rxbench loss --source-swr --load-swr --dut-swr` "
+          "adds it (Harris & Warner 1981). It is commonly a few tenths of a dB.\n\n")
         for x in analysis.losses:
-            w(f"Budget, {x['method']} at {_mhz(x['frequency_hz'])} (u_c = {x['u_db']:.3f} dB, "
-              f"ν_eff = {_f(x['dof_eff'], 0)}):\n\n")
+            nu = x["dof_eff"]
+            nu_text = "> 1000" if nu is None or not math.isfinite(nu) or nu > 1000 else f"{nu:.0f}"
+            w(f"Budget, {x['method']} with the device at {x['dut_attenuation_db']:g} dB "
+              f"(u_c = {x['u_db']:.3f} dB, ν_eff = {nu_text}):\n\n")
             w(_table(["component", "u (dB)", "sensitivity", "contribution (dB)", "type", "note"],
                      [[c["name"], f"{c['u_db']:.4f}", f"{c['sensitivity']:.3f}", f"{c['contribution_db']:.4f}",
                        f"{c['kind']}, {c['distribution']}", c["note"]] for c in x["budget"]]) + "\n\n")
@@ -518,16 +549,31 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
                          "n/a" if ex.get("antenna_temperature_k") is None else f"{ex['antenna_temperature_k']:.0f}",
                          _f(ex.get("fa_db"), 1)])
         w(_table(["band", "frequency", "excess X", "receiver NF (dB)", "T_a (K)", "F_a (dB)"], rows) + "\n\n")
+        for ex in analysis.external_noise:
+            knee = ex.get("knee")
+            if knee:
+                steps = ", ".join(f"{v:g}" for v in knee["steps_db"])
+                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: the antenna through {steps} dB of attenuation "
+                  f"(and the load) fits the lossy-network model with an excess of {_pm(knee['excess_db'], 2 * knee['u_excess_db'])}, "
+                  f"residuals {knee['residual_rms_db']:.2f} dB RMS.\n")
+            td = ex.get("through_dut")
+            if td:
+                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: through the device the antenna noise drops by "
+                  f"{_pm(td['drop_db'], 2 * td['u_drop_db'])}.\n")
+        w("\n")
         if analysis.snr_cost:
             envs = list(ENV_COLOURS)
             rows = []
             for c in analysis.snr_cost:
                 pred = c["predicted"] or {}
                 rows.append([c["band"], _mhz(c["frequency_hz"]), _pm(c["loss_db"], 2 * c["u_loss_db"]),
-                             _pm(c["snr_degradation_db"], c["expanded_uncertainty_db"])]
+                             _pm(c["snr_degradation_db"], c["expanded_uncertainty_db"]),
+                             _pm(c.get("snr_degradation_through_dut_db"), c.get("expanded_uncertainty_through_dut_db"))]
                             + [_f(pred.get(e)) for e in envs])
-            w(_table(["band", "frequency", "loss", "SNR cost (measured)"] + [f"{e} (dB)" for e in envs], rows)
-              + "\n\n")
+            w(_table(["band", "frequency", "loss", "SNR cost (from the excess)", "SNR cost (antenna through the device)"]
+                     + [f"{e} (dB)" for e in envs], rows) + "\n\n")
+            w("The cost through the device is L minus the drop of the antenna noise through it: "
+              "SNR_with/SNR_without = N_with/(L·N_without) at the dongle, with no noise model needed.\n\n")
             for c in analysis.snr_cost:
                 w(f"- {c['band']}: loss taken from the {c['loss_source']}.\n")
             w("\n")

@@ -86,6 +86,8 @@ AMATEUR_BANDS = (
 )
 
 _DB = 10.0 / math.log(10.0)
+#: Name of the prediction with galactic noise added to the quietest man-made category.
+QUIET_GALACTIC = "quiet-rural + galactic"
 
 
 def band_name(frequency_hz: float | None) -> str:
@@ -388,9 +390,15 @@ class Analysis:
 
 def budget_dict(budget: Budget) -> list[dict]:
     """The lines of an uncertainty budget, JSON-ready."""
-    return [{"name": c.name, "u_db": c.u, "sensitivity": c.sensitivity, "contribution_db": c.contribution,
-             "dof": c.dof, "kind": c.kind, "distribution": c.distribution, "half_width_db": c.half_width,
-             "note": c.note} for c in budget.components]
+    out = []
+    for c in budget.components:
+        note = c.note
+        if not note and c.name.startswith("attenuator setting") and c.half_width == 0:
+            note = "tolerance not stated (plan: [attenuator] tolerance_db); not counted"
+        out.append({"name": c.name, "u_db": c.u, "sensitivity": c.sensitivity, "contribution_db": c.contribution,
+                    "dof": c.dof, "kind": c.kind, "distribution": c.distribution, "half_width_db": c.half_width,
+                    "note": note})
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -492,10 +500,11 @@ def _ladder(center, steps: list[Entry], readings, warnings) -> tuple[dict | None
     }, pooled
 
 
-def _loss_dict(loss, center, offset_hz, n_devices, captures: dict) -> dict:
+def _loss_dict(loss, center, offset_hz, n_devices, captures: dict, dut_attenuation_db: float) -> dict:
     u = loss.u_db
     return {
         "method": loss.method,
+        "dut_attenuation_db": dut_attenuation_db,
         "center_hz": center,
         "frequency_hz": None if center is None else center + offset_hz,
         "insertion_loss_db": loss.loss_db,
@@ -576,10 +585,11 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> No
                 warnings.append(f"substitution {where}: {exc}")
                 continue
             if not tols:
-                warnings.append(f"substitution {where}: the attenuator's tolerance is not in the metadata "
-                                "(rxbench:attenuator_tolerance_db); the loss is only as good as its steps")
+                warnings.append(f"substitution {where}: the attenuator's tolerance is not stated (plan: "
+                                "[attenuator] tolerance_db); the loss is only as good as its steps, and the "
+                                "budget leaves them out")
             d = _loss_dict(loss, center, dut.offset_hz, n_dev, {"dut": dut.names, "ladder": {
-                f"{db:g}": p.names for db, p in pooled_ladder.items()}})
+                f"{db:g}": p.names for db, p in pooled_ladder.items()}}, att)
             analysis.losses.append(d)
 
 
@@ -619,7 +629,7 @@ def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_d
     caps = {"thru": before.names, "dut": dut.names}
     if after is not None:
         caps["thru_after"] = after.names
-    analysis.losses.append(_loss_dict(loss, center, dut.offset_hz, n_dev, caps))
+    analysis.losses.append(_loss_dict(loss, center, dut.offset_hz, n_dev, caps, att))
 
 
 # --------------------------------------------------------------------------------------------
@@ -811,15 +821,19 @@ def _external(center, group: list[Entry], readings, analysis: Analysis):
     warnings = analysis.warnings
     where = f"external noise at {_mhz(center)}"
     ant = [e for e in group if e.role == "antenna" and not e.through_dut]
+    ant_dut = [e for e in group if e.role == "antenna" and e.through_dut]
     for e in group:
-        if e.role in ("antenna", "load") and e.through_dut:
-            warnings.append(f"{where}: {e.name} was taken through the DUT; the excess uses captures without it")
+        if e.role == "load" and e.through_dut:
+            warnings.append(f"{where}: {e.name} is a load through the DUT; the excess uses the load without it")
+        if e.role == "antenna" and e.through_dut and e.attenuation_or_zero != 0.0:
+            warnings.append(f"{where}: {e.name} is the antenna through the DUT and an attenuator; left out")
     load = [e for e in group if e.role == "load" and not e.through_dut]
     if not ant:
-        warnings.append(f"{where}: a load capture but no antenna capture; no excess")
+        warnings.append(f"{where}: no antenna capture without the DUT; no excess")
         return None
     ref = ant[0]
     ant, load = _compatible(ant, ref, where, warnings), _compatible(load, ref, where, warnings)
+    ant_dut = _compatible([e for e in ant_dut if e.attenuation_or_zero == 0.0], ref, where, warnings)
     by_att: dict = {}
     for e in ant:
         by_att.setdefault(e.attenuation_or_zero, []).append(e)
@@ -866,6 +880,12 @@ def _external(center, group: list[Entry], readings, analysis: Analysis):
         warnings.append(f"{where}: no antenna capture at 0 dB with a load, and no usable fit; no excess")
         return None
     res.update(excess_db=excess, u_excess_db=u_excess, expanded_uncertainty_db=DEFAULT_K * u_excess)
+    res["through_dut"] = None
+    if ant_dut and 0.0 in points:
+        (da, ua), (dd, ud) = points[0.0], dens(ant_dut)
+        res["through_dut"] = {"density_dbfs_per_hz": float(db_from_power(dd)),
+                              "drop_db": float(db_from_power(da / dd)), "u_drop_db": _DB * math.hypot(ua / da, ud / dd),
+                              "captures": [e.name for e in ant_dut]}
     if excess < LOW_EXCESS_DB:
         warnings.append(f"{where}: the antenna brings only {excess:.2f} dB more noise than the load: "
                         "the receiver's own noise dominates, so every dB of loss costs nearly a dB of SNR")
@@ -883,6 +903,7 @@ def _external(center, group: list[Entry], readings, analysis: Analysis):
                        fa_db=float(env.fa_db_from_temperature(ta)) if ta > 0 else None)
     if center is not None and env.VALID_RANGE_HZ[0] <= center <= env.VALID_RANGE_HZ[1]:
         res["itu_fa_db"] = {k: float(env.man_made_fa_db(center, k)) for k in env.MAN_MADE_NOISE}
+        res["itu_fa_db"][QUIET_GALACTIC] = float(env.external_fa_db(center, "quiet-rural", galactic=True))
     return res
 
 
@@ -916,6 +937,17 @@ def _snr_costs(analysis: Analysis) -> None:
                  "loss_source": source, "loss_frequency_hz": loss_hz, "excess_db": x, "u_excess_db": u_x, "snr_degradation_db": cost,
                  "u_db": u, "expanded_uncertainty_db": DEFAULT_K * u, "k": DEFAULT_K,
                  "receiver_noise_figure_db": ex.get("receiver_noise_figure_db"), "predicted": None}
+        thru_dut = ex.get("through_dut")
+        if thru_dut is not None:
+            # SNR through the DUT over SNR without it: L * N_dut / N_antenna (noise densities at the
+            # dongle), so the cost is L - drop, with no model of the noise needed.
+            direct = loss_db - thru_dut["drop_db"]
+            u_direct = math.hypot(u_loss, thru_dut["u_drop_db"])
+            entry.update(snr_degradation_through_dut_db=direct, expanded_uncertainty_through_dut_db=DEFAULT_K * u_direct)
+            if abs(direct - cost) > DEFAULT_K * math.hypot(u, u_direct) + 0.05:
+                analysis.warnings.append(
+                    f"{where}: the cost from the excess ({cost:.2f} dB) and from the antenna through the DUT "
+                    f"({direct:.2f} dB) disagree; check that the band noise was steady between the captures")
         nf = ex.get("receiver_noise_figure_db")
         if nf is not None and ex.get("itu_fa_db"):
             trx = noise_temperature_from_nf_db(nf)

@@ -49,8 +49,12 @@ full_scale_dbm = -80.0
 level_dbm = -85.0
 offset_hz = 20000
 
+[attenuator]
+tolerance_db = 0.05
+
 [noise_source]
 enr_db = 15.0
+u_enr_db = 0.05
 
 [defaults]
 center_hz = 28.4e6
@@ -231,7 +235,8 @@ with_dut = true
 center_hz = 29.6e6
 duration_s = 0.1
 
-# 4. Band noise: the antenna against a 50-ohm load (and through 6 and 12 dB for the knee).
+# 4. Band noise: the antenna against a 50-ohm load (and through 6 and 12 dB for the knee, and through
+#    the device for a direct reading of what it costs).
 [[step]]
 name = "antenna-28.4"
 role = "antenna"
@@ -249,6 +254,13 @@ role = "antenna"
 attenuation_db = 12
 center_hz = 28.4e6
 duration_s = 0.1
+[[step]]
+name = "antenna-28.4-device"
+role = "antenna"
+with_dut = true
+center_hz = 28.4e6
+duration_s = 0.1
+instruction = "The antenna through the splitter and filter into the dongle (other splitter port terminated)."
 [[step]]
 name = "load-28.4"
 role = "load"
@@ -269,12 +281,13 @@ duration_s = 0.1
 
 def demo_truth():
     """The simulated bench of the demo (invented): the field station's device, a step attenuator
-    whose low steps are good and whose 30 dB step is 0.45 dB off, a quiet rural site with galactic
+    within its stated 0.05 dB except the 30 dB step (0.45 dB off), a quiet rural site with galactic
     noise on 10 m, and a dongle that compresses near full scale."""
     from bench.simulated import BenchTruth
 
     return BenchTruth(
-        attenuator_errors_db=((30.0, 0.45), (40.0, 0.08), (50.0, -0.1)),
+        attenuator_errors_db=((2.0, 0.02), (4.0, -0.03), (6.0, 0.02), (8.0, -0.04), (10.0, 0.03), (20.0, -0.05),
+                              (30.0, 0.45), (40.0, 0.04), (50.0, -0.05)),
         environment="quiet-rural",
         galactic=True,
     )
@@ -379,6 +392,9 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
         big_l = power_from_db(truth.dut_loss_db(c["loss_frequency_hz"]))
         true = float(db_from_power(1.0 + (big_l - 1.0) / x_true[c["frequency_hz"]]))
         add("SNR cost", c["frequency_hz"], c["snr_degradation_db"], c["expanded_uncertainty_db"], true, c["band"])
+        if c.get("snr_degradation_through_dut_db") is not None:
+            add("SNR cost (antenna through the device)", c["frequency_hz"], c["snr_degradation_through_dut_db"],
+                c["expanded_uncertainty_through_dut_db"], true, c["band"])
     return checks
 
 
