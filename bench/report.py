@@ -162,11 +162,11 @@ def summary_lines(analysis: Analysis) -> list[str]:
 # Plots
 
 
-def _figure(width_in: float, height_in: float):
+def _figure(width_in: float, height_in: float, *, constrained: bool = True):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained")
+    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained" if constrained else None)
     FigureCanvasAgg(fig)
     return fig
 
@@ -209,7 +209,11 @@ def plot_spectra(analysis: Analysis, folder: Path) -> list[str]:
         chunk = items[start:start + PANELS_PER_PAGE]
         cols = 3 if len(chunk) > 4 else min(len(chunk), 2)
         rows = math.ceil(len(chunk) / cols)
-        fig = _figure(5.0 * cols, 3.0 * rows + 0.4)
+        height = 3.0 * rows + 0.5
+        # Fixed margins (a constrained layout of many panels costs more than the drawing itself).
+        fig = _figure(5.0 * cols, height, constrained=False)
+        fig.subplots_adjust(left=0.06 if cols > 1 else 0.12, right=0.98, bottom=0.55 / height * 1.1,
+                            top=1.0 - 0.75 / height, hspace=0.55, wspace=0.25)
         axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False)).ravel()
         for ax, (e, r) in zip(axes, chunk):
             _spectrum_panel(ax, e, r)

@@ -602,7 +602,7 @@ def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_d
         first = min(e.time_s for e in dut.entries)
         last = max(e.time_s for e in dut.entries)
         b = [e for e in thrus if e.time_s <= first]
-        a = [e for e in thrus if e.time_s >= last]
+        a = [e for e in thrus if e.time_s > last]
         before = _pool(b, readings) if b else None
         after = _pool(a, readings) if a else None
         if before is None:
