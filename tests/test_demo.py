@@ -120,3 +120,28 @@ def test_demo_never_reuses_a_folder(tmp_path):
     (tmp_path / "rxbench-demo-2").mkdir()
     assert demo.fresh_folder(taken) == tmp_path / "rxbench-demo-3"
     assert demo.fresh_folder(tmp_path / "new") == tmp_path / "new"
+
+
+def test_saved_recordings_analyse_offline_to_the_truth(tmp_path):
+    """`rxbench analyze recordings/field-station` works with no simulation, and its numbers cover the
+    truth of the bench that recorded them (recordings/README.md)."""
+    import shutil
+    from pathlib import Path
+
+    from bench.plan import load_plan
+
+    src = Path(__file__).resolve().parent.parent / "recordings" / "field-station"
+    folder = tmp_path / "field-station"
+    shutil.copytree(src, folder)  # the report is written inside the session: work on a copy
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        assert main(["analyze", str(folder), "--json"]) == 0, err.getvalue()
+    doc = json.loads(out.getvalue())
+    assert doc["n_captures"] == 41 and (folder / "report" / "report.md").is_file()
+    from bench.session import analyze_session, open_session
+
+    analysis = analyze_session(open_session(folder))
+    checks = demo.truth_checks(analysis, demo.demo_truth(), load_plan(folder / "plan.toml"))
+    headline = [c for c in checks if "sub-band" not in c["quantity"]]
+    assert len(headline) >= 20 and all(c["within"] for c in headline), [c for c in headline if not c["within"]]
+    assert sum(c["within"] for c in checks) >= 0.9 * len(checks)
