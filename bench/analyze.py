@@ -60,6 +60,8 @@ def choose_nperseg(n_samples: int, requested: int | None = None) -> int:
 def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann") -> tuple[Psd, Health]:
     """One streaming pass: averaged PSD and health of a capture. Raises CaptureError on bad samples."""
     n = choose_nperseg(capture.n_samples, nperseg)
+    if not 16 <= n <= 1 << 24:
+        raise CaptureError(capture.path, f"FFT segment length {n} is outside 16 .. 16777216")
     if capture.n_samples < n:
         raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
     acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex)

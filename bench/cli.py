@@ -84,6 +84,9 @@ def main(argv: list[str] | None = None) -> int:
     except RxbenchError as exc:
         print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except ValueError as exc:  # a value the numerics refuse (dsp/ validates its inputs)
+        print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print(f"rxbench {args.command}: interrupted", file=sys.stderr)
         return 130
