@@ -95,10 +95,13 @@ def _install(tmp: Path, final: Path, overwrite: bool) -> Path:
 
 
 def _pm(value, u, digits=2, unit="dB") -> str:
+    """``value ± u`` in dB; a third decimal when the uncertainty would otherwise print as 0.0x."""
     if value is None:
         return "n/a"
     if u is None or not math.isfinite(u):
         return f"{fmt_db(value, digits)} {unit}"
+    if u < 0.05:
+        digits = max(digits, 3)
     return f"{fmt_db(value, digits)} ± {u:.{digits}f} {unit}"
 
 

@@ -615,6 +615,10 @@ def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_d
                         f"({before.dbfs:.1f} dBFS) and DUT ({dut.dbfs:.1f} dBFS) levels; prefer the "
                         "substitution loss")
     lin_db = LADDER_LINEARITY_DB if linear else 0.0
+    if linear is None:
+        warnings.append(f"{where}: no ladder in the session, so the dongle's linearity between the thru "
+                        f"({before.dbfs:.1f} dBFS) and DUT ({dut.dbfs:.1f} dBFS) levels is not in the budget; "
+                        "the uncertainty covers the readings only (add a ladder, or use substitution)")
     kw = {}
     if after is not None:
         kw = dict(thru_after_dbfs=after.dbfs, u_thru_after_db=after.u_db,
