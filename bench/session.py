@@ -120,6 +120,7 @@ class Entry:
     attenuator_tolerance_db: float | None
     tone_offset_hz: float | None = None
     dropped_samples: int = 0
+    u_enr_db: float | None = None
 
     @property
     def name(self) -> str:
@@ -196,7 +197,7 @@ def _parse_time(text) -> float | None:
     return t.timestamp()
 
 
-def _number(extra, key, path) -> float | None:
+def _number(extra, key) -> float | None:
     value = extra.get(key)
     if value is None:
         return None
@@ -213,21 +214,22 @@ def _entry(cap: Capture) -> Entry:
         raise ValueError("no rxbench:role in its metadata (which part of the measurement is it?)")
     if role not in keys.ROLES:
         raise ValueError(f"rxbench:role {role!r} is not one of {', '.join(keys.ROLES)}")
-    att = _number(x, "attenuation_db", cap.path)
+    att = _number(x, "attenuation_db")
     if att is not None and att < 0:
         raise ValueError(f"rxbench:attenuation_db is {att:g}, below 0 dB")
-    enr = _number(x, "enr_db", cap.path)
-    tol = _number(x, "attenuator_tolerance_db", cap.path)
+    enr = _number(x, "enr_db")
+    tol = _number(x, "attenuator_tolerance_db")
     devices = x.get("devices", 1)
     if isinstance(devices, bool) or not isinstance(devices, int) or devices < 1:
         raise ValueError(f"rxbench:devices is {devices!r}, not a whole number >= 1")
     through = x.get(WITH_DUT_KEY) is True or role == "dut"
     return Entry(
         capture=cap, role=role, step=str(x.get("step", "")), attenuation_db=att,
-        gain_db=_number(x, "gain_db", cap.path), through_dut=through,
+        gain_db=_number(x, "gain_db"), through_dut=through,
         time_s=_parse_time(cap.datetime), enr_db=enr, n_devices=devices, attenuator_tolerance_db=tol,
-        tone_offset_hz=_number(x, "tone_offset_hz", cap.path) if role in TONE_ROLES else None,
-        dropped_samples=int(_number(x, "dropped_samples", cap.path) or 0),
+        tone_offset_hz=_number(x, "tone_offset_hz") if role in TONE_ROLES else None,
+        dropped_samples=int(_number(x, "dropped_samples") or 0),
+        u_enr_db=_number(x, "u_enr_db"),
     )
 
 
@@ -691,7 +693,7 @@ def _noise_source(center, group: list[Entry], readings, analysis: Analysis, n_su
     ih = list(range(n_c, n_c + n_h))
     c_dens, c_dof = _pool_density(sb, ic)
     h_dens, h_dof = _pool_density(sb, ih)
-    u_enr_db = max((float(e.capture.extra.get("u_enr_db", 0.0) or 0.0) for e in hot), default=0.0)
+    u_enr_db = max((e.u_enr_db or 0.0 for e in hot), default=0.0)
     try:
         yf = noisefig.y_factor(h_dens, c_dens, sb.enr, dof_hot=h_dof, dof_cold=c_dof, u_enr_db=u_enr_db)
     except ValueError as exc:
