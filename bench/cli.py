@@ -87,6 +87,10 @@ def main(argv: list[str] | None = None) -> int:
     except ValueError as exc:  # a value the numerics refuse (dsp/ validates its inputs)
         print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except OSError as exc:  # disk full, permission denied, device gone: no traceback
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"rxbench {args.command}: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print(f"rxbench {args.command}: interrupted", file=sys.stderr)
         return 130

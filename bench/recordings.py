@@ -529,34 +529,51 @@ class SigmfWriter:
             os.fsync(f.fileno())
 
     def commit(self, extra_updates: Mapping | None = None) -> Path:
-        """Finish: metadata written, both files linked into place. Returns the metadata path."""
+        """Finish: metadata written, both files linked into place. Returns the metadata path.
+
+        If finishing fails (disk full, a recording of the same name appeared meanwhile), nothing is
+        left under the final name and the samples are kept as a ``.partial`` recording.
+        """
         if self.done:
             raise RuntimeError("recording already finished")
-        self.done = True
+        data_linked = False
         try:
             self._finish_files(self._metadata(False, extra_updates))
             _link_into_place(self._tmp_data, self.data_path, self.overwrite)
-            try:
-                _link_into_place(self._tmp_meta, self.meta_path, self.overwrite)
-            except CaptureError:
-                os.unlink(self.data_path)
-                raise
-        finally:
-            for p in (self._tmp_data, self._tmp_meta):
-                if p.exists():
-                    p.unlink()
+            data_linked = True
+            _link_into_place(self._tmp_meta, self.meta_path, self.overwrite)
+        except BaseException:
+            if data_linked:  # move the samples back so the partial keeps them
+                os.rename(self.data_path, self._tmp_data)
+            if self._tmp_meta.exists():
+                self._tmp_meta.unlink()
+            self.abandon(keep_partial=True)
+            raise
+        self.done = True
         return self.meta_path
 
     def abandon(self, keep_partial: bool = True) -> Path | None:
         """Stop writing. With samples written and ``keep_partial``, keep them as a ``.partial``
-        recording marked incomplete and return its metadata path; otherwise remove the temporaries."""
+        recording marked incomplete and return its metadata path; otherwise remove the temporaries.
+
+        Works on a full disk too: the samples already on disk are renamed (which needs no space)
+        before the small metadata file is attempted.
+        """
         if self.done:
             return None
         self.done = True
+        try:
+            self._file.close()
+        except OSError:
+            pass  # a failed flush of the last buffer (disk full): what reached the disk is kept
         kept = None
         try:
+            size = self._tmp_data.stat().st_size if self._tmp_data.exists() else 0
+            self.n_samples = size // (self.encoding.bytes_per_sample)
             if keep_partial and self.n_samples:
-                self._finish_files(self._metadata(True, None))
+                if size % self.encoding.bytes_per_sample:
+                    with open(self._tmp_data, "r+b") as f:  # drop a half-written last sample
+                        f.truncate(self.n_samples * self.encoding.bytes_per_sample)
                 base = self.meta_path.name[: -len(META_SUFFIX)]
                 for i in range(1000):
                     stem = f"{base}.partial" + (f"{i}" if i else "")
@@ -564,10 +581,14 @@ class SigmfWriter:
                     if not meta.exists() and not data.exists():
                         break
                 os.rename(self._tmp_data, data)
+                kept = data
+                with open(self._tmp_meta, "x", encoding="utf-8") as f:
+                    json.dump(self._metadata(True, None), f, indent=2)
+                    f.write("\n")
                 os.rename(self._tmp_meta, meta)
                 kept = meta
-            else:
-                self._file.close()
+        except OSError:
+            pass  # the samples stay under the .partial data name even if the metadata cannot be written
         finally:
             for p in (self._tmp_data, self._tmp_meta):
                 if p.exists():

@@ -193,3 +193,63 @@ def test_any_truncation_gives_the_clean_error(tmp_path_factory, datatype, cut):
             open_capture(meta)
     else:
         assert open_capture(meta).n_samples == 50 - cut // bps
+
+
+class _FullDisk:
+    """A file object that accepts ``limit`` bytes, then fails like a full disk (ENOSPC)."""
+
+    def __init__(self, real, limit):
+        self.real, self.limit = real, limit
+
+    def write(self, b):
+        import errno
+
+        if self.real.tell() + len(b) > self.limit:
+            room = max(self.limit - self.real.tell(), 0)
+            self.real.write(b[:room])
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return self.real.write(b)
+
+    def __getattr__(self, name):
+        return getattr(self.real, name)
+
+
+def test_full_disk_mid_capture_keeps_a_partial_and_no_final_file(tmp_path):
+    w = SigmfWriter(tmp_path / "cap", sample_rate_hz=1e6, extra={"role": "thru"})
+    w._file = _FullDisk(w._file, limit=1001)  # fails mid-block, mid-sample
+    with pytest.raises(OSError):
+        with w:
+            for _ in range(10):
+                w.write(np.full(400, 128, np.uint8))
+    assert not (tmp_path / "cap.sigmf-meta").exists() and not (tmp_path / "cap.sigmf-data").exists()
+    part = open_capture(tmp_path / "cap.partial.sigmf-meta")
+    assert part.n_samples == 500 and part.extra["incomplete"] is True  # whole samples only
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_failed_commit_keeps_the_samples(tmp_path, monkeypatch):
+    import bench.recordings as rec
+
+    w = SigmfWriter(tmp_path / "cap", sample_rate_hz=1e6)
+    w.write(np.full(64, 128, np.uint8))
+    # Another writer takes the name between our check and our commit: we must not replace it.
+    write_sigmf(tmp_path / "cap", np.zeros(8, np.uint8), sample_rate_hz=1e6)
+    with pytest.raises(CaptureError, match="already exists"):
+        w.commit()
+    assert open_capture(tmp_path / "cap.sigmf-meta").n_samples == 4  # the other recording intact
+    assert open_capture(tmp_path / "cap.partial.sigmf-meta").n_samples == 32
+
+
+def test_write_error_is_one_line_in_the_cli(tmp_path, capsys, monkeypatch):
+    import errno
+
+    from bench.cli import main
+
+    def full(self, data):
+        raise OSError(errno.ENOSPC, "No space left on device", str(self.data_path))
+
+    monkeypatch.setattr(SigmfWriter, "write", full)
+    assert main(["synth", str(tmp_path / "x"), "--duration", "0.01"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "No space left" in err and "Traceback" not in err
+    assert list(tmp_path.iterdir()) == []  # nothing half-written, no temporaries
