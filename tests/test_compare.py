@@ -119,7 +119,7 @@ def test_hodges_lehmann_coverage_under_heavy_tails():
     assert np.mean(hits) == pytest.approx(iv.achieved_confidence, abs=0.015)
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=25, deadline=None)
 @given(st.lists(st.floats(-30, 30, allow_nan=False), min_size=6, max_size=25, unique=True),
        st.floats(-10, 10, allow_nan=False))
 def test_hodges_lehmann_moves_with_a_shift(values, shift):

@@ -162,13 +162,17 @@ def _gain_warnings(caps_a, caps_b) -> list[str]:
     gb = [c.extra.get("gain_db") for c in caps_b]
     known_a = {float(g) for g in ga if isinstance(g, (int, float))}
     known_b = {float(g) for g in gb if isinstance(g, (int, float))}
+
+    def gains(values) -> str:
+        return "/".join(f"{g:g}" for g in sorted(values)) + " dB"
+
     out = []
     if len(known_a) > 1 or len(known_b) > 1:
         out.append("the dongle gain changes within a path "
-                   f"(A: {sorted(known_a)} dB, B: {sorted(known_b)} dB): keep it fixed during a comparison")
+                   f"(A: {gains(known_a)}, B: {gains(known_b)}): keep it fixed during a comparison")
     if known_a and known_b and known_a != known_b:
         out.append(
-            f"gain differs between the paths (A {sorted(known_a)} dB, B {sorted(known_b)} dB): the signal and "
+            f"gain differs between the paths (A {gains(known_a)}, B {gains(known_b)}): the signal and "
             "noise differences include the gain difference, and a dongle's noise figure changes with its gain, "
             "so the SNR difference is not the device's alone; set the same gain on both"
         )
@@ -233,6 +237,14 @@ def _head(est: cmp.Estimates, method: str):
     return (None, None, None) if iv is None else (iv.estimate, [iv.low, iv.high], iv.method)
 
 
+#: Short verdicts for the plot title.
+VERDICTS = {
+    "snr-cost": "path B costs SNR: it lowers the signals more than the noise",
+    "snr-gain": "path B improves the SNR",
+    "external-noise-limited": "path B lowers signal and noise alike: no SNR cost (external noise dominates)",
+    "no-significant-difference": "no significant difference at this precision",
+}
+
 METHOD_NAMES = {
     "paired-t": "paired t (Student 1908)",
     "hodges-lehmann": "Hodges-Lehmann with the Wilcoxon signed-rank interval (Hodges & Lehmann 1963)",
@@ -248,7 +260,8 @@ def summary(c: cmp.Comparison) -> str:
         return "no comparison possible: too few signals heard in both paths"
     span = f"{pct} interval {snr.low:+.2f} to {snr.high:+.2f} dB"
     if kind == "snr-cost":
-        text = f"Path B costs {-snr.estimate:.2f} dB of SNR on the signals heard ({span})."
+        text = (f"Path B costs {-snr.estimate:.2f} dB of SNR on the signals heard "
+                f"({pct} interval {-snr.high:.2f} to {-snr.low:.2f} dB).")
         if noise is not None and sig is not None:
             if noise.low <= 0 <= noise.high:
                 text += (f" The signals drop by {-sig.estimate:.2f} dB while the noise floor stays put "
@@ -349,9 +362,10 @@ def _human(result: dict, c: cmp.Comparison, center_hz) -> str:
             lines.append(f"pooled {label:<12} B - A: n/a")
         else:
             lines.append(f"pooled {label:<12} B - A: {est:+.2f} dB  ({pct}: {ci[0]:+.2f} .. {ci[1]:+.2f} dB)")
-    t = c.snr.paired_t
-    if t is not None and c.method != "paired-t":
-        lines.append(f"  (paired t for the SNR: {t.estimate:+.2f} dB, {pct}: {t.low:+.2f} .. {t.high:+.2f} dB)")
+    other = c.snr.hodges_lehmann if result["method"] == "paired-t" else c.snr.paired_t
+    if other is not None and result["method"] is not None:
+        name = "Hodges-Lehmann" if other.method == "hodges-lehmann" else "paired t"
+        lines.append(f"  ({name} for the SNR: {other.estimate:+.2f} dB, {pct}: {other.low:+.2f} .. {other.high:+.2f} dB)")
     lines += ["", result["summary"], "", f"Method: {result['method_name']}; SNRs in {result['snr_bandwidth_hz']:g} Hz. "
               "Differences are B - A; each pair is a B capture and the A capture taken next to it."]
     return "\n".join(lines)
@@ -422,7 +436,8 @@ def plot(c: cmp.Comparison, path: Path, *, center_hz=None, timed: bool = True, o
         title = "On-air comparison of two receive paths"
         if head is not None:
             title += (f": SNR difference B − A {head.estimate:+.2f} dB "
-                      f"({pct}: {head.low:+.2f} .. {head.high:+.2f} dB, {len(c.signals)} signals, {c.n_pairs} pairs)")
+                      f"({pct}: {head.low:+.2f} .. {head.high:+.2f} dB, {len(c.signals)} signals, {c.n_pairs} pairs)"
+                      f"\n{VERDICTS.get(c.classification, '')}")
     fig.suptitle(title, fontsize=11)
     with atomic_path(path, overwrite=overwrite) as tmp:
         fig.savefig(tmp, dpi=100, format="png")
@@ -514,8 +529,11 @@ def run(args: argparse.Namespace) -> int:
         "trend_bias_db": c.trend_bias_db,
         "warnings": warnings,
     }
-    if args.plot:
+    if args.plot and c.signals:
         plot(c, Path(args.plot), center_hz=center, timed=ta is not None, overwrite=args.overwrite)
         result["plot"] = str(args.plot)
+    elif args.plot:
+        warnings.append(f"no plot drawn to {args.plot}: there is nothing to compare")
+        result["plot"] = None
     emit(args, result, _human(result, c, center), warnings)
     return 0 if snr_est is not None else 1
