@@ -66,7 +66,8 @@ def add_parser(subparsers) -> None:
                    help="frequency matching tolerance once the offset is removed, Hz (default 2 bins)")
     p.add_argument("--snr-bandwidth", type=float, default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
                    help="noise bandwidth of the SNRs shown, Hz (default %(default)g; differences do not depend on it)")
-    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
+    p.add_argument("--nperseg", type=int, metavar="N",
+                   help="FFT segment length (default 4096, shorter for short captures)")
     p.add_argument("--plot", metavar="FILE.png", help="draw the per-signal and pooled differences to this PNG")
     p.add_argument("--overwrite", action="store_true", help="replace an existing --plot file")
     add_capture_options(p)
@@ -350,7 +351,8 @@ def _human(result: dict, c: cmp.Comparison, center_hz) -> str:
     lines.append(f"{freq_head:>12} {'pairs':>5} {'SNR A':>7} {'SNR B':>7} {'dSNR':>7}  {pct + ' interval':>17} "
                  f"{'dNoise':>7}")
     for row in result["signals"]:
-        f = (f"{row['frequency_hz'] / 1e6:.5f}" if row["frequency_hz"] is not None else f"{row['offset_hz'] / 1e3:+.2f}")
+        f = (f"{row['frequency_hz'] / 1e6:.5f}" if row["frequency_hz"] is not None
+             else f"{row['offset_hz'] / 1e3:+.2f}")
         ci = row["snr_difference_ci_db"]
         ci_text = "n/a" if ci is None else f"{fmt_db(ci[0])} .. {fmt_db(ci[1])}"
         lines.append(f"{f:>12} {row['n_pairs']:>5} {fmt_db(row['snr_a_db'], 1):>7} {fmt_db(row['snr_b_db'], 1):>7} "
@@ -365,7 +367,8 @@ def _human(result: dict, c: cmp.Comparison, center_hz) -> str:
     other = c.snr.hodges_lehmann if result["method"] == "paired-t" else c.snr.paired_t
     if other is not None and result["method"] is not None:
         name = "Hodges-Lehmann" if other.method == "hodges-lehmann" else "paired t"
-        lines.append(f"  ({name} for the SNR: {other.estimate:+.2f} dB, {pct}: {other.low:+.2f} .. {other.high:+.2f} dB)")
+        lines.append(f"  ({name} for the SNR: {other.estimate:+.2f} dB, "
+                     f"{pct}: {other.low:+.2f} .. {other.high:+.2f} dB)")
     lines += ["", result["summary"], "", f"Method: {result['method_name']}; SNRs in {result['snr_bandwidth_hz']:g} Hz. "
               "Differences are B - A; each pair is a B capture and the A capture taken next to it."]
     return "\n".join(lines)
@@ -394,7 +397,8 @@ def plot(c: cmp.Comparison, path: Path, *, center_hz=None, timed: bool = True, o
         f = (f"{(center_hz + s.offset_hz) / 1e6:.4f} MHz" if center_hz is not None else f"{s.offset_hz / 1e3:+.1f} kHz")
         labels.append(f"{f}  (n={s.n_pairs})")
         y.append(yk)
-        for est, colour, dy, marker in ((s.snr.get(method), C_SNR, 0.12, "o"), (s.noise.get(method), C_NOISE, -0.12, "s")):
+        marks = ((s.snr.get(method), C_SNR, 0.12, "o"), (s.noise.get(method), C_NOISE, -0.12, "s"))
+        for est, colour, dy, marker in marks:
             if est is not None:
                 ax.errorbar(est.estimate, yk + dy, xerr=[[est.estimate - est.low], [est.high - est.estimate]],
                             fmt=marker, color=colour, ms=6, capsize=3, lw=1.4)
