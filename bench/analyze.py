@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from bench.errors import CaptureError
+from bench.errors import CaptureError, MeasurementError
 from bench.recordings import Capture
 from dsp.floor import NoiseFloor, noise_floor
 from dsp.health import Health, HealthAccumulator
@@ -22,6 +22,10 @@ MIN_NPERSEG = 256
 MIN_SEGMENTS = 4 * N_BATCHES
 #: Clip fraction above which a capture is called clipped.
 CLIP_WARN_FRACTION = 1e-5
+#: Captures compared with each other must agree in sample rate to this fraction...
+RATE_TOLERANCE = 1e-6
+#: ...and in centre frequency to this many hertz.
+CENTER_TOLERANCE_HZ = 1.0
 #: A tone closer than this to the noise (peak bin over floor, dB) gets a low-SNR warning.
 LOW_SNR_DB = 10.0
 
@@ -131,3 +135,56 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[s
 
 def noise_density_dbfs_per_hz(reading: Reading) -> float:
     return db_from_power(reading.floor.density)
+
+
+# --------------------------------------------------------------------------------------------
+# Comparing captures with each other
+
+
+def _gain(capture: Capture):
+    g = capture.extra.get("gain_db")
+    try:
+        return None if g is None else float(g)
+    except (TypeError, ValueError):
+        return None
+
+
+def setup_difference(a: Capture, b: Capture, *, tuning: bool = True, gain: bool = True) -> str | None:
+    """Why two captures cannot be compared with each other, or None when they were taken alike.
+
+    Sample rate and sample type must agree; with ``tuning`` the centre frequencies (where both are
+    known), with ``gain`` the dongle gains (where both are recorded).
+    """
+    if abs(a.sample_rate_hz - b.sample_rate_hz) > RATE_TOLERANCE * b.sample_rate_hz:
+        return (f"sample rate {a.sample_rate_hz:g} Hz of {a.path.name} differs from {b.sample_rate_hz:g} Hz "
+                f"of {b.path.name}")
+    if a.is_complex != b.is_complex:
+        return f"{a.path.name} and {b.path.name}: one holds complex IQ, the other real samples"
+    if tuning and a.center_hz is not None and b.center_hz is not None \
+            and abs(a.center_hz - b.center_hz) > CENTER_TOLERANCE_HZ:
+        return (f"centre frequency {a.center_hz:.0f} Hz of {a.path.name} differs from {b.center_hz:.0f} Hz "
+                f"of {b.path.name}")
+    ga, gb = _gain(a), _gain(b)
+    if gain and ga is not None and gb is not None and ga != gb:
+        return f"gain {ga:g} dB of {a.path.name} differs from {gb:g} dB of {b.path.name}"
+    return None
+
+
+def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> list[str]:
+    """Refuse captures that were not taken alike (:func:`setup_difference`) with a MeasurementError
+    naming both files; return warnings for what the metadata does not let us check."""
+    captures = list(captures)
+    for cap in captures[1:]:
+        why = setup_difference(cap, captures[0], tuning=tuning, gain=gain)
+        if why:
+            raise MeasurementError(f"{why}: compared captures must be taken with the same settings")
+    warnings = []
+    if len(captures) > 1:
+        if tuning and any(c.center_hz is None for c in captures):
+            unknown = [c.path.name for c in captures if c.center_hz is None]
+            warnings.append(f"no centre frequency on {', '.join(unknown)}: cannot check the captures were "
+                            "tuned alike (give --center HZ)")
+        if gain and any(_gain(c) is None for c in captures):
+            warnings.append("the gain is not recorded in every capture: make sure it was fixed (AGC off) "
+                            "and the same for all")
+    return warnings

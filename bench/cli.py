@@ -39,11 +39,7 @@ class _Parser(argparse.ArgumentParser):
 
 def _command_modules(names):
     for name in names:
-        try:
-            yield importlib.import_module(f"bench.commands.{name}")
-        except ModuleNotFoundError as exc:  # TODO(lead): remove once every command has landed
-            if exc.name != f"bench.commands.{name}":
-                raise
+        yield importlib.import_module(f"bench.commands.{name}")
 
 
 def _chosen_command(argv: list[str]) -> str | None:

@@ -35,7 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from bench import keys
-from bench.analyze import Reading, read_capture
+from bench.analyze import CENTER_TOLERANCE_HZ, Reading, read_capture, setup_difference
 from bench.commands.inspect import tone_dict
 from bench.errors import CaptureError, RxbenchError, UsageError
 from bench.recordings import META_SUFFIX, Capture, open_capture
@@ -57,10 +57,6 @@ REPORT_DIR_PREFIX = "report"
 REPLACED_DIR = "replaced"
 #: Sub-bands per capture for noise-source curves.
 N_SUB_BANDS = 8
-#: Centre frequencies closer than this are one tuning, Hz.
-CENTER_TOL_HZ = 1.0
-#: Relative tolerance for "the same" sample rate.
-RATE_TOL = 1e-6
 #: Below this Y-factor the noise figure is hardly measurable, dB.
 LOW_Y_DB = 1.0
 #: Below this excess the antenna noise is too close to the receiver's own to say much about Ta, dB.
@@ -284,18 +280,7 @@ def open_session(folder) -> Session:
 
 def mismatch(a: Entry, b: Entry) -> str | None:
     """Why two captures cannot be compared, or None when they were taken alike."""
-    ca, cb = a.capture, b.capture
-    if abs(ca.sample_rate_hz - cb.sample_rate_hz) > RATE_TOL * cb.sample_rate_hz:
-        return (f"{a.name} is sampled at {ca.sample_rate_hz:g} Hz but {b.name} at {cb.sample_rate_hz:g} Hz "
-                "(different sample rates are not compared)")
-    if ca.is_complex != cb.is_complex:
-        return f"{a.name} and {b.name}: one holds complex IQ, the other real samples"
-    if (ca.center_hz is None) != (cb.center_hz is None) or (
-            ca.center_hz is not None and abs(ca.center_hz - cb.center_hz) > CENTER_TOL_HZ):
-        return f"{a.name} and {b.name} are tuned differently"
-    if a.gain_db is not None and b.gain_db is not None and a.gain_db != b.gain_db:
-        return f"{a.name} was taken at {a.gain_db:g} dB gain but {b.name} at {b.gain_db:g} dB"
-    return None
+    return setup_difference(a.capture, b.capture)
 
 
 def _compatible(entries: list[Entry], ref: Entry, what: str, warnings: list[str]) -> list[Entry]:
@@ -310,7 +295,7 @@ def _compatible(entries: list[Entry], ref: Entry, what: str, warnings: list[str]
 
 
 def _center_key(center_hz: float | None):
-    return None if center_hz is None else round(center_hz / CENTER_TOL_HZ) * CENTER_TOL_HZ
+    return None if center_hz is None else round(center_hz / CENTER_TOLERANCE_HZ) * CENTER_TOLERANCE_HZ
 
 
 def _groups(entries, roles) -> dict:

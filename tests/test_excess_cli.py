@@ -171,8 +171,8 @@ def _pair(tmp_path, rng, **load_kw):
 @pytest.mark.parametrize(
     "load_kw, needle",
     [
-        ({"rate_hz": 2 * FS_HZ}, "sampled at"),
-        ({"center_hz": 7.1e6}, "tuned to"),
+        ({"rate_hz": 2 * FS_HZ}, "sample rate"),
+        ({"center_hz": 7.1e6}, "centre frequency"),
         ({"gain_db": 30.0}, "gain"),
     ],
 )

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg
+from bench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, require_comparable
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, atomic_path, capture_from_args
@@ -103,34 +103,6 @@ def _check_args(args) -> None:
         inputs = {Path(p).resolve() for p in args.a + args.b}
         if plot.resolve() in inputs:
             raise UsageError(f"--plot {plot}: is one of the captures; choose another name")
-
-
-def _same_band(caps_a, caps_b) -> list[str]:
-    """Refuse captures of different sample rates, centres or sample types; warn on unknown centres."""
-    caps = [("A", c) for c in caps_a] + [("B", c) for c in caps_b]
-    ref_path, ref = caps[0]
-    for path, c in caps[1:]:
-        if not math.isclose(c.sample_rate_hz, ref.sample_rate_hz, rel_tol=1e-9):
-            raise MeasurementError(
-                f"{c.path}: sample rate {c.sample_rate_hz:g} Hz differs from {ref.path} "
-                f"({ref.sample_rate_hz:g} Hz); compare captures of the same sample rate"
-            )
-        if c.is_complex != ref.is_complex:
-            raise MeasurementError(f"{c.path}: {'complex IQ' if c.is_complex else 'real'} samples, but {ref.path} "
-                                   f"holds {'complex IQ' if ref.is_complex else 'real'} samples")
-    known = [(p, c) for p, c in caps if c.center_hz is not None]
-    for _, c in known[1:]:
-        if not math.isclose(c.center_hz, known[0][1].center_hz, rel_tol=0, abs_tol=1e-3):
-            raise MeasurementError(
-                f"{c.path}: centre frequency {c.center_hz:.3f} Hz differs from {known[0][1].path} "
-                f"({known[0][1].center_hz:.3f} Hz); compare captures of the same band"
-            )
-    warnings = []
-    if known and len(known) < len(caps):
-        missing = [str(c.path) for _, c in caps if c.center_hz is None]
-        warnings.append(f"no centre frequency on {len(missing)} capture(s) (e.g. {missing[0]}): "
-                        "cannot check they were tuned alike")
-    return warnings
 
 
 def _parse_time(text) -> float | None:
@@ -454,7 +426,7 @@ def run(args: argparse.Namespace) -> int:
     _check_args(args)
     caps_a = [capture_from_args(p, args) for p in args.a]
     caps_b = [capture_from_args(p, args) for p in args.b]
-    warnings = _same_band(caps_a, caps_b)
+    warnings = require_comparable(caps_a + caps_b, gain=False)
     ta, tb, time_notes = _times(caps_a, caps_b)
     warnings += time_notes
     warnings += _gain_warnings(caps_a, caps_b)

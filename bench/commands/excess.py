@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 
-from bench.analyze import read_capture
+from bench.analyze import read_capture, require_comparable
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import Capture, add_capture_options, capture_from_args
@@ -28,8 +28,6 @@ EXAMPLE_LOSSES_DB = (1.0, 3.0, 6.0, 10.0)
 LOW_EXCESS_DB = 1.0
 #: Fit residual (RMS, dB) above which the ladder does not follow the model.
 MAX_RESIDUAL_RMS_DB = 0.5
-#: Relative tolerance for "same" sample rate, centre frequency and gain between captures.
-RATE_TOL = 1e-6
 
 _DB = 10.0 / math.log(10.0)
 
@@ -89,45 +87,6 @@ def _parse_step(text: str, args) -> tuple[float, Capture]:
     return db, cap
 
 
-def check_same_setup(captures: list[Capture]) -> list[str]:
-    """Refuse captures that cannot be compared; return warnings for what cannot be checked.
-
-    Sample rate, complex/real, centre frequency and gain (from metadata) must agree: a noise density
-    compared across different gains or bands means nothing.
-    """
-    warnings = []
-    ref = captures[0]
-    for cap in captures[1:]:
-        if abs(cap.sample_rate_hz - ref.sample_rate_hz) > RATE_TOL * ref.sample_rate_hz:
-            raise MeasurementError(
-                f"{cap.path.name} is sampled at {cap.sample_rate_hz:g} Hz but {ref.path.name} at "
-                f"{ref.sample_rate_hz:g} Hz: compare captures taken with the same settings"
-            )
-        if cap.is_complex != ref.is_complex:
-            raise MeasurementError(f"{cap.path.name} and {ref.path.name}: one is complex IQ, the other real")
-        if cap.center_hz is not None and ref.center_hz is not None and \
-                abs(cap.center_hz - ref.center_hz) > max(1.0, RATE_TOL * abs(ref.center_hz)):
-            raise MeasurementError(
-                f"{cap.path.name} is tuned to {cap.center_hz:g} Hz but {ref.path.name} to "
-                f"{ref.center_hz:g} Hz: the noise of different bands cannot be compared"
-            )
-        g1, g0 = cap.extra.get("gain_db"), ref.extra.get("gain_db")
-        if g1 is not None and g0 is not None and g1 != g0:
-            raise MeasurementError(
-                f"{cap.path.name} was taken at {g1} dB gain but {ref.path.name} at {g0} dB: "
-                "noise densities are comparable only at the same gain"
-            )
-    centres = {c.center_hz for c in captures}
-    if None in centres and len(captures) > 1:
-        warnings.append("some captures give no centre frequency: cannot check they were tuned alike "
-                        "(give --center HZ)")
-    gains = [c.extra.get("gain_db") for c in captures]
-    if len(captures) > 1 and any(g is None for g in gains):
-        warnings.append("the gain is not recorded in every capture: make sure it was fixed (AGC off) "
-                        "and the same for all")
-    return warnings
-
-
 def _u_ratio_db(d1, u1, d2, u2) -> float:
     return _DB * math.hypot(u1 / d1, u2 / d2)
 
@@ -157,7 +116,7 @@ def run(args: argparse.Namespace) -> int:
     load = capture_from_args(args.load, args) if args.load is not None else None
     points = ([(0.0, antenna)] if antenna is not None else []) + steps
     all_caps = [c for _, c in points] + ([load] if load is not None else [])
-    warnings = check_same_setup(all_caps)
+    warnings = require_comparable(all_caps)
 
     readings = {}
     for cap in all_caps:

@@ -14,17 +14,13 @@ import math
 
 import numpy as np
 
-from bench.analyze import choose_nperseg, read_capture
+from bench.analyze import choose_nperseg, read_capture, require_comparable
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args
 from dsp.ladder import direct_loss, mean_reading, mismatch_components, substitution_loss
 from dsp.uncertainty import Component, coverage_factor
 
-#: Relative difference of sample rates accepted as "the same rate".
-RATE_TOLERANCE = 1e-9
-#: Difference of centre frequencies accepted as "the same tuning", Hz.
-CENTER_TOLERANCE_HZ = 1.0
 
 CAUTION = ("Caution: never connect a transmitter to the dongle without attenuation rated for its "
            "power; the dongle's input is damaged at a few milliwatts.")
@@ -100,42 +96,12 @@ def parse_step(text: str, args: argparse.Namespace, option: str = "--step"):
     return db, cap
 
 
-def check_comparable(captures) -> list[str]:
-    """Refuse captures that cannot be compared (rate, tuning, gain, real/complex); warn on unknowns."""
-    warnings = []
-    ref = captures[0]
-    for cap in captures[1:]:
-        if abs(cap.sample_rate_hz - ref.sample_rate_hz) > RATE_TOLERANCE * ref.sample_rate_hz:
-            raise MeasurementError(
-                f"{cap.path}: sample rate {cap.sample_rate_hz:g} Hz differs from {ref.path} "
-                f"({ref.sample_rate_hz:g} Hz); compared captures must share one rate")
-        if cap.is_complex != ref.is_complex:
-            raise MeasurementError(f"{cap.path}: {'complex' if cap.is_complex else 'real'} samples, but "
-                                   f"{ref.path} is {'complex' if ref.is_complex else 'real'}")
-    known = [c for c in captures if c.center_hz is not None]
-    for cap in known[1:]:
-        if abs(cap.center_hz - known[0].center_hz) > CENTER_TOLERANCE_HZ:
-            raise MeasurementError(
-                f"{cap.path}: centre frequency {cap.center_hz:.0f} Hz differs from {known[0].path} "
-                f"({known[0].center_hz:.0f} Hz); compared captures must be tuned alike")
-    if known and len(known) < len(captures):
-        unknown = ", ".join(str(c.path) for c in captures if c.center_hz is None)
-        warnings.append(f"centre frequency unknown for {unknown}: cannot check that the captures were "
-                        "tuned alike")
-    gains = {c.path: c.extra.get("gain_db") for c in captures if c.extra.get("gain_db") is not None}
-    if len(set(gains.values())) > 1:
-        listed = ", ".join(f"{p} ({g} dB)" for p, g in gains.items())
-        raise MeasurementError(f"the dongle gain differs between captures: {listed}; compared captures "
-                               "must use one fixed gain")
-    return warnings
-
-
 def read_tones(captures, args: argparse.Namespace):
     """Read the tone of every capture alike (one FFT length, the tone of the first capture).
 
     Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
     """
-    warnings = check_comparable(captures)
+    warnings = require_comparable(captures)
     if args.nperseg is not None and args.nperseg < 16:
         raise UsageError(f"--nperseg must be at least 16, got {args.nperseg}")
     nperseg = choose_nperseg(min(c.n_samples for c in captures), args.nperseg)
