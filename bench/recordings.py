@@ -20,6 +20,7 @@ import argparse
 import contextlib
 import datetime as _dt
 import json
+import math
 import os
 import secrets
 from dataclasses import dataclass, field
@@ -29,7 +30,7 @@ from typing import Callable, Iterator, Mapping
 import numpy as np
 
 from bench import keys
-from bench.errors import CaptureError
+from bench.errors import CaptureError, UsageError
 
 #: Samples per block handed to the estimators (2**18 complex64 = 2 MiB).
 BLOCK_SAMPLES = 1 << 18
@@ -383,6 +384,34 @@ def capture_from_args(path, args: argparse.Namespace) -> Capture:
     """Open ``path`` with the raw-IQ options of ``args`` (see :func:`add_capture_options`)."""
     return open_capture(path, fmt=getattr(args, "format", None), rate_hz=getattr(args, "rate", None),
                         center_hz=getattr(args, "center", None))
+
+
+def step_capture_from_args(text: str, args: argparse.Namespace, option: str = "--step"):
+    """``DB=CAPTURE`` (or ``CAPTURE`` whose metadata gives ``rxbench:attenuation_db``) -> (dB, Capture)."""
+    db = None
+    path = text
+    if "=" in text:
+        head, tail = text.split("=", 1)
+        try:
+            db = float(head)
+            path = tail
+        except ValueError:
+            pass
+    cap = capture_from_args(path, args)
+    meta_db = cap.extra.get("attenuation_db")
+    if db is None:
+        if meta_db is None:
+            raise UsageError(f"{option} {text}: give the attenuator setting as DB=CAPTURE "
+                             "(the capture's metadata has no attenuation)")
+        try:
+            db = float(meta_db)
+        except (TypeError, ValueError):
+            raise UsageError(f"{cap.path}: metadata attenuation {meta_db!r} is not a number") from None
+    if not math.isfinite(db) or db < 0:
+        raise UsageError(f"{option} {text}: the attenuator setting must be a finite number >= 0 dB")
+    return db, cap
+
+
 
 
 # --------------------------------------------------------------------------------------------

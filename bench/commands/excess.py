@@ -16,7 +16,7 @@ import numpy as np
 from bench.analyze import read_capture, require_comparable
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import Capture, add_capture_options, capture_from_args
+from bench.recordings import Capture, add_capture_options, capture_from_args, step_capture_from_args
 from dsp import environment as env
 from dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 
@@ -63,30 +63,6 @@ def add_parser(subparsers) -> None:
     p.set_defaults(func=run)
 
 
-def _parse_step(text: str, args) -> tuple[float, Capture]:
-    head, sep, tail = text.partition("=")
-    db = None
-    if sep:
-        try:
-            db = float(head)
-        except ValueError:
-            db = None
-    if db is not None:
-        cap = capture_from_args(tail, args)
-    else:
-        cap = capture_from_args(text, args)
-        if "attenuation_db" not in cap.extra:
-            raise UsageError(f"--antenna-step {text}: write DB=CAPTURE (the capture's metadata gives no "
-                             "attenuation)")
-        try:
-            db = float(cap.extra["attenuation_db"])
-        except (TypeError, ValueError):
-            raise UsageError(f"--antenna-step {text}: attenuation_db in its metadata is not a number") from None
-    if not (0.0 <= db < math.inf):
-        raise UsageError(f"--antenna-step {text}: the attenuation must be a finite number >= 0 dB, got {db:g}")
-    return db, cap
-
-
 def _u_ratio_db(d1, u1, d2, u2) -> float:
     return _DB * math.hypot(u1 / d1, u2 / d2)
 
@@ -111,7 +87,7 @@ def run(args: argparse.Namespace) -> int:
     if not args.antenna_step and args.load is None:
         raise UsageError("--antenna needs --load: the excess is antenna noise over a 50-ohm load's")
 
-    steps: list[tuple[float, Capture]] = [_parse_step(s, args) for s in args.antenna_step]
+    steps: list[tuple[float, Capture]] = [step_capture_from_args(s, args, "--antenna-step") for s in args.antenna_step]
     antenna = capture_from_args(args.antenna, args) if args.antenna is not None else None
     load = capture_from_args(args.load, args) if args.load is not None else None
     points = ([(0.0, antenna)] if antenna is not None else []) + steps

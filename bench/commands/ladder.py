@@ -9,10 +9,10 @@ from __future__ import annotations
 import argparse
 import math
 
-from bench.commands.loss import CAUTION, parse_step, read_tones, tone_db
+from bench.commands.loss import CAUTION, read_tones, tone_db
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options
+from bench.recordings import add_capture_options, step_capture_from_args
 from dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
 
 
@@ -55,7 +55,7 @@ def run(args: argparse.Namespace) -> int:
         if not (math.isfinite(v) and v >= 0) or (name == "tolerance_db" and v == 0):
             raise UsageError(f"--{name.replace('_', '-')} must be a finite number "
                              f"{'> 0' if name == 'tolerance_db' else '>= 0'}, got {v}")
-    steps = sorted((parse_step(s, args) for s in args.step), key=lambda s: s[0])
+    steps = sorted((step_capture_from_args(s, args) for s in args.step), key=lambda s: s[0])
     dbs = [db for db, _ in steps]
     if len(set(dbs)) != len(dbs):
         raise UsageError(f"--step: each attenuator setting may appear once, got {dbs}")

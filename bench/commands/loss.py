@@ -17,7 +17,7 @@ import numpy as np
 from bench.analyze import choose_nperseg, read_capture, require_comparable
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options, capture_from_args
+from bench.recordings import add_capture_options, capture_from_args, step_capture_from_args
 from dsp.ladder import direct_loss, mean_reading, mismatch_components, substitution_loss
 from dsp.uncertainty import Component, coverage_factor
 
@@ -68,32 +68,6 @@ def add_parser(sub) -> None:
 
 # --------------------------------------------------------------------------------------------
 # Shared with `rxbench ladder`
-
-
-def parse_step(text: str, args: argparse.Namespace, option: str = "--step"):
-    """``DB=CAPTURE`` (or ``CAPTURE`` whose metadata gives ``rxbench:attenuation_db``) -> (dB, Capture)."""
-    db = None
-    path = text
-    if "=" in text:
-        head, tail = text.split("=", 1)
-        try:
-            db = float(head)
-            path = tail
-        except ValueError:
-            pass
-    cap = capture_from_args(path, args)
-    meta_db = cap.extra.get("attenuation_db")
-    if db is None:
-        if meta_db is None:
-            raise UsageError(f"{option} {text}: give the attenuator setting as DB=CAPTURE "
-                             "(the capture's metadata has no attenuation)")
-        try:
-            db = float(meta_db)
-        except (TypeError, ValueError):
-            raise UsageError(f"{cap.path}: metadata attenuation {meta_db!r} is not a number") from None
-    if not math.isfinite(db) or db < 0:
-        raise UsageError(f"{option} {text}: the attenuator setting must be a finite number >= 0 dB")
-    return db, cap
 
 
 def read_tones(captures, args: argparse.Namespace):
@@ -336,7 +310,7 @@ def run(args: argparse.Namespace) -> int:
         readings, warnings = read_tones(captures, args)
         loss, detail, rows = _direct(args, readings, len(args.thru), len(args.dut), warnings)
     else:
-        steps = [parse_step(s, args) for s in args.step]
+        steps = [step_capture_from_args(s, args) for s in args.step]
         dbs = [db for db, _ in steps]
         if len(set(dbs)) != len(dbs):
             raise UsageError(f"--step: each attenuator setting may appear once, got {sorted(dbs)}")
