@@ -228,7 +228,6 @@ def test_full_disk_mid_capture_keeps_a_partial_and_no_final_file(tmp_path):
 
 
 def test_failed_commit_keeps_the_samples(tmp_path, monkeypatch):
-    import bench.recordings as rec
 
     w = SigmfWriter(tmp_path / "cap", sample_rate_hz=1e6)
     w.write(np.full(64, 128, np.uint8))

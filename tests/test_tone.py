@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-from scipy import stats
 
 from bench.analyze import read_capture
 from bench.recordings import memory_capture

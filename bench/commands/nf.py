@@ -9,8 +9,6 @@ import argparse
 import csv
 import io
 import math
-import os
-import secrets
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -20,7 +18,7 @@ from bench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_c
 from bench.enr import read_enr_table
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import Capture, _link_into_place, add_capture_options, capture_from_args
+from bench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
 from dsp import noisefig as nfm
 from dsp.units import T0_K, db_from_power
 
@@ -389,18 +387,8 @@ def _write_csv(path: Path, rows: list[dict], overwrite: bool) -> None:
     for row in rows:
         w.writerow({k: ("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else
                         (f"{v:.6g}" if isinstance(v, float) else v)) for k, v in row.items()})
-    path = Path(path)
-    tmp = path.parent / f".{path.name}.{secrets.token_hex(4)}.tmp"
-    try:
+    with atomic_path(path, overwrite) as tmp:
         tmp.write_text(buf.getvalue(), encoding="utf-8")
-        _link_into_place(tmp, path, overwrite)
-    except FileNotFoundError:
-        raise UsageError(f"{path}: the folder does not exist") from None
-    except PermissionError:
-        raise UsageError(f"{path}: cannot write here (permission denied)") from None
-    finally:
-        if tmp.exists():
-            os.unlink(tmp)
 
 
 def _pm(value_db, u_db, digits=2) -> str:
