@@ -18,7 +18,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+
+from dsp.distributions import t_ppf
 
 #: Coverage factor used throughout rxbench (GUM 6.3.3: k = 2 gives about 95 %).
 DEFAULT_K = 2.0
@@ -160,9 +161,7 @@ def coverage_factor(dof=math.inf, p: float = 0.9545):
         raise ValueError(f"coverage probability must be in (0, 1), got {p!r}")
     if dof <= 0:
         raise ValueError(f"degrees of freedom must be > 0, got {dof!r}")
-    if math.isinf(dof):
-        return float(stats.norm.ppf(0.5 + p / 2))
-    return float(stats.t.ppf(0.5 + p / 2, dof))
+    return float(t_ppf(0.5 + p / 2, dof))
 
 
 @dataclass(frozen=True)
