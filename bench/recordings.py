@@ -4,9 +4,9 @@ Every capture, whatever its file type, is delivered as blocks of complex64 sampl
 scale per rail (float32 for one-channel audio), so memory stays flat however long it is:
 
 - SigMF recordings (``.sigmf-meta`` or ``.sigmf-data``): metadata through the ``sigmf`` library,
-  samples memory-mapped and converted here (cu8 as (u - 127.5)/127.5, the convention the dongle's
+  samples read in blocks and converted here (cu8 as (u - 127.5)/127.5, the convention the dongle's
   Python binding uses; the sigmf library's own autoscaling would leave a DC term).
-- Raw interleaved IQ (``--format cu8|cs8|cs16|cf32 --rate HZ [--center HZ]``), memory-mapped.
+- Raw interleaved IQ (``--format cu8|cs8|cs16|cf32 --rate HZ [--center HZ]``), read in blocks.
 - WAV/RF64/FLAC through soundfile: two channels are I and Q, one channel is real audio.
 
 Writing is atomic: data and metadata go to temporary names in the destination folder and are
@@ -192,21 +192,22 @@ def memory_capture(
                    "cf32_le" if np.iscomplexobj(x) else "rf32_le", clip_level, datetime, dict(extra or {}), reader)
 
 
-def _mapped_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
+def _file_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
+    """Blocks read with plain file reads (not a memory map, whose pages would count as resident
+    memory and grow with the capture)."""
     rails = 2 if encoding.is_complex else 1
 
     def reader(block):
-        if n_samples == 0:
-            return
-        mm = np.memmap(path, dtype=encoding.component, mode="r", offset=offset, shape=(n_samples * rails,))
-        try:
+        with open(path, "rb") as f:
+            f.seek(offset)
             for i in range(0, n_samples, block):
-                yield decode(np.asarray(mm[i * rails : (i + block) * rails]), encoding)
-        finally:
-            del mm
+                count = min(block, n_samples - i) * rails
+                raw = np.fromfile(f, dtype=encoding.component, count=count)
+                if raw.size != count:
+                    raise CaptureError(path, f"file shrank while being read (at sample {i})")
+                yield decode(raw, encoding)
 
     return reader
-
 
 def _check_size(path: Path, encoding: Encoding, offset: int = 0) -> int:
     try:
@@ -243,7 +244,7 @@ def open_raw(path: Path, fmt: str, rate_hz, center_hz: float | None = None) -> C
     enc = ENCODINGS[datatype]
     n = _check_size(path, enc)
     return Capture(path, _positive_rate(path, rate_hz), center_hz, n, True, datatype, enc.clip_level,
-                   None, {}, _mapped_reader(path, enc, 0, n))
+                   None, {}, _file_reader(path, enc, 0, n))
 
 
 def sigmf_paths(path: Path) -> tuple[Path, Path]:
@@ -303,7 +304,7 @@ def open_sigmf(path: Path) -> Capture:
     extra = {k[len(prefix):]: v for k, v in {**g, **first}.items() if k.startswith(prefix)}
     return Capture(meta_path, rate, float(center) if center is not None else None, n, enc.is_complex,
                    datatype, enc.clip_level, first.get(keys.DATETIME), extra,
-                   _mapped_reader(data_path, enc, offset, n))
+                   _file_reader(data_path, enc, offset, n))
 
 
 def open_audio(path: Path, center_hz: float | None = None) -> Capture:
