@@ -90,12 +90,29 @@ def kernel(window: np.ndarray, offsets_bins: np.ndarray) -> np.ndarray:
 
     Normalised so that summing it over all N bins gives 1 (Parseval); so ``power * kernel / bin_width``
     is the expected density of a tone of ``power`` at that offset.
+
+    Notes
+    -----
+    The DTFT of an N-point sequence is its DFT interpolated by the Dirichlet kernel,
+    W(delta) = (1/N) sum_m W_m D(delta - m) with D(x) = sum_n exp(-2j pi x n / N). Cosine windows
+    (Hann, Hamming, Blackman-Harris) have only a few non-zero W_m, so this costs a few terms per
+    offset instead of N.
     """
     w = np.asarray(window, dtype=float)
-    n = np.arange(w.size)
+    n_w = w.size
     d = np.atleast_1d(np.asarray(offsets_bins, dtype=float))
-    ph = np.exp(-2j * np.pi * np.outer(d, n) / w.size)
-    return np.abs(ph @ w) ** 2 / (w.size * np.sum(w**2))
+    spec = np.fft.fft(w)
+    m = np.flatnonzero(np.abs(spec) > 1e-9 * np.abs(spec).max())
+    m = np.where(m > n_w // 2, m - n_w, m)  # signed bin numbers
+    x = d[:, None] - m[None, :]
+    phase = np.exp(-1j * np.pi * x * (n_w - 1) / n_w)
+    den = np.sin(np.pi * x / n_w)
+    at_pole = np.abs(den) < 1e-12  # x a multiple of N: the sum is N times the phase's sign
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(at_pole, n_w * np.sign(phase.real), np.sin(np.pi * x) / den)
+    dirichlet = phase * ratio
+    value = dirichlet @ spec[np.where(m < 0, m + n_w, m)] / n_w
+    return np.abs(value) ** 2 / (n_w * np.sum(w**2))
 
 
 def welch_dof(n_segments: int, window: np.ndarray, step: int) -> float:

@@ -23,10 +23,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from dsp.distributions import t_ppf
-
 from dsp.floor import NoiseFloor, detection_threshold
 from dsp.spectrum import Psd, kernel
 from dsp.units import db_from_power
@@ -115,18 +113,34 @@ def find_tone(spectrum: Psd, floor: NoiseFloor, *, near_hz: float | None = None,
 
 
 def _refine(spectrum: Psd, k: int, noise_density: float) -> float:
-    """Tone frequency (in fractional bins) by fitting the window kernel to bins k-3..k+3."""
+    """Tone frequency (in fractional bins) by a least-squares fit of the window kernel to bins k-3..k+3.
+
+    The one-parameter fit (the amplitude is solved linearly) is searched on a grid of offsets in
+    [-1, 1] bin, refined twice around the best point and finished by a parabola through the last
+    three residuals: about 0.0005 bin, with no iterative optimiser.
+    """
     idx = np.arange(max(k - 3, 0), min(k + 4, spectrum.density.size))
     y = spectrum.density[idx] - noise_density
 
-    def residual(delta):
-        shape = kernel(spectrum.window, idx - (k + delta))
-        a = np.dot(shape, y) / np.dot(shape, shape)
-        return np.sum((y - a * shape) ** 2)
+    def residuals(deltas):
+        shapes = kernel(spectrum.window, (idx[None, :] - (k + deltas[:, None])).ravel()).reshape(deltas.size, idx.size)
+        a = shapes @ y / np.einsum("ij,ij->i", shapes, shapes)
+        return np.sum((y[None, :] - a[:, None] * shapes) ** 2, axis=1)
 
-    res = optimize.minimize_scalar(residual, bounds=(-1.0, 1.0), method="bounded", options={"xatol": 1e-5})
-    return k + float(res.x)
-
+    centre, half = 0.0, 1.0
+    for _ in range(3):
+        grid = centre + np.linspace(-half, half, 21)
+        grid = grid[np.abs(grid) <= 1.0]
+        r = residuals(grid)
+        i = int(np.argmin(r))
+        centre, step = float(grid[i]), grid[1] - grid[0]
+        half = step
+    if 0 < i < grid.size - 1:  # parabola through the best point and its neighbours
+        r0, r1, r2 = r[i - 1], r[i], r[i + 1]
+        denom = r0 - 2 * r1 + r2
+        if denom > 0:
+            centre += 0.5 * step * (r0 - r2) / denom
+    return k + centre
 
 def measure_tone(
     spectrum: Psd,

@@ -124,3 +124,13 @@ def test_windows_match_scipy_get_window(window):
     from dsp.spectrum import get_window
 
     assert np.allclose(get_window(window, 1000), scipy.signal.get_window(window, 1000, fftbins=True), atol=1e-12)
+
+
+@pytest.mark.parametrize("window", ["hann", "blackmanharris", ("kaiser", 8.0)])
+def test_kernel_equals_the_direct_dtft(window):
+    # Definition: |sum_n w[n] exp(-2j pi d n / N)|^2 / (N sum w^2), evaluated directly.
+    w = scipy.signal.get_window(window, 128)
+    d = np.concatenate([np.linspace(-200, 200, 801), [0.0, 128.0, -256.0, 3.0]])
+    n = np.arange(128)
+    direct = np.abs(np.exp(-2j * np.pi * np.outer(d, n) / 128) @ w) ** 2 / (128 * np.sum(w**2))
+    assert np.allclose(kernel(w, d), direct, atol=1e-13)
