@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from bench import keys
 from bench.errors import CaptureError, MeasurementError
 from bench.recordings import Capture
 from dsp.floor import NoiseFloor, noise_floor
@@ -142,7 +143,7 @@ def noise_density_dbfs_per_hz(reading: Reading) -> float:
 
 
 def _gain(capture: Capture):
-    g = capture.extra.get("gain_db")
+    g = capture.extra.get(keys.GAIN_DB)
     try:
         return None if g is None else float(g)
     except (TypeError, ValueError):

@@ -58,11 +58,6 @@ CAUTIONS = (
 )
 
 
-def _extra(key: str) -> str:
-    """A metadata key without the namespace prefix, as SigmfWriter's ``extra`` takes it."""
-    return key.split(":", 1)[1]
-
-
 def round_up_512(n: float) -> int:
     return int(math.ceil(n / 512.0)) * 512
 
@@ -342,31 +337,31 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         done += n
     dropped_before = device.dropped_bytes
     extra = {
-        _extra(keys.ROLE): cap.role,
-        _extra(keys.STEP): cap.step.name,
-        "repeat": cap.repeat,
-        _extra(keys.ATTENUATION_DB): cap.attenuation_db,
-        _extra(keys.GAIN_DB): applied.gain_db,
-        "with_dut": cap.with_dut,
-        _extra(keys.PPM): settings.ppm,
-        _extra(keys.SIMULATED): device.name == "simulated",
+        keys.ROLE: cap.role,
+        keys.STEP: cap.step.name,
+        keys.REPEAT: cap.repeat,
+        keys.ATTENUATION_DB: cap.attenuation_db,
+        keys.GAIN_DB: applied.gain_db,
+        keys.WITH_DUT: cap.with_dut,
+        keys.PPM: settings.ppm,
+        keys.SIMULATED: device.name == "simulated",
     }
     if cap.generator_dbm is not None:
-        extra[_extra(keys.GENERATOR_DBM)] = cap.generator_dbm
+        extra[keys.GENERATOR_DBM] = cap.generator_dbm
     if cap.tone_offset_hz is not None:
-        extra["tone_offset_hz"] = cap.tone_offset_hz
+        extra[keys.TONE_OFFSET_HZ] = cap.tone_offset_hz
     if cap.enr_db is not None:
-        extra[_extra(keys.ENR_DB)] = cap.enr_db
+        extra[keys.ENR_DB] = cap.enr_db
     if cap.u_enr_db is not None:
-        extra["u_enr_db"] = cap.u_enr_db
+        extra[keys.U_ENR_DB] = cap.u_enr_db
     if cap.attenuator_tolerance_db is not None:
-        extra["attenuator_tolerance_db"] = cap.attenuator_tolerance_db
+        extra[keys.ATTENUATOR_TOLERANCE_DB] = cap.attenuator_tolerance_db
     if cap.step.devices != 1:
-        extra["devices"] = cap.step.devices
+        extra[keys.DEVICES] = cap.step.devices
     if settings.direct_sampling != "off":
-        extra["direct_sampling"] = settings.direct_sampling
+        extra[keys.DIRECT_SAMPLING] = settings.direct_sampling
     if settings.upconverter_hz:
-        extra["upconverter_hz"] = settings.upconverter_hz
+        extra[keys.UPCONVERTER_HZ] = settings.upconverter_hz
     writer = SigmfWriter(session / cap.base_name, sample_rate_hz=rate, datatype="cu8", center_hz=applied.center_hz,
                          description=cap.step.instruction, extra=extra)
     done = 0
@@ -377,7 +372,7 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
             done += n
             show.update(label, done, total)
         dropped = (device.dropped_bytes - dropped_before) // 2
-        meta = writer.commit({_extra(keys.DROPPED_SAMPLES): dropped})
+        meta = writer.commit({keys.DROPPED_SAMPLES: dropped})
     except BaseException as exc:
         dropped = (device.dropped_bytes - dropped_before) // 2
         kept = writer.abandon(keep_partial=True)

@@ -15,18 +15,29 @@ FREQUENCY = "core:frequency"
 DATETIME = "core:datetime"
 
 #: rxbench's extension namespace, declared in ``core:extensions`` of every recording it writes.
+#: Its keys are stored as ``rxbench:<name>``; in code (``Capture.extra``, ``SigmfWriter(extra=...)``)
+#: they appear without the prefix, as the names below.
 NAMESPACE = "rxbench"
 NAMESPACE_VERSION = "0.1.0"
-ROLE = "rxbench:role"
-ATTENUATION_DB = "rxbench:attenuation_db"
-GAIN_DB = "rxbench:gain_db"
-STEP = "rxbench:step"
-GENERATOR_DBM = "rxbench:generator_dbm"
-ENR_DB = "rxbench:enr_db"
-INCOMPLETE = "rxbench:incomplete"
-DROPPED_SAMPLES = "rxbench:dropped_samples"
-PPM = "rxbench:ppm"
-SIMULATED = "rxbench:simulated"
+
+ROLE = "role"  # thru, dut, step, hot, cold, antenna or load
+STEP = "step"  # the plan step's name
+REPEAT = "repeat"  # 1-based repeat of the step
+ATTENUATION_DB = "attenuation_db"  # step attenuator setting (nominal)
+ATTENUATOR_TOLERANCE_DB = "attenuator_tolerance_db"  # its stated accuracy
+GAIN_DB = "gain_db"  # the dongle's fixed gain
+PPM = "ppm"  # frequency correction applied
+WITH_DUT = "with_dut"  # the DUT is in the path
+DEVICES = "devices"  # identical devices in series (2: back-to-back pair)
+GENERATOR_DBM = "generator_dbm"  # generator level (nominal)
+TONE_OFFSET_HZ = "tone_offset_hz"  # tone minus centre frequency
+ENR_DB = "enr_db"  # noise-source ENR at the centre frequency
+U_ENR_DB = "u_enr_db"  # its standard uncertainty
+DIRECT_SAMPLING = "direct_sampling"  # "i" or "q" when the tuner was bypassed
+UPCONVERTER_HZ = "upconverter_hz"  # upconverter offset in front of the dongle
+SIMULATED = "simulated"  # recorded from the simulated bench (invented data)
+DROPPED_SAMPLES = "dropped_samples"  # samples lost while streaming
+INCOMPLETE = "incomplete"  # an interrupted recording (kept as .partial)
 
 #: The roles a capture can play in a session.
 ROLES = ("thru", "dut", "step", "hot", "cold", "antenna", "load")

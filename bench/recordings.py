@@ -399,7 +399,7 @@ def step_capture_from_args(text: str, args: argparse.Namespace, option: str = "-
         except ValueError:
             pass
     cap = capture_from_args(path, args)
-    meta_db = cap.extra.get("attenuation_db")
+    meta_db = cap.extra.get(keys.ATTENUATION_DB)
     if db is None:
         if meta_db is None:
             raise UsageError(f"{option} {text}: give the attenuator setting as DB=CAPTURE "
@@ -540,7 +540,7 @@ class SigmfWriter:
             g[keys.DESCRIPTION] = self.description
         extra = {**self.extra, **(extra_updates or {})}
         if incomplete:
-            extra["incomplete"] = True
+            extra[keys.INCOMPLETE] = True
         for k, v in extra.items():
             g[f"{keys.NAMESPACE}:{k}"] = v
         cap = {keys.SAMPLE_START: 0, keys.DATETIME: self.datetime}

@@ -49,8 +49,6 @@ from dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 TONE_ROLES = ("thru", "dut", "step")
 #: Roles whose captures are read for their noise only.
 NOISE_ROLES = ("hot", "cold", "antenna", "load")
-#: Metadata key (without the namespace) that marks a capture taken with the DUT in the path.
-WITH_DUT_KEY = "with_dut"
 #: Folder names the report writer uses; captures inside them are not part of the session.
 REPORT_DIR_PREFIX = "report"
 #: Folder where a re-run keeps the recordings it replaced; they are not part of the session.
@@ -205,27 +203,27 @@ def _number(extra, key) -> float | None:
 def _entry(cap: Capture) -> Entry:
     """An Entry from a capture's metadata; ValueError names what is wrong."""
     x = cap.extra
-    role = x.get("role")
+    role = x.get(keys.ROLE)
     if role is None:
         raise ValueError("no rxbench:role in its metadata (which part of the measurement is it?)")
     if role not in keys.ROLES:
         raise ValueError(f"rxbench:role {role!r} is not one of {', '.join(keys.ROLES)}")
-    att = _number(x, "attenuation_db")
+    att = _number(x, keys.ATTENUATION_DB)
     if att is not None and att < 0:
         raise ValueError(f"rxbench:attenuation_db is {att:g}, below 0 dB")
-    enr = _number(x, "enr_db")
-    tol = _number(x, "attenuator_tolerance_db")
-    devices = x.get("devices", 1)
+    enr = _number(x, keys.ENR_DB)
+    tol = _number(x, keys.ATTENUATOR_TOLERANCE_DB)
+    devices = x.get(keys.DEVICES, 1)
     if isinstance(devices, bool) or not isinstance(devices, int) or devices < 1:
         raise ValueError(f"rxbench:devices is {devices!r}, not a whole number >= 1")
-    through = x.get(WITH_DUT_KEY) is True or role == "dut"
+    through = x.get(keys.WITH_DUT) is True or role == "dut"
     return Entry(
-        capture=cap, role=role, step=str(x.get("step", "")), attenuation_db=att,
-        gain_db=_number(x, "gain_db"), through_dut=through,
+        capture=cap, role=role, step=str(x.get(keys.STEP, "")), attenuation_db=att,
+        gain_db=_number(x, keys.GAIN_DB), through_dut=through,
         time_s=_parse_time(cap.datetime), enr_db=enr, n_devices=devices, attenuator_tolerance_db=tol,
-        tone_offset_hz=_number(x, "tone_offset_hz") if role in TONE_ROLES else None,
-        dropped_samples=int(_number(x, "dropped_samples") or 0),
-        u_enr_db=_number(x, "u_enr_db"),
+        tone_offset_hz=_number(x, keys.TONE_OFFSET_HZ) if role in TONE_ROLES else None,
+        dropped_samples=int(_number(x, keys.DROPPED_SAMPLES) or 0),
+        u_enr_db=_number(x, keys.U_ENR_DB),
     )
 
 
@@ -252,7 +250,7 @@ def open_session(folder) -> Session:
         except CaptureError as exc:
             skipped.append((meta, exc.problem))
             continue
-        if cap.extra.get("incomplete"):
+        if cap.extra.get(keys.INCOMPLETE):
             incomplete.append(meta)
             continue
         try:
