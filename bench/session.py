@@ -635,12 +635,6 @@ def _enr_for(entries: list[Entry], where, warnings):
     return vals[0]
 
 
-def _pool_density(sb, idx: list[int]):
-    dens = np.mean([sb.density[i] for i in idx], axis=0)
-    dof = np.sum([sb.dof[i] for i in idx], axis=0)
-    return dens, dof
-
-
 def _noise_source(center, group: list[Entry], readings, analysis: Analysis, n_sub_bands: int):
     warnings = analysis.warnings
     where = f"noise figure at {_mhz(center)}"
@@ -664,67 +658,57 @@ def _noise_source(center, group: list[Entry], readings, analysis: Analysis, n_su
     with_dut = bool(cold_d and hot_d)
     if (cold_d or hot_d) and not with_dut:
         warnings.append(f"{where}: hot and cold through the DUT are both needed for its loss; only one found")
-    order = cold + hot + (cold_d + hot_d if with_dut else [])
-    spectra = [readings[e].psd for e in order]
-    try:
-        sb = noisefig.sub_band_densities(spectra, n_sub_bands=n_sub_bands, enr_db=enr_db)
-    except ValueError as exc:
-        warnings.append(f"{where}: {exc}")
-        return None
-    n_c, n_h = len(cold), len(hot)
-    ic = list(range(n_c))
-    ih = list(range(n_c, n_c + n_h))
-    c_dens, c_dof = _pool_density(sb, ic)
-    h_dens, h_dof = _pool_density(sb, ih)
     u_enr_db = max((e.u_enr_db or 0.0 for e in hot), default=0.0)
+    psd = [[readings[e].psd for e in es] for es in (cold, hot) + ((cold_d, hot_d) if with_dut else ())]
     try:
-        yf = noisefig.y_factor(h_dens, c_dens, sb.enr, dof_hot=h_dof, dof_cold=c_dof, u_enr_db=u_enr_db)
+        ns = noisefig.noise_source_analysis(*psd, enr_db=enr_db, n_sub_bands=n_sub_bands, u_enr_db=u_enr_db,
+                                            dc_halfwidth_hz=None if ref.capture.is_complex else 0.0)
     except ValueError as exc:
         warnings.append(f"{where}: {exc}")
         return None
-    y_db = np.atleast_1d(yf.y_db)
+    if not ns.valid[-1]:
+        warnings.append(f"{where}: the hot captures do not read above the cold ones over the band; "
+                        "no noise figure")
+        return None
+    yf = ns.receiver
+    y_db = yf.y_db
     if y_db[-1] < LOW_Y_DB:
         warnings.append(f"{where}: the hot capture is only {y_db[-1]:.2f} dB above the cold one; the noise "
                         "figure is poorly determined (a stronger noise source would help)")
-    nf = np.atleast_1d(yf.nf_db)
-    u_nf = np.atleast_1d(yf.u_nf_db)
+    if not ns.valid[:-1].all():
+        warnings.append(f"{where}: in {int((~ns.valid[:-1]).sum())} sub-band(s) the hot reading is not above "
+                        "the cold one; no noise figure there")
+    nf, u_nf = yf.nf_db, yf.u_nf_db
     res = {
         "center_hz": center, "enr_db": enr_db, "u_enr_db": u_enr_db,
         "y_db": float(y_db[-1]), "noise_figure_db": float(nf[-1]), "u_noise_figure_db": float(u_nf[-1]),
         "expanded_uncertainty_db": DEFAULT_K * float(u_nf[-1]),
-        "noise_temperature_k": float(np.atleast_1d(yf.noise_temperature_k)[-1]),
-        "u_noise_temperature_k": float(np.atleast_1d(yf.u_noise_temperature_k)[-1]),
-        "band_hz": [float(sb.low_hz[-1]), float(sb.high_hz[-1])],
+        "noise_temperature_k": float(yf.noise_temperature_k[-1]),
+        "u_noise_temperature_k": float(yf.u_noise_temperature_k[-1]),
+        "band_hz": [float(ns.low_hz[-1]), float(ns.high_hz[-1])],
         "captures": {"cold": [e.name for e in cold], "hot": [e.name for e in hot]},
         "insertion_loss_db": None, "expanded_uncertainty_loss_db": None, "dut_noise_figure_db": None,
     }
-    sub = {"offset_hz": sb.center_hz[:-1].tolist(), "width_hz": (sb.high_hz - sb.low_hz)[:-1].tolist(),
+    sub = {"offset_hz": ns.center_hz[:-1].tolist(), "width_hz": (ns.high_hz - ns.low_hz)[:-1].tolist(),
            "noise_figure_db": nf[:-1].tolist(), "u_noise_figure_db": u_nf[:-1].tolist()}
-    if with_dut:
-        i0 = n_c + n_h
-        icd = list(range(i0, i0 + len(cold_d)))
-        ihd = list(range(i0 + len(cold_d), i0 + len(cold_d) + len(hot_d)))
-        cd_dens, cd_dof = _pool_density(sb, icd)
-        hd_dens, hd_dof = _pool_density(sb, ihd)
-        try:
-            dut = noisefig.dut_from_noise(h_dens, c_dens, hd_dens, cd_dens, sb.enr,
-                                          dof=(h_dof, c_dof, hd_dof, cd_dof), u_enr_db=u_enr_db)
-        except ValueError as exc:
-            warnings.append(f"{where} through the DUT: {exc}")
-            dut = None
-        if dut is not None:
-            il = np.atleast_1d(dut.insertion_loss_db)
-            u_il = np.atleast_1d(dut.u_insertion_loss_db)
-            dnf = np.atleast_1d(dut.nf_db)
-            u_dnf = np.atleast_1d(dut.u_nf_db)
-            res.update({
-                "insertion_loss_db": float(il[-1]), "u_insertion_loss_db": float(u_il[-1]),
-                "expanded_uncertainty_loss_db": DEFAULT_K * float(u_il[-1]),
-                "dut_noise_figure_db": float(dnf[-1]), "u_dut_noise_figure_db": float(u_dnf[-1]),
-            })
-            res["captures"].update({"cold_dut": [e.name for e in cold_d], "hot_dut": [e.name for e in hot_d]})
-            sub.update({"insertion_loss_db": il[:-1].tolist(), "u_insertion_loss_db": u_il[:-1].tolist(),
-                        "dut_noise_figure_db": dnf[:-1].tolist(), "u_dut_noise_figure_db": u_dnf[:-1].tolist()})
+    dut = ns.dut
+    if dut is not None and not ns.valid_dut[-1]:
+        warnings.append(f"{where} through the DUT: the hot captures through the DUT do not read above the cold "
+                        "ones over the band; no loss")
+    elif dut is not None:
+        if not ns.valid_dut[:-1].all():
+            warnings.append(f"{where} through the DUT: in {int((~ns.valid_dut[:-1]).sum())} sub-band(s) no "
+                            "excess came through the DUT; no loss there")
+        il, u_il = dut.insertion_loss_db, dut.u_insertion_loss_db
+        dnf, u_dnf = dut.nf_db, dut.u_nf_db
+        res.update({
+            "insertion_loss_db": float(il[-1]), "u_insertion_loss_db": float(u_il[-1]),
+            "expanded_uncertainty_loss_db": DEFAULT_K * float(u_il[-1]),
+            "dut_noise_figure_db": float(dnf[-1]), "u_dut_noise_figure_db": float(u_dnf[-1]),
+        })
+        res["captures"].update({"cold_dut": [e.name for e in cold_d], "hot_dut": [e.name for e in hot_d]})
+        sub.update({"insertion_loss_db": il[:-1].tolist(), "u_insertion_loss_db": u_il[:-1].tolist(),
+                    "dut_noise_figure_db": dnf[:-1].tolist(), "u_dut_noise_figure_db": u_dnf[:-1].tolist()})
     res["sub_bands"] = sub
     return res
 
@@ -734,19 +718,19 @@ def _stitch(noise: list[dict]) -> dict | None:
     tuned = [n for n in noise if n["center_hz"] is not None]
     if not tuned:
         return None
-    centers = [n["center_hz"] for n in tuned]
-    freqs = [n["center_hz"] + np.asarray(n["sub_bands"]["offset_hz"]) for n in tuned]
-    cover = [(n["center_hz"] + n["band_hz"][0], n["center_hz"] + n["band_hz"][1]) for n in tuned]
-    keep = noisefig.stitch_masks(centers, freqs, cover)
+    freqs, keep = noisefig.stitch_offsets([n["center_hz"] for n in tuned],
+                                          [n["sub_bands"]["offset_hz"] for n in tuned], [n["band_hz"] for n in tuned])
     cols = {"frequency_hz": [], "width_hz": [], "noise_figure_db": [], "u_noise_figure_db": [],
             "insertion_loss_db": [], "u_insertion_loss_db": [], "dut_noise_figure_db": [],
             "u_dut_noise_figure_db": []}
     for n, f, m in zip(tuned, freqs, keep):
         sub = n["sub_bands"]
+        m = m & ~np.isnan(sub["noise_figure_db"])  # a sub-band without a noise figure is no point
         cols["frequency_hz"] += f[m].tolist()
         for key in list(cols)[1:]:
             vals = sub.get(key)
-            cols[key] += (np.asarray(vals)[m].tolist() if vals is not None else [None] * int(m.sum()))
+            cols[key] += ([None if math.isnan(v) else v for v in np.asarray(vals, dtype=float)[m].tolist()]
+                          if vals is not None else [None] * int(m.sum()))
     order = np.argsort(cols["frequency_hz"])
     out = {k: [v[i] for i in order] for k, v in cols.items()}
     out["k"] = DEFAULT_K

@@ -3,6 +3,8 @@ synthetic spectra with known receiver noise temperature, ENR and DUT loss."""
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -260,3 +262,96 @@ def test_stated_uncertainty_matches_the_scatter(enr_db):
         us.append(r.u_nf_db)
     ratio = np.std(nfs, ddof=1) / np.mean(us)
     assert 0.75 < ratio < 1.3, ratio
+
+
+# ------------------------------------------------------------- the whole noise-source analysis
+
+
+def test_noise_source_analysis_pools_repeats_and_recovers_the_truth():
+    # What must be shown: with two captures of each state pooled, the receiver's NF (6.0 dB) and a
+    # passive DUT's loss (3.5 dB; at T0 its NF equals its loss, Bedrosian 1960) are recovered, and the
+    # stated uncertainty of the pooled reading is smaller than one pair's (about 1/sqrt(2):
+    # independent chi-squared estimates of one density, Welch 1967).
+    rng = np.random.default_rng(7)
+    c1, h1 = _spectra(rng)
+    c2, h2 = _spectra(rng)
+    cd1, hd1 = _spectra(rng, loss_db=3.5)
+    cd2, hd2 = _spectra(rng, loss_db=3.5)
+    ns = nfm.noise_source_analysis([c1, c2], [h1, h2], [cd1, cd2], [hd1, hd2], enr_db=15.0, n_sub_bands=8)
+    one = nfm.noise_source_analysis([c1], [h1], enr_db=15.0, n_sub_bands=8)
+    assert ns.valid.all() and ns.valid_dut.all()
+    assert ns.receiver.nf_db[-1] == pytest.approx(RX.noise_figure_db, abs=0.15)
+    assert ns.dut.insertion_loss_db[-1] == pytest.approx(3.5, abs=0.15)
+    assert ns.dut.nf_db[-1] == pytest.approx(3.5, abs=0.3)
+    assert np.all(np.abs(ns.receiver.nf_db[:-1] - RX.noise_figure_db) < 0.15 + 3 * ns.receiver.u_nf_db[:-1])
+    ratio = ns.receiver.u_nf_db[-1] / one.receiver.u_nf_db[-1]
+    assert 0.6 < ratio < 0.8, ratio
+    assert ns.dof_hot[-1] == pytest.approx(2 * one.dof_hot[-1], rel=1e-12)
+
+
+def test_noise_source_analysis_agrees_with_the_per_call_functions():
+    # The one-call analysis is the per-call functions (sub_band_densities, y_factor, dut_from_noise)
+    # on the mean densities of the repeats with their degrees of freedom summed: same numbers.
+    rng = np.random.default_rng(8)
+    c1, h1 = _spectra(rng, enr_db=12.0)
+    c2, h2 = _spectra(rng, enr_db=12.0)
+    cd, hd = _spectra(rng, enr_db=12.0, loss_db=2.0)
+    ns = nfm.noise_source_analysis([c1, c2], [h1, h2], [cd], [hd], enr_db=12.0, n_sub_bands=6,
+                                   t_cold_k=300.0, u_enr_db=0.1)
+    sb = nfm.sub_band_densities([c1, c2, h1, h2, cd, hd], n_sub_bands=6, enr_db=12.0)
+    n_c, n_h = (sb.density[0] + sb.density[1]) / 2, (sb.density[2] + sb.density[3]) / 2
+    dof_c, dof_h = sb.dof[0] + sb.dof[1], sb.dof[2] + sb.dof[3]
+    y = nfm.y_factor(n_h, n_c, sb.enr, t_cold_k=300.0, dof_hot=dof_h, dof_cold=dof_c, u_enr_db=0.1)
+    d = nfm.dut_from_noise(n_h, n_c, sb.density[5], sb.density[4], sb.enr, t_cold_k=300.0,
+                           dof=(dof_h, dof_c, sb.dof[5], sb.dof[4]), u_enr_db=0.1)
+    for got, want in ((ns.receiver.y, y.y), (ns.receiver.noise_factor, y.noise_factor),
+                      (ns.receiver.u_noise_factor, y.u_noise_factor), (ns.dut.gain, d.gain),
+                      (ns.dut.u_gain, d.u_gain), (ns.dut.noise_factor, d.noise_factor),
+                      (ns.dut.u_noise_factor, d.u_noise_factor), (ns.dut.system.y, d.system.y),
+                      (ns.low_hz, sb.low_hz), (ns.high_hz, sb.high_hz), (ns.enr, sb.enr)):
+        np.testing.assert_allclose(got, want, rtol=1e-12)
+    assert ns.t_cold_k == 300.0 and ns.u_enr_db == 0.1
+
+
+def test_noise_source_analysis_leaves_out_sub_bands_without_excess():
+    # Where the hot reading is not above the cold one the Y-factor does not exist (Y <= 1): those
+    # sub-bands are NaN and marked invalid; the others keep their values (common practice).
+    rng = np.random.default_rng(9)
+    cold, hot = _spectra(rng)
+    cold_d, hot_d = _spectra(rng, loss_db=3.0)
+    top = hot.frequency_hz > 0.5 * FS / 2 * 0.9  # the top quarter of the usable band
+    hot_bad = replace(hot, density=np.where(top, 0.9 * cold.density, hot.density))
+    top_d = hot_d.frequency_hz < -0.5 * FS / 2 * 0.9
+    hot_d_bad = replace(hot_d, density=np.where(top_d, 0.9 * cold_d.density, hot_d.density))
+    ns = nfm.noise_source_analysis([cold], [hot_bad], [cold_d], [hot_d_bad], enr_db=15.0, n_sub_bands=8)
+    good = nfm.noise_source_analysis([cold], [hot], [cold_d], [hot_d], enr_db=15.0, n_sub_bands=8)
+    assert ns.valid.tolist() == [True] * 6 + [False, False, True]
+    assert ns.valid_dut.tolist() == [False, False] + [True] * 4 + [False, False, True]
+    assert np.all(np.isnan(ns.receiver.nf_db[~ns.valid]))
+    assert np.all(np.isnan(ns.dut.insertion_loss_db[~ns.valid_dut]))
+    keep = ns.valid_dut[:-1]
+    np.testing.assert_allclose(ns.receiver.noise_factor[:6], good.receiver.noise_factor[:6], rtol=1e-12)
+    np.testing.assert_allclose(ns.dut.gain[:-1][keep], good.dut.gain[:-1][keep], rtol=1e-12)
+
+
+def test_noise_source_analysis_refuses_half_a_dut_pair():
+    rng = np.random.default_rng(10)
+    cold, hot = _spectra(rng, n=20_000, nperseg=256)
+    with pytest.raises(ValueError, match="both cold and hot"):
+        nfm.noise_source_analysis([cold], [hot], [cold], enr_db=15.0)
+    with pytest.raises(ValueError, match="one cold and one hot"):
+        nfm.noise_source_analysis([], [hot], enr_db=15.0)
+    with pytest.raises(ValueError, match="too many"):
+        nfm.noise_source_analysis([cold], [hot], enr_db=15.0, n_sub_bands=10_000)
+
+
+def test_stitch_offsets_is_stitch_masks_on_absolute_frequencies():
+    centers = [100e6, 100.15e6]
+    offsets = [np.linspace(-0.1e6, 0.1e6, 21)] * 2
+    bands = [(-0.1e6, 0.1e6)] * 2
+    freqs, keep = nfm.stitch_offsets(centers, offsets, bands)
+    want = nfm.stitch_masks(centers, [c + o for c, o in zip(centers, offsets)],
+                            [(c - 0.1e6, c + 0.1e6) for c in centers])
+    for f, c, o, k, w in zip(freqs, centers, offsets, keep, want):
+        np.testing.assert_array_equal(f, c + o)
+        np.testing.assert_array_equal(k, w)

@@ -267,6 +267,34 @@ def test_y_factor_noise_figure_and_loss_across_frequency(tmp_path):
     assert np.mean(np.abs(dnf - truth) <= 2 * udnf) >= 0.8
 
 
+def test_a_sub_band_without_excess_is_left_out_not_the_whole_noise_figure(tmp_path):
+    # An interferer in the cold capture lifts one sub-band above the hot reading: Y <= 1 has no
+    # noise figure (Pozar, from memory), so that sub-band is left out with a warning while the
+    # others, and the DUT's loss in them, stand.
+    enr_db = 15.0
+    t_hot = T0_K * (power_from_db(enr_db) + 1.0)
+    n = int(0.1 * FS)
+    hum = synth.tone(n, FS, power_w=1e-14, offset_hz=70e3)  # 2.8 excess-powers of its 28 kHz sub-band
+    for role, temp, extra in (("cold", T0_K, hum), ("hot", t_hot, 0.0)):
+        for i, with_dut in enumerate((False, True)):
+            x = noise_in(temp, 40 + i) + extra
+            if with_dut:
+                x = lossy(x, 3.0, 50 + i)
+            write_capture(tmp_path, f"{role}{'-dut' if with_dut else ''}", x, role=role, seed=60 + i + 2 * len(role),
+                          enr_db=enr_db, with_dut=with_dut)
+    a = analyse(tmp_path)
+    (nf,) = a.noise_figure
+    sub = nf["sub_bands"]
+    bad = [i for i, v in enumerate(sub["noise_figure_db"]) if math.isnan(v)]
+    assert bad == [6]  # 56.25 .. 84.375 kHz holds the 70 kHz interferer
+    assert any("1 sub-band(s) the hot reading is not above" in w for w in a.warnings)
+    assert nf["insertion_loss_db"] is not None
+    curve = a.loss_vs_frequency
+    assert len(curve["frequency_hz"]) == sess.N_SUB_BANDS - 1
+    assert all(v is not None and math.isfinite(v) for v in curve["noise_figure_db"] + curve["insertion_loss_db"])
+    assert all(abs(v - 3.0) < 0.6 for v in curve["insertion_loss_db"])
+
+
 def test_noise_figure_needs_an_enr(tmp_path):
     write_capture(tmp_path, "cold", noise_in(T0_K, 1), role="cold", seed=1)
     write_capture(tmp_path, "hot", noise_in(5000.0, 2), role="hot", seed=2)

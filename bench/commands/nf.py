@@ -181,16 +181,6 @@ def _enr_source(args, groups):
 # ------------------------------------------------------------------------------------- computing
 
 
-def _masked(func, valid, n_out, *arrays):
-    """Apply ``func`` to the elements where ``valid``; NaN elsewhere. Returns a list of arrays."""
-    outs = [np.full(valid.shape, np.nan) for _ in range(n_out)]
-    if valid.any():
-        res = func(*[np.asarray(a)[valid] if np.ndim(a) else a for a in arrays])
-        for o, r in zip(outs, res):
-            o[valid] = r
-    return outs
-
-
 def _group_warnings(g: _Group, healths) -> list[str]:
     out = []
     names = {"hot": g.hot, "cold": g.cold, "hot-dut": g.hot_dut, "cold-dut": g.cold_dut}
@@ -231,65 +221,51 @@ def _analyse_group(g: _Group, enr_spec, args, warnings: list[str]) -> dict:
         healths[id(cap)] = health
     warnings.extend(_group_warnings(g, healths))
     try:
-        sb = nfm.sub_band_densities(spectra, n_sub_bands=args.sub_bands, enr_db=enr_spec,
-                                    dc_halfwidth_hz=None if g.hot.is_complex else 0.0)
+        ns = nfm.noise_source_analysis(spectra[:1], spectra[1:2], spectra[2:3], spectra[3:4], enr_db=enr_spec,
+                                       n_sub_bands=args.sub_bands, t_cold_k=args.cold_k, u_enr_db=args.enr_u_db,
+                                       dc_halfwidth_hz=None if g.hot.is_complex else 0.0)
     except ValueError as exc:
         raise UsageError(f"--sub-bands {args.sub_bands}: {exc}") from None
-    cold, hot = sb.density[0], sb.density[1]
-    if not hot[-1] > cold[-1]:
+    if not ns.valid[-1]:
         raise MeasurementError(
-            f"{g.hot.path.name} (hot) reads {fmt_db(float(db_from_power(hot[-1] / cold[-1])))} dB against "
+            f"{g.hot.path.name} (hot) reads {fmt_db(float(db_from_power(ns.n_hot[-1] / ns.n_cold[-1])))} dB against "
             f"{g.cold.path.name} (cold): the hot reading must be the higher; are the captures swapped, "
             "or was the source off?")
-    t_cold = args.cold_k
-
-    def y_fn(h, c, e, dh, dc):
-        r = nfm.y_factor(h, c, e, t_cold_k=t_cold, dof_hot=dh, dof_cold=dc, u_enr_db=args.enr_u_db)
-        return r.y, r.noise_factor, r.u_noise_factor
-
-    valid = hot > cold
-    y, f, u_f = _masked(y_fn, valid, 3, hot, cold, sb.enr, sb.dof[1], sb.dof[0])
-    y_last = float(y[-1])
+    rx = ns.receiver
+    y_last = float(rx.y[-1])
     result = {
         "center_hz": g.center_hz,
         "sample_rate_hz": g.hot.sample_rate_hz,
         "captures": {role: str(c.path) for role, c in
                      (("hot", g.hot), ("cold", g.cold), ("hot_dut", g.hot_dut), ("cold_dut", g.cold_dut))
                      if c is not None},
-        "usable_band_hz": [float(sb.low_hz[-1]), float(sb.high_hz[-1])],
+        "usable_band_hz": [float(ns.low_hz[-1]), float(ns.high_hz[-1])],
         "nperseg": nperseg,
-        "dof_hot": float(sb.dof[1][-1]),
-        "dof_cold": float(sb.dof[0][-1]),
+        "dof_hot": float(ns.dof_hot[-1]),
+        "dof_cold": float(ns.dof_cold[-1]),
         "y": y_last,
-        "enr": float(sb.enr[-1]),
-        "noise_factor": float(f[-1]),
-        "u_noise_factor": float(u_f[-1]),
-        "sensitivity": float(nfm.y_sensitivity(y_last, sb.enr[-1], t_cold_k=t_cold)),
-        "sub": {"low_hz": sb.low_hz[:-1], "high_hz": sb.high_hz[:-1], "center_hz": sb.center_hz[:-1],
-                "y": y[:-1], "enr": sb.enr[:-1], "noise_factor": f[:-1], "u_noise_factor": u_f[:-1]},
+        "enr": float(ns.enr[-1]),
+        "noise_factor": float(rx.noise_factor[-1]),
+        "u_noise_factor": float(rx.u_noise_factor[-1]),
+        "sensitivity": float(nfm.y_sensitivity(y_last, ns.enr[-1], t_cold_k=args.cold_k)),
+        "sub": {"low_hz": ns.low_hz[:-1], "high_hz": ns.high_hz[:-1], "center_hz": ns.center_hz[:-1],
+                "y": rx.y[:-1], "enr": ns.enr[:-1], "noise_factor": rx.noise_factor[:-1],
+                "u_noise_factor": rx.u_noise_factor[:-1]},
     }
-    if not valid[:-1].all():
-        warnings.append(f"{g.hot.path.name}: in {int((~valid[:-1]).sum())} sub-band(s) the hot reading is "
+    if not ns.valid[:-1].all():
+        warnings.append(f"{g.hot.path.name}: in {int((~ns.valid[:-1]).sum())} sub-band(s) the hot reading is "
                         "not above the cold one; no noise figure there")
-    if g.hot_dut is not None:
-        cold_d, hot_d = sb.density[2], sb.density[3]
-        if not (hot_d[-1] > cold_d[-1]):
+    if ns.dut is not None:
+        if not ns.valid_dut[-1]:
             raise MeasurementError(f"{g.hot_dut.path.name} (hot-dut) is not above {g.cold_dut.path.name} "
                                    "(cold-dut): no noise-source excess came through the DUT")
-
-        def dut_fn(h, c, hd, cd, e, d0, d1, d2, d3):
-            d = nfm.dut_from_noise(h, c, hd, cd, e, t_cold_k=t_cold, dof=(d0, d1, d2, d3), u_enr_db=args.enr_u_db)
-            return d.gain, d.u_gain, d.noise_factor, d.u_noise_factor, d.system.y
-
-        valid_d = valid & (hot_d > cold_d)
-        gain, u_gain, f1, u_f1, y12 = _masked(dut_fn, valid_d, 5, hot, cold, hot_d, cold_d, sb.enr,
-                                              sb.dof[1], sb.dof[0], sb.dof[3], sb.dof[2])
-        result.update(gain=float(gain[-1]), u_gain=float(u_gain[-1]), dut_noise_factor=float(f1[-1]),
-                      u_dut_noise_factor=float(u_f1[-1]), y_dut=float(y12[-1]))
-        result["sub"].update(gain=gain[:-1], u_gain=u_gain[:-1], dut_noise_factor=f1[:-1],
-                             u_dut_noise_factor=u_f1[:-1])
-        if not valid_d[:-1].all():
-            warnings.append(f"{g.hot_dut.path.name}: in {int((~valid_d[:-1]).sum())} sub-band(s) no excess "
+        d = ns.dut
+        result.update(gain=float(d.gain[-1]), u_gain=float(d.u_gain[-1]), dut_noise_factor=float(d.noise_factor[-1]),
+                      u_dut_noise_factor=float(d.u_noise_factor[-1]), y_dut=float(d.system.y[-1]))
+        result["sub"].update(gain=d.gain[:-1], u_gain=d.u_gain[:-1], dut_noise_factor=d.noise_factor[:-1],
+                             u_dut_noise_factor=d.u_noise_factor[:-1])
+        if not ns.valid_dut[:-1].all():
+            warnings.append(f"{g.hot_dut.path.name}: in {int((~ns.valid_dut[:-1]).sum())} sub-band(s) no excess "
                             "came through the DUT; no loss there")
     return result
 
@@ -307,10 +283,8 @@ def _curve(results) -> list[dict]:
     absolute = all(r["center_hz"] is not None for r in results)
     keep = [np.ones(r["sub"]["center_hz"].shape, bool) for r in results]
     if absolute and len(results) > 1:
-        keep = nfm.stitch_masks([r["center_hz"] for r in results],
-                                [r["center_hz"] + r["sub"]["center_hz"] for r in results],
-                                [(r["center_hz"] + r["usable_band_hz"][0], r["center_hz"] + r["usable_band_hz"][1])
-                                 for r in results])
+        _, keep = nfm.stitch_offsets([r["center_hz"] for r in results], [r["sub"]["center_hz"] for r in results],
+                                     [r["usable_band_hz"] for r in results])
     rows = []
     for r, k in zip(results, keep):
         s, c = r["sub"], (r["center_hz"] if absolute else 0.0)
