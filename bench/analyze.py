@@ -134,6 +134,24 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[s
     return out
 
 
+def tone_dict(tone, center_hz) -> dict:
+    """The JSON view of a tone reading (shared by every command that reports tones)."""
+    if tone is None:
+        names = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
+                 "snr_bandwidth_hz")
+        return dict.fromkeys(names)
+    return {
+        "offset_hz": tone.offset_hz,
+        "frequency_hz": None if center_hz is None else center_hz + tone.offset_hz,
+        "power_dbfs": tone.power_dbfs,
+        "u_power_db": tone.u_power_db,
+        "ci95_dbfs": list(tone.ci95_dbfs),
+        "cn0_dbhz": tone.cn0_dbhz,
+        "snr_db": tone.snr_db,
+        "snr_bandwidth_hz": tone.snr_bandwidth_hz,
+    }
+
+
 def noise_density_dbfs_per_hz(reading: Reading) -> float:
     return db_from_power(reading.floor.density)
 

@@ -35,8 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from bench import keys
-from bench.analyze import CENTER_TOLERANCE_HZ, Reading, read_capture, setup_difference
-from bench.commands.inspect import tone_dict
+from bench.analyze import CENTER_TOLERANCE_HZ, Reading, read_capture, setup_difference, tone_dict
 from bench.errors import CaptureError, RxbenchError, UsageError
 from bench.recordings import META_SUFFIX, Capture, open_capture
 from dsp import environment as env

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from bench.analyze import read_capture
+from bench.analyze import read_capture, tone_dict
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args
 from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
@@ -22,24 +22,6 @@ def add_parser(sub) -> None:
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
-
-
-def tone_dict(tone, center_hz) -> dict:
-    """The JSON view of a tone reading (shared by every command that reports tones)."""
-    if tone is None:
-        keys = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
-                "snr_bandwidth_hz")
-        return dict.fromkeys(keys)
-    return {
-        "offset_hz": tone.offset_hz,
-        "frequency_hz": None if center_hz is None else center_hz + tone.offset_hz,
-        "power_dbfs": tone.power_dbfs,
-        "u_power_db": tone.u_power_db,
-        "ci95_dbfs": list(tone.ci95_dbfs),
-        "cn0_dbhz": tone.cn0_dbhz,
-        "snr_db": tone.snr_db,
-        "snr_bandwidth_hz": tone.snr_bandwidth_hz,
-    }
 
 
 def run(args: argparse.Namespace) -> int:
