@@ -4,6 +4,8 @@ then :mod:`dsp` gives the noise floor and the tone. Everything rxbench reports s
 
 from __future__ import annotations
 
+import datetime as _dt
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -150,6 +152,48 @@ def tone_dict(tone, center_hz) -> dict:
         "snr_db": tone.snr_db,
         "snr_bandwidth_hz": tone.snr_bandwidth_hz,
     }
+
+
+def tone_db(reading: Reading) -> tuple[float, float, float]:
+    """(power dBFS, standard uncertainty dB, dof) of a reading's tone; (nan, nan, inf) when there is none."""
+    t = reading.tone
+    if t is None or not t.power > 0:
+        return math.nan, math.nan, math.inf
+    return t.power_dbfs, t.u_power_db, t.dof_u
+
+
+def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
+    """Pool the tones of repeated captures of one role (several thru captures, say).
+
+    Returns the mean reading (dBFS), its Type A standard uncertainty (dB) and degrees of freedom, by
+    :func:`dsp.ladder.mean_reading` (the larger of the estimators' and the scatter's uncertainty).
+    Raises MeasurementError naming a capture whose tone could not be read.
+    """
+    from dsp.ladder import mean_reading  # scipy.interpolate: kept off the start-up of inspect
+
+    readings = list(readings)
+    values = [tone_db(r) for r in readings]
+    for r, (p, _, _) in zip(readings, values):
+        if not math.isfinite(p):
+            what = f"{role} tone" if role else "tone"
+            raise MeasurementError(f"{r.capture.path}: no {what} could be read (none above the noise)")
+    p, u, dof = zip(*values)
+    return mean_reading(p, u, dof)
+
+
+def capture_start_s(capture: Capture) -> float | None:
+    """Start of a capture from its metadata (ISO 8601; UTC when it names no zone), s since the epoch;
+    None when the metadata gives no readable time."""
+    text = capture.datetime
+    if not isinstance(text, str) or not text:
+        return None
+    try:
+        start = _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    if start.tzinfo is None:
+        start = start.replace(tzinfo=_dt.timezone.utc)
+    return start.timestamp()
 
 
 def noise_density_dbfs_per_hz(reading: Reading) -> float:

@@ -27,7 +27,6 @@ The numerics are all in :mod:`dsp`; this module only groups captures and calls i
 
 from __future__ import annotations
 
-import datetime as _dt
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -35,7 +34,8 @@ from pathlib import Path
 import numpy as np
 
 from bench import keys
-from bench.analyze import CENTER_TOLERANCE_HZ, Reading, read_capture, setup_difference, tone_dict
+from bench.analyze import (CENTER_TOLERANCE_HZ, Reading, capture_start_s, pool_tones, read_capture,
+                           setup_difference, tone_dict)
 from bench.errors import CaptureError, RxbenchError, UsageError
 from bench.recordings import META_SUFFIX, Capture, open_capture
 from dsp import environment as env
@@ -178,18 +178,6 @@ def _session_files(folder: Path) -> list[Path]:
     return found
 
 
-def _parse_time(text) -> float | None:
-    if not isinstance(text, str) or not text:
-        return None
-    try:
-        t = _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
-    except ValueError:
-        return None
-    if t.tzinfo is None:
-        t = t.replace(tzinfo=_dt.timezone.utc)
-    return t.timestamp()
-
-
 def _number(extra, key) -> float | None:
     value = extra.get(key)
     if value is None:
@@ -219,7 +207,7 @@ def _entry(cap: Capture) -> Entry:
     return Entry(
         capture=cap, role=role, step=str(x.get(keys.STEP, "")), attenuation_db=att,
         gain_db=_number(x, keys.GAIN_DB), through_dut=through,
-        time_s=_parse_time(cap.datetime), enr_db=enr, n_devices=devices, attenuator_tolerance_db=tol,
+        time_s=capture_start_s(cap), enr_db=enr, n_devices=devices, attenuator_tolerance_db=tol,
         tone_offset_hz=_number(x, keys.TONE_OFFSET_HZ) if role in TONE_ROLES else None,
         dropped_samples=int(_number(x, keys.DROPPED_SAMPLES) or 0),
         u_enr_db=_number(x, keys.U_ENR_DB),
@@ -401,7 +389,8 @@ class _Pooled:
 
     @property
     def time_s(self) -> float | None:
-        t = [e.time_s for e in self.entries if e.time_s is not None]
+        """Mean mid-capture time (s since the epoch), as ``rxbench loss`` takes it; None unless all are known."""
+        t = [e.time_s + e.capture.duration_s / 2 for e in self.entries if e.time_s is not None]
         return float(np.mean(t)) if len(t) == len(self.entries) and t else None
 
     @property
@@ -410,12 +399,8 @@ class _Pooled:
 
 
 def _pool(entries: list[Entry], readings: dict) -> _Pooled:
-    tones = [readings[e].tone for e in entries]
-    dbfs = [t.power_dbfs for t in tones]
-    u = [t.u_power_db for t in tones]
-    dof = [t.dof_u for t in tones]
-    mean, u_mean, dof_mean = ladder_mod.mean_reading(dbfs, u, dof)
-    return _Pooled(list(entries), mean, u_mean, dof_mean, float(np.mean([t.offset_hz for t in tones])))
+    mean, u_mean, dof_mean = pool_tones([readings[e] for e in entries])
+    return _Pooled(list(entries), mean, u_mean, dof_mean, float(np.mean([readings[e].tone.offset_hz for e in entries])))
 
 
 def _has_tone(e: Entry, readings: dict) -> bool:

@@ -9,7 +9,8 @@ from __future__ import annotations
 import argparse
 import math
 
-from bench.commands.loss import CAUTION, read_tones, tone_db
+from bench.analyze import tone_db
+from bench.commands.loss import CAUTION, read_tones
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, step_capture_from_args

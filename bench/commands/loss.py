@@ -9,16 +9,15 @@ with ``rxbench ladder``.
 from __future__ import annotations
 
 import argparse
-import datetime as _dt
 import math
 
 import numpy as np
 
-from bench.analyze import choose_nperseg, read_capture, require_comparable
+from bench.analyze import capture_start_s, choose_nperseg, pool_tones, read_capture, require_comparable, tone_db
 from bench.errors import MeasurementError, UsageError
 from bench.output import add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args, step_capture_from_args
-from dsp.ladder import direct_loss, mean_reading, mismatch_components, substitution_loss
+from dsp.ladder import direct_loss, mismatch_components, substitution_loss
 from dsp.uncertainty import Component, coverage_factor
 
 
@@ -97,14 +96,6 @@ def read_tones(captures, args: argparse.Namespace):
     return readings, warnings
 
 
-def tone_db(reading):
-    """(power dBFS, standard uncertainty dB, dof) of a reading's tone; nan when there is none."""
-    t = reading.tone
-    if t is None or not t.power > 0:
-        return math.nan, math.nan, math.inf
-    return t.power_dbfs, t.u_power_db, t.dof_u
-
-
 def reading_dict(reading, **more) -> dict:
     p, u, _ = tone_db(reading)
     t = reading.tone
@@ -115,15 +106,8 @@ def reading_dict(reading, **more) -> dict:
 
 def _capture_time_s(cap):
     """Mid-capture time from the metadata (s since the epoch), or None."""
-    if not cap.datetime:
-        return None
-    try:
-        start = _dt.datetime.fromisoformat(str(cap.datetime).replace("Z", "+00:00"))
-    except ValueError:
-        return None
-    if start.tzinfo is None:
-        start = start.replace(tzinfo=_dt.timezone.utc)
-    return start.timestamp() + cap.duration_s / 2
+    start = capture_start_s(cap)
+    return None if start is None else start + cap.duration_s / 2
 
 
 def budget_rows(budget) -> list[dict]:
@@ -194,23 +178,14 @@ def _mismatch(args, loss_db, warnings):
                              note="not assessed (give --source-swr, --load-swr, --dut-swr)")]
 
 
-def _pooled(readings, role):
-    values = [tone_db(r) for r in readings]
-    for r, (p, _, _) in zip(readings, values):
-        if not math.isfinite(p):
-            raise MeasurementError(f"{r.capture.path}: no {role} tone could be read (none above the noise)")
-    p, u, dof = zip(*values)
-    return mean_reading(p, u, dof)
-
-
 def _direct(args, readings, n_thru, n_dut, warnings):
     thru_r, dut_r, after_r = readings[:n_thru], readings[n_thru:n_thru + n_dut], readings[n_thru + n_dut:]
-    thru = _pooled(thru_r, "thru")
-    dut = _pooled(dut_r, "DUT")
+    thru = pool_tones(thru_r, "thru")
+    dut = pool_tones(dut_r, "DUT")
     kw = {}
     times_from = None
     if after_r:
-        after = _pooled(after_r, "thru-after")
+        after = pool_tones(after_r, "thru-after")
         caps = [r.capture for r in readings]
         stamps = [_capture_time_s(c) for c in caps]
         if all(s is not None for s in stamps):
@@ -260,7 +235,7 @@ def _direct(args, readings, n_thru, n_dut, warnings):
 
 def _substitution(args, readings, steps_db, n_dut, warnings):
     step_r, dut_r = readings[:len(steps_db)], readings[len(steps_db):]
-    dut = _pooled(dut_r, "DUT")
+    dut = pool_tones(dut_r, "DUT")
     nominal, reading, u, dof = [], [], [], []
     for db, r in zip(steps_db, step_r):
         p, ur, nu = tone_db(r)
