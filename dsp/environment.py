@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from dsp.units import T0_K, db_from_power, power_from_db
+from dsp.units import T0_K, db_from_power, power_from_db, scalar_or_array
 
 #: ITU-R P.372 median man-made noise, Fam = c - d*log10(f/MHz) dB above kT0*b: (c, d) per category.
 MAN_MADE_NOISE = {
@@ -40,9 +40,6 @@ GALACTIC_NOISE = (52.0, 23.0)
 VALID_RANGE_HZ = (0.3e6, 250e6)
 
 
-def _out(x):
-    x = np.asarray(x, dtype=float)
-    return x.item() if x.ndim == 0 else x
 
 
 def _check_frequency(frequency_hz):
@@ -58,7 +55,7 @@ def _check_frequency(frequency_hz):
 
 def _line_db(frequency_hz, c_db: float, d_db: float):
     f = _check_frequency(frequency_hz)
-    return _out(c_db - d_db * np.log10(f / 1e6))
+    return scalar_or_array(c_db - d_db * np.log10(f / 1e6))
 
 
 def man_made_fa_db(frequency_hz, environment: str):
@@ -133,7 +130,7 @@ def external_fa_db(frequency_hz, environment: str, *, galactic: bool = False):
 
 def temperature_from_fa_db(fa_db, t0_k: float = T0_K):
     """External noise figure Fa (dB) -> antenna noise temperature Ta = T0*10**(Fa/10), K."""
-    return _out(t0_k * np.asarray(power_from_db(fa_db)))
+    return scalar_or_array(t0_k * np.asarray(power_from_db(fa_db)))
 
 
 def fa_db_from_temperature(antenna_temperature_k, t0_k: float = T0_K):
@@ -275,7 +272,7 @@ def antenna_temperature_from_excess(excess_db, receiver_temperature_k, *,
             f"an excess of {excess_db!r} dB with a receiver at {receiver_temperature_k!r} K implies a "
             f"negative antenna temperature: the excess or the receiver noise figure is wrong"
         )
-    return _out(ta)
+    return scalar_or_array(ta)
 
 
 def excess_db_from_temperature(antenna_temperature_k, receiver_temperature_k, *,

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from dsp.units import scalar_or_array
+
 
 def _check_swr(swr):
     s = np.asarray(swr, dtype=float)
@@ -18,15 +20,12 @@ def _check_swr(swr):
     return s
 
 
-def _out(x):
-    x = np.asarray(x, dtype=float)
-    return x.item() if x.ndim == 0 else x
 
 
 def gamma_from_swr(swr):
     """Reflection coefficient magnitude from SWR: |Gamma| = (SWR - 1)/(SWR + 1)."""
     s = _check_swr(swr)
-    return _out((s - 1.0) / (s + 1.0))
+    return scalar_or_array((s - 1.0) / (s + 1.0))
 
 
 def swr_from_gamma(gamma):
@@ -35,14 +34,14 @@ def swr_from_gamma(gamma):
     if np.any(g > 1):
         raise ValueError(f"|Gamma| must be <= 1 for a passive load, got {gamma!r}")
     with np.errstate(divide="ignore"):
-        return _out((1.0 + g) / (1.0 - g))
+        return scalar_or_array((1.0 + g) / (1.0 - g))
 
 
 def return_loss_db_from_gamma(gamma):
     """Return loss RL = -20*log10|Gamma|, dB (|Gamma| = 0 gives inf)."""
     g = np.abs(np.asarray(gamma, dtype=float))
     with np.errstate(divide="ignore"):
-        return _out(-20.0 * np.log10(g))
+        return scalar_or_array(-20.0 * np.log10(g))
 
 
 def gamma_from_return_loss_db(return_loss_db):
@@ -50,14 +49,14 @@ def gamma_from_return_loss_db(return_loss_db):
     rl = np.asarray(return_loss_db, dtype=float)
     if np.any(rl < 0):
         raise ValueError(f"return loss must be >= 0 dB for a passive load, got {return_loss_db!r}")
-    return _out(10.0 ** (-rl / 20.0))
+    return scalar_or_array(10.0 ** (-rl / 20.0))
 
 
 def mismatch_loss_db(gamma):
     """Mismatch loss -10*log10(1 - |Gamma|^2), dB."""
     g = np.abs(np.asarray(gamma, dtype=float))
     with np.errstate(divide="ignore"):
-        return _out(-10.0 * np.log10(1.0 - g**2))
+        return scalar_or_array(-10.0 * np.log10(1.0 - g**2))
 
 
 def source_load_mismatch_limits_db(gamma_source, gamma_load):
@@ -66,7 +65,7 @@ def source_load_mismatch_limits_db(gamma_source, gamma_load):
     Returns ``(upper_db, lower_db)``; e.g. SWR 1.5 with SWR 2 -> (+0.561, -0.599).
     """
     p = np.abs(gamma_source) * np.abs(gamma_load)
-    return _out(20.0 * np.log10(1.0 + p)), _out(20.0 * np.log10(1.0 - p))
+    return scalar_or_array(20.0 * np.log10(1.0 + p)), scalar_or_array(20.0 * np.log10(1.0 - p))
 
 
 def two_port_mismatch_limit_db(gamma_source, gamma_load, s11, s22, s21_s12):
@@ -107,7 +106,7 @@ def return_loss_through_loss_db(return_loss_at_load_db, one_way_loss_db):
     """Return loss seen through a one-way loss A: RL_in = RL_load + 2*A (common practice)."""
     if np.any(np.asarray(one_way_loss_db) < 0):
         raise ValueError(f"one-way loss must be >= 0 dB, got {one_way_loss_db!r}")
-    return _out(np.asarray(return_loss_at_load_db, dtype=float) + 2.0 * np.asarray(one_way_loss_db))
+    return scalar_or_array(np.asarray(return_loss_at_load_db, dtype=float) + 2.0 * np.asarray(one_way_loss_db))
 
 
 def return_loss_at_load_db(return_loss_measured_db, one_way_loss_db):
@@ -124,4 +123,4 @@ def return_loss_at_load_db(return_loss_measured_db, one_way_loss_db):
             f"a return loss of {return_loss_measured_db} dB cannot be read through "
             f"{one_way_loss_db} dB of one-way loss (the load would return more than it receives)"
         )
-    return _out(rl)
+    return scalar_or_array(rl)

@@ -28,14 +28,11 @@ import numpy as np
 
 from dsp.floor import usable_mask
 from dsp.spectrum import Psd, band_power
-from dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, power_from_db
+from dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, power_from_db, scalar_or_array
 
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # dB per unit of relative power change
 
 
-def _out(x):
-    x = np.asarray(x, dtype=float)
-    return x.item() if x.ndim == 0 else x
 
 
 def _positive(name: str, value):
@@ -86,7 +83,7 @@ def noise_factor_from_y(y, enr, *, t_cold_k=T0_K):
     t_cold = _positive("t_cold_k", t_cold_k)
     if np.any(y <= 1.0):
         raise ValueError(f"y={y!r} must be > 1: the hot reading must exceed the cold one")
-    return _out((enr - y * (t_cold / T0_K - 1.0)) / (y - 1.0))
+    return scalar_or_array((enr - y * (t_cold / T0_K - 1.0)) / (y - 1.0))
 
 
 def y_sensitivity(y, enr, *, t_cold_k=T0_K):
@@ -100,7 +97,7 @@ def y_sensitivity(y, enr, *, t_cold_k=T0_K):
     """
     f = np.asarray(noise_factor_from_y(y, enr, t_cold_k=t_cold_k), dtype=float)
     y = np.asarray(y, dtype=float)
-    return _out(-(f + np.asarray(t_cold_k, dtype=float) / T0_K - 1.0) * y / ((y - 1.0) * f))
+    return scalar_or_array(-(f + np.asarray(t_cold_k, dtype=float) / T0_K - 1.0) * y / ((y - 1.0) * f))
 
 
 def second_stage_correction(f_cascade, f_second, gain_first):
@@ -125,7 +122,7 @@ def second_stage_correction(f_cascade, f_second, gain_first):
     Friis, Proc. IRE 32, 1944.
     """
     g = _positive("gain_first", gain_first)
-    return _out(np.asarray(f_cascade, dtype=float) - (np.asarray(f_second, dtype=float) - 1.0) / g)
+    return scalar_or_array(np.asarray(f_cascade, dtype=float) - (np.asarray(f_second, dtype=float) - 1.0) / g)
 
 
 def friis_noise_factor(noise_factors: Sequence[float], gains: Sequence[float]) -> float:
@@ -190,7 +187,7 @@ def passive_noise_factor(loss, temperature_k=T0_K):
     if np.any(~np.isfinite(loss)) or np.any(loss < 1.0):
         raise ValueError(f"loss={loss!r} must be a power ratio >= 1")
     t = _positive("temperature_k", temperature_k)
-    return _out(1.0 + (loss - 1.0) * t / T0_K)
+    return scalar_or_array(1.0 + (loss - 1.0) * t / T0_K)
 
 
 def nf_gain_method_db(level_dbm, cn0_dbhz):
@@ -212,7 +209,7 @@ def nf_gain_method_db(level_dbm, cn0_dbhz):
     ----------
     REFERENCES.md, "Gain method and known-signal method"; kT0 from CODATA k (scipy.constants).
     """
-    return _out(np.asarray(level_dbm, dtype=float) - np.asarray(cn0_dbhz, dtype=float) - KT0_DBM_PER_HZ)
+    return scalar_or_array(np.asarray(level_dbm, dtype=float) - np.asarray(cn0_dbhz, dtype=float) - KT0_DBM_PER_HZ)
 
 
 def dut_gain(n_hot_dut, n_cold_dut, n_hot, n_cold):
@@ -227,7 +224,7 @@ def dut_gain(n_hot_dut, n_cold_dut, n_hot, n_cold):
         raise ValueError("the hot reading without the DUT does not exceed the cold one")
     if np.any(d1 <= 0):
         raise ValueError("the hot reading through the DUT does not exceed the cold one")
-    return _out(d1 / d2)
+    return scalar_or_array(d1 / d2)
 
 
 def band_dof(dof_per_bin, n_bins, window) -> np.ndarray:
@@ -288,7 +285,7 @@ def _propagate(func: Callable, values: Sequence, rel_u: Sequence):
         dn[i] = v * (1.0 - h)
         sens = (np.asarray(func(*up)) - np.asarray(func(*dn))) / (2.0 * h)  # d f / d ln x
         total = total + (sens * u) ** 2
-    return _out(np.sqrt(total))
+    return scalar_or_array(np.sqrt(total))
 
 
 def _rel_u(dof):
@@ -339,15 +336,15 @@ class YFactor:
 
     @property
     def u_nf_db(self):
-        return _out(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
+        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
 
     @property
     def noise_temperature_k(self):
-        return _out(T0_K * (np.asarray(self.noise_factor) - 1.0))
+        return scalar_or_array(T0_K * (np.asarray(self.noise_factor) - 1.0))
 
     @property
     def u_noise_temperature_k(self):
-        return _out(T0_K * np.asarray(self.u_noise_factor))
+        return scalar_or_array(T0_K * np.asarray(self.u_noise_factor))
 
 
 def y_factor(n_hot, n_cold, enr, *, t_cold_k=T0_K, dof_hot=np.inf, dof_cold=np.inf, u_enr_db=0.0):
@@ -387,7 +384,7 @@ def y_factor(n_hot, n_cold, enr, *, t_cold_k=T0_K, dof_hot=np.inf, dof_cold=np.i
 
     u_f = _propagate(model, [n_hot, n_cold, np.asarray(enr, dtype=float)],
                      [_rel_u(dof_hot), _rel_u(dof_cold), u_enr_rel])
-    return YFactor(y=_out(y), enr=_out(enr), t_cold_k=float(t_cold_k), noise_factor=f, u_noise_factor=u_f)
+    return YFactor(y=scalar_or_array(y), enr=scalar_or_array(enr), t_cold_k=float(t_cold_k), noise_factor=f, u_noise_factor=u_f)
 
 
 @dataclass(frozen=True)
@@ -412,11 +409,11 @@ class DutFromNoise:
 
     @property
     def insertion_loss_db(self):
-        return _out(-np.asarray(db_from_power(self.gain)))
+        return scalar_or_array(-np.asarray(db_from_power(self.gain)))
 
     @property
     def u_insertion_loss_db(self):
-        return _out(_DB_PER_NEPER * np.asarray(self.u_gain) / np.asarray(self.gain))
+        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_gain) / np.asarray(self.gain))
 
     @property
     def nf_db(self):
@@ -424,7 +421,7 @@ class DutFromNoise:
 
     @property
     def u_nf_db(self):
-        return _out(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
+        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
 
 
 def dut_from_noise(n_hot, n_cold, n_hot_dut, n_cold_dut, enr, *, t_cold_k=T0_K,

@@ -19,6 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from dsp.units import scalar_or_array
+
 from dsp.distributions import t_ppf
 
 #: Coverage factor used throughout rxbench (GUM 6.3.3: k = 2 gives about 95 %).
@@ -32,9 +34,6 @@ def _finite_nonnegative(value, name):
     return a
 
 
-def _out(a):
-    a = np.asarray(a, dtype=float)
-    return a.item() if a.ndim == 0 else a
 
 
 def type_a(values, axis=None):
@@ -72,7 +71,7 @@ def type_a(values, axis=None):
         raise ValueError(f"readings must be finite, got {values!r}")
     mean = x.mean(axis=axis)
     u = x.std(axis=axis, ddof=1) / math.sqrt(n)
-    return _out(mean), _out(u), n - 1
+    return scalar_or_array(mean), scalar_or_array(u), n - 1
 
 
 def u_rectangular(half_width):
@@ -81,7 +80,7 @@ def u_rectangular(half_width):
     Use for a manufacturer's tolerance "+/- a" with nothing else known (GUM 4.3.7).
     E.g. +/-0.2 dB -> 0.1155 dB.
     """
-    return _out(_finite_nonnegative(half_width, "half_width") / math.sqrt(3.0))
+    return scalar_or_array(_finite_nonnegative(half_width, "half_width") / math.sqrt(3.0))
 
 
 def u_u_shaped(half_width):
@@ -90,7 +89,7 @@ def u_u_shaped(half_width):
     Mismatch errors vary as the cosine of an unknown phase, so they are U-shaped
     (JCGM 101:2008, 6.4.6). E.g. 0.58 dB -> 0.41 dB.
     """
-    return _out(_finite_nonnegative(half_width, "half_width") / math.sqrt(2.0))
+    return scalar_or_array(_finite_nonnegative(half_width, "half_width") / math.sqrt(2.0))
 
 
 def combine(u, sensitivity=None):

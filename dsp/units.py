@@ -16,6 +16,12 @@ T0_K = 290.0
 KT0_DBM_PER_HZ = 10.0 * np.log10(K_B * T0_K * 1e3)
 
 
+def scalar_or_array(x):
+    """A float for 0-d input, a float ndarray otherwise (the return convention of ``dsp``)."""
+    x = np.asarray(x, dtype=float)
+    return x.item() if x.ndim == 0 else x
+
+
 def db_from_power(ratio):
     """Power ratio -> dB: ``10*log10(ratio)``; 0 -> -inf, negative -> ValueError."""
     r = np.asarray(ratio, dtype=float)
@@ -23,13 +29,13 @@ def db_from_power(ratio):
         raise ValueError(f"power ratio must be >= 0, got {ratio!r}")
     with np.errstate(divide="ignore"):
         out = 10.0 * np.log10(r)
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def power_from_db(db):
     """dB -> power ratio: ``10**(db/10)``."""
     out = np.power(10.0, np.asarray(db, dtype=float) / 10.0)
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def db_from_amplitude(ratio):
@@ -37,13 +43,13 @@ def db_from_amplitude(ratio):
     r = np.abs(np.asarray(ratio, dtype=float))
     with np.errstate(divide="ignore"):
         out = 20.0 * np.log10(r)
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def amplitude_from_db(db):
     """dB -> amplitude (voltage) ratio: ``10**(db/20)``."""
     out = np.power(10.0, np.asarray(db, dtype=float) / 20.0)
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def dbm_from_w(power_w):
@@ -62,7 +68,7 @@ def noise_temperature_k(noise_factor, t0_k: float = T0_K):
     if np.any(f < 1):
         raise ValueError(f"noise factor must be >= 1, got {noise_factor!r}")
     out = t0_k * (f - 1.0)
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def noise_factor(noise_temperature, t0_k: float = T0_K):
@@ -71,7 +77,7 @@ def noise_factor(noise_temperature, t0_k: float = T0_K):
     if np.any(t < 0):
         raise ValueError(f"noise temperature must be >= 0 K, got {noise_temperature!r}")
     out = 1.0 + t / t0_k
-    return out.item() if out.ndim == 0 else out
+    return scalar_or_array(out)
 
 
 def noise_temperature_from_nf_db(nf_db, t0_k: float = T0_K):
