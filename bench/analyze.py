@@ -64,8 +64,12 @@ def choose_nperseg(n_samples: int, requested: int | None = None) -> int:
     return nperseg
 
 
-def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann") -> tuple[Psd, Health]:
-    """One streaming pass: averaged PSD and health of a capture. Raises CaptureError on bad samples."""
+def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann",
+               progress=None) -> tuple[Psd, Health]:
+    """One streaming pass: averaged PSD and health of a capture. Raises CaptureError on bad samples.
+
+    ``progress``, when given, is called as ``progress(samples_done, n_samples)`` after each block.
+    """
     n = choose_nperseg(capture.n_samples, nperseg)
     if not 16 <= n <= 1 << 24:
         raise CaptureError(capture.path, f"FFT segment length {n} is outside 16 .. 16777216")
@@ -73,9 +77,13 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
         raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
     acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex)
     health = HealthAccumulator(capture.clip_level)
+    done = 0
     for block in capture.blocks():
         health.update(block)
         acc.update(block)
+        done += block.size
+        if progress is not None:
+            progress(done, capture.n_samples)
     h = health.result()
     if h.n_nonfinite:
         raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")
@@ -91,9 +99,13 @@ def read_capture(
     nperseg: int | None = None,
     snr_bandwidth_hz: float = DEFAULT_SNR_BANDWIDTH_HZ,
     want_tone: bool = True,
+    progress=None,
 ) -> Reading:
-    """Read a capture: PSD, noise floor, (optionally) the tone, health and warnings."""
-    psd, health = accumulate(capture, nperseg)
+    """Read a capture: PSD, noise floor, (optionally) the tone, health and warnings.
+
+    ``progress`` is passed to :func:`accumulate`.
+    """
+    psd, health = accumulate(capture, nperseg, progress=progress)
     warnings: list[str] = []
     name = capture.path.name
     if health.clip_fraction > CLIP_WARN_FRACTION:

@@ -31,6 +31,7 @@ from typing import Callable, Sequence, TextIO
 from bench import keys
 from bench.device import CHUNK_BYTES, CaptureSource
 from bench.errors import CaptureError, UsageError
+from bench.output import Progress
 from bench.plan import TONE_ROLES, Plan, PlannedCapture
 from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 
@@ -91,31 +92,6 @@ def check_levels(plan: Plan, *, force: bool = False) -> list[str]:
             warnings.append(f"step {name!r}: about {level:+.1f} dBm at the input may clip the dongle "
                             "(give [dongle] full_scale_dbm, e.g. from a ladder check, for a firmer check)")
     return warnings
-
-
-class _Progress:
-    """Progress of one capture on a stream: an updating line on a terminal, plain lines otherwise."""
-
-    def __init__(self, stream: TextIO | None):
-        self.stream = stream
-        self.tty = bool(stream is not None and hasattr(stream, "isatty") and stream.isatty())
-
-    def line(self, text: str) -> None:
-        if self.stream is not None:
-            self.stream.write(text + "\n")
-            self.stream.flush()
-
-    def update(self, label: str, done: int, total: int) -> None:
-        if self.tty and total:
-            self.stream.write(f"\r{label}: {100 * done / total:5.1f} %")
-            self.stream.flush()
-
-    def finish(self, label: str, text: str) -> None:
-        if self.stream is None:
-            return
-        if self.tty:
-            self.stream.write("\r\x1b[K")
-        self.line(f"{label}: {text}")
 
 
 def stdin_prompt(message: str) -> str:
@@ -258,7 +234,7 @@ def run_session(
     try:
         session = prepare_session(plan, session_dir)
         run = SessionRun(session, warnings=warnings)
-        _run_captures(plan, session, device, run, yes=yes, redo=redo, show=_Progress(progress),
+        _run_captures(plan, session, device, run, yes=yes, redo=redo, show=Progress(progress),
                       ask=prompt or stdin_prompt)
     finally:
         device.close()
@@ -266,7 +242,7 @@ def run_session(
 
 
 def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, *, yes: bool,
-                  redo: Sequence[str], show: _Progress, ask: Callable[[str], str]) -> None:
+                  redo: Sequence[str], show: Progress, ask: Callable[[str], str]) -> None:
     log = _Log(session / LOG_NAME)
     log(f"run of {plan.source} with device {device.name}"
         + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
@@ -319,7 +295,7 @@ def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: Session
 
 
 def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
-                 show: _Progress, log: _Log, run: SessionRun) -> Path:
+                 show: Progress, log: _Log, run: SessionRun) -> Path:
     settings = plan.dongle
     device.arrange(cap)
     applied = device.configure(settings, cap.center_hz)

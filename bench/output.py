@@ -10,7 +10,7 @@ import argparse
 import json
 import math
 import sys
-from typing import Any
+from typing import Any, TextIO
 
 
 def add_json_option(parser: argparse.ArgumentParser) -> None:
@@ -53,3 +53,33 @@ def fmt_db(value: float, digits: int = 2) -> str:
     if math.isinf(value):
         return "-inf" if value < 0 else "inf"
     return f"{value:.{digits}f}"
+
+
+class Progress:
+    """Progress of long work on a stream (stderr): an updating line on a terminal, plain lines
+    otherwise (``line``/``finish`` only, so logs and pipes are not flooded)."""
+
+    def __init__(self, stream: TextIO | None = None):
+        self.stream = stream
+        self.tty = bool(stream is not None and hasattr(stream, "isatty") and stream.isatty())
+
+    def line(self, text: str) -> None:
+        if self.stream is not None:
+            self.stream.write(text + "\n")
+            self.stream.flush()
+
+    def update(self, label: str, done: float, total: float) -> None:
+        """Show ``done`` of ``total`` as a percentage (terminals only)."""
+        if self.tty and total:
+            self.stream.write(f"\r{label}: {100 * done / total:5.1f} %\x1b[K")
+            self.stream.flush()
+
+    def clear(self) -> None:
+        """Remove the updating line (terminals only)."""
+        if self.tty:
+            self.stream.write("\r\x1b[K")
+            self.stream.flush()
+
+    def finish(self, label: str, text: str) -> None:
+        self.clear()
+        self.line(f"{label}: {text}")

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from bench.output import add_json_option, emit
+from bench.output import Progress, add_json_option, emit
 from bench.report import summary_lines, write_report
 from bench.session import analyze_session, open_session
 
@@ -33,16 +33,14 @@ def analyze_and_report(folder, *, overwrite: bool = False, extra_markdown=None, 
     return analysis, report_dir
 
 
-def _progress(i: int, n: int, name: str) -> None:
-    if sys.stderr.isatty():
-        sys.stderr.write(f"\rreading {i + 1}/{n} {name}\x1b[K")
-        if i + 1 == n:
-            sys.stderr.write("\r\x1b[K")
-        sys.stderr.flush()
-
-
 def run(args: argparse.Namespace) -> int:
-    analysis, report_dir = analyze_and_report(args.session, overwrite=args.overwrite, progress=_progress)
+    show = Progress(sys.stderr)
+
+    def progress(i: int, n: int, name: str) -> None:
+        show.update(f"reading {name}", i, n)
+
+    analysis, report_dir = analyze_and_report(args.session, overwrite=args.overwrite, progress=progress)
+    show.clear()
     result = analysis.to_dict()
     result["report_dir"] = str(report_dir)
     s = analysis.session

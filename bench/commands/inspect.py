@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import sys
 
 from bench.analyze import read_capture, tone_dict
-from bench.output import add_json_option, emit, fmt_db
+from bench.output import Progress, add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args
 from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 from dsp.units import db_from_power
@@ -30,7 +31,10 @@ def run(args: argparse.Namespace) -> int:
 
         raise UsageError(f"--snr-bandwidth must be positive, got {args.snr_bandwidth}")
     cap = capture_from_args(args.capture, args)
-    r = read_capture(cap, near_hz=args.near, nperseg=args.nperseg, snr_bandwidth_hz=args.snr_bandwidth)
+    show = Progress(sys.stderr)
+    r = read_capture(cap, near_hz=args.near, nperseg=args.nperseg, snr_bandwidth_hz=args.snr_bandwidth,
+                     progress=lambda done, total: show.update(f"reading {cap.name}", done, total))
+    show.clear()
     t = r.tone
     result = {
         "capture": str(cap.path),
