@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bench import keys
-from bench.errors import CaptureError, MeasurementError
+from bench.errors import CaptureError, MeasurementError, UsageError
 from bench.recordings import Capture
 from dsp.floor import NoiseFloor, noise_floor
 from dsp.health import Health, HealthAccumulator
@@ -263,3 +263,30 @@ def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> l
             warnings.append("the gain is not recorded in every capture: make sure it was fixed (AGC off) "
                             "and the same for all")
     return warnings
+
+
+def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = None):
+    """Read the tone of every capture alike (one FFT length, the tone of the first capture).
+
+    Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
+    """
+    warnings = require_comparable(captures)
+    if nperseg is not None and nperseg < 16:
+        raise UsageError(f"--nperseg must be at least 16, got {nperseg}")
+    nperseg = choose_nperseg(min(c.n_samples for c in captures), nperseg)
+
+    def read(cap, near):
+        try:
+            return read_capture(cap, near_hz=near, nperseg=nperseg)
+        except ValueError as exc:
+            raise UsageError(f"{cap.path}: {exc}") from None
+
+    first = read(captures[0], near_hz)
+    if first.tone is None:
+        where = "; give --near HZ" if near_hz is None else f" near {near_hz:g} Hz"
+        raise MeasurementError(f"{captures[0].path}: no tone found above the noise{where}")
+    near = first.tone.offset_hz
+    readings = [first] + [read(cap, near) for cap in captures[1:]]
+    for r in readings:
+        warnings.extend(r.warnings)
+    return readings, warnings

@@ -31,7 +31,7 @@ from typing import Callable, Sequence, TextIO
 from bench import keys
 from bench.device import CHUNK_BYTES, CaptureSource
 from bench.errors import CaptureError, UsageError
-from bench.output import Progress
+from bench.output import CAUTIONS, Progress
 from bench.plan import TONE_ROLES, Plan, PlannedCapture
 from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 
@@ -51,12 +51,6 @@ CLIP_MARGIN_DB = 3.0
 #: (common practice).
 UNKNOWN_CLIP_WARN_DBM = -40.0
 
-CAUTIONS = (
-    "Cautions: never connect a transmitter's output to the dongle without attenuation rated for the "
-    "power (its input is damaged at a few milliwatts); feed points of high-impedance antennas carry "
-    "high voltage while transmitting; observe RF-exposure limits. Defer to local codes and licensed "
-    "practice."
-)
 
 
 def round_up_512(n: float) -> int:

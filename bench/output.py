@@ -13,6 +13,15 @@ import sys
 from typing import Any, TextIO
 
 
+#: The cautions every command that touches hardware carries (README "Cautions").
+CAUTIONS = (
+    "Never connect a transmitter's output to the dongle without attenuation rated for the power: its "
+    "input is damaged at a few milliwatts. Feed points of high-impedance antennas carry high voltage "
+    "while transmitting. Observe RF-exposure limits and the licence conditions where you operate. "
+    "Defer to local codes and licensed practice."
+)
+
+
 def add_json_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print exactly one JSON document on stdout")
 

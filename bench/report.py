@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from bench.errors import UsageError
-from bench.output import _clean, fmt_db
+from bench.output import CAUTIONS, _clean, fmt_db
 from bench.session import QUIET_GALACTIC, Analysis
 from dsp.units import db_from_power
 
@@ -48,12 +48,6 @@ ENV_COLOURS = {"city": "#E69F00", "residential": "#56B4E9", "rural": "#009E73", 
 C_DIRECT = "#1B3A5C"
 DPI = 100
 
-CAUTIONS = (
-    "Never connect a transmitter's output to the dongle without attenuation rated for the power: its "
-    "input is damaged at a few milliwatts. Feed points of high-impedance antennas carry high voltage "
-    "while transmitting. Observe RF-exposure limits and the licence conditions where you operate; "
-    "defer to local codes and licensed practice."
-)
 
 
 # --------------------------------------------------------------------------------------------

@@ -6,10 +6,10 @@ from __future__ import annotations
 import argparse
 import sys
 
-from bench.capture import CAUTIONS, run_session
+from bench.capture import run_session
 from bench.device import open_source
 from bench.errors import UsageError
-from bench.output import add_json_option, emit
+from bench.output import CAUTIONS, add_json_option, emit
 from bench.plan import load_plan
 
 

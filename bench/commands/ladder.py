@@ -9,10 +9,9 @@ from __future__ import annotations
 import argparse
 import math
 
-from bench.analyze import tone_db
-from bench.commands.loss import CAUTION, read_tones
+from bench.analyze import read_tones, tone_db
 from bench.errors import MeasurementError, UsageError
-from bench.output import add_json_option, emit, fmt_db
+from bench.output import CAUTIONS, add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, step_capture_from_args
 from dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
 
@@ -24,7 +23,7 @@ def add_parser(sub) -> None:
                     "nominal value (referenced so that one bad step cannot pollute the others), where the "
                     "dongle compresses at the top and sinks into noise at the bottom, and its usable "
                     "linear range.",
-        epilog=CAUTION)
+        epilog=CAUTIONS)
     p.add_argument("--step", action="append", default=[], metavar="DB=CAPTURE",
                    help="thru capture with the attenuator at DB (repeat; at least 3 steps)")
     p.add_argument("--tolerance-db", type=float, default=DEFAULT_TOLERANCE_DB, metavar="DB",
@@ -60,7 +59,7 @@ def run(args: argparse.Namespace) -> int:
     dbs = [db for db, _ in steps]
     if len(set(dbs)) != len(dbs):
         raise UsageError(f"--step: each attenuator setting may appear once, got {dbs}")
-    readings, warnings = read_tones([cap for _, cap in steps], args)
+    readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg)
     values = [tone_db(r) for r in readings]
     try:
         c = check_ladder(dbs, [v[0] for v in values], [v[1] for v in values], tolerance_db=args.tolerance_db,

@@ -13,16 +13,14 @@ import math
 
 import numpy as np
 
-from bench.analyze import capture_start_s, choose_nperseg, pool_tones, read_capture, require_comparable, tone_db
+from bench.analyze import capture_start_s, pool_tones, read_tones, tone_db
 from bench.errors import MeasurementError, UsageError
-from bench.output import add_json_option, emit, fmt_db
+from bench.output import CAUTIONS, add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args, step_capture_from_args
 from dsp.ladder import direct_loss, mismatch_components, substitution_loss
 from dsp.uncertainty import Component, coverage_factor
 
 
-CAUTION = ("Caution: never connect a transmitter to the dongle without attenuation rated for its "
-           "power; the dongle's input is damaged at a few milliwatts.")
 
 
 def add_parser(sub) -> None:
@@ -32,7 +30,7 @@ def add_parser(sub) -> None:
                     "through a thru and through the DUT (--thru/--dut). Substitution: thru captures at "
                     "known attenuator settings (--step DB=CAPTURE ...) and the DUT (--dut) at --dut-step; "
                     "the dongle is then only a comparator.",
-        epilog=CAUTION)
+        epilog=CAUTIONS)
     g = p.add_argument_group("direct method")
     g.add_argument("--thru", action="append", default=[], metavar="CAPTURE",
                    help="thru capture before the DUT (repeat for several)")
@@ -67,33 +65,6 @@ def add_parser(sub) -> None:
 
 # --------------------------------------------------------------------------------------------
 # Shared with `rxbench ladder`
-
-
-def read_tones(captures, args: argparse.Namespace):
-    """Read the tone of every capture alike (one FFT length, the tone of the first capture).
-
-    Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
-    """
-    warnings = require_comparable(captures)
-    if args.nperseg is not None and args.nperseg < 16:
-        raise UsageError(f"--nperseg must be at least 16, got {args.nperseg}")
-    nperseg = choose_nperseg(min(c.n_samples for c in captures), args.nperseg)
-
-    def read(cap, near):
-        try:
-            return read_capture(cap, near_hz=near, nperseg=nperseg)
-        except ValueError as exc:
-            raise UsageError(f"{cap.path}: {exc}") from None
-
-    first = read(captures[0], args.near)
-    if first.tone is None:
-        where = "; give --near HZ" if args.near is None else f" near {args.near:g} Hz"
-        raise MeasurementError(f"{captures[0].path}: no tone found above the noise{where}")
-    near = first.tone.offset_hz
-    readings = [first] + [read(cap, near) for cap in captures[1:]]
-    for r in readings:
-        warnings.extend(r.warnings)
-    return readings, warnings
 
 
 def reading_dict(reading, **more) -> dict:
@@ -282,7 +253,7 @@ def run(args: argparse.Namespace) -> int:
     method = _check_options(args)
     if method == "direct":
         captures = [capture_from_args(p, args) for p in (*args.thru, *args.dut, *args.thru_after)]
-        readings, warnings = read_tones(captures, args)
+        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg)
         loss, detail, rows = _direct(args, readings, len(args.thru), len(args.dut), warnings)
     else:
         steps = [step_capture_from_args(s, args) for s in args.step]
@@ -292,7 +263,7 @@ def run(args: argparse.Namespace) -> int:
         order = np.argsort(dbs)
         dbs = [dbs[i] for i in order]
         captures = [steps[i][1] for i in order] + [capture_from_args(p, args) for p in args.dut]
-        readings, warnings = read_tones(captures, args)
+        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg)
         loss, detail, rows = _substitution(args, readings, dbs, len(args.dut), warnings)
 
     U = loss.expanded_uncertainty_db
