@@ -26,14 +26,14 @@ def add_json_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print exactly one JSON document on stdout")
 
 
-def _clean(value: Any) -> Any:
+def json_safe(value: Any) -> Any:
     """Make a result JSON-safe: numpy scalars to Python, non-finite floats to null."""
     if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
+        return {str(k): json_safe(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
+        return [json_safe(v) for v in value]
     if hasattr(value, "tolist"):  # numpy scalar or array
-        return _clean(value.tolist())
+        return json_safe(value.tolist())
     if isinstance(value, float) and not math.isfinite(value):
         return None
     return value
@@ -49,7 +49,7 @@ def emit(args: argparse.Namespace, result: dict, human: str, warnings: list[str]
     for w in warnings or ():
         warn(w, getattr(args, "command", ""))
     if getattr(args, "json", False):
-        json.dump(_clean(result), sys.stdout, indent=2, allow_nan=False)
+        json.dump(json_safe(result), sys.stdout, indent=2, allow_nan=False)
         sys.stdout.write("\n")
     else:
         sys.stdout.write(human.rstrip("\n") + "\n")

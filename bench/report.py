@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from bench.errors import UsageError
-from bench.output import CAUTIONS, _clean, fmt_db
+from bench.output import CAUTIONS, json_safe, fmt_db
 from bench.session import QUIET_GALACTIC, Analysis
 from dsp.units import db_from_power
 
@@ -643,7 +643,7 @@ def write_report(analysis: Analysis, *, overwrite: bool = False, extra_markdown:
         if extra_json:
             doc.update(extra_json)
         with open(tmp / "results.json", "w", encoding="utf-8") as f:
-            json.dump(_clean(doc), f, indent=2, allow_nan=False)
+            json.dump(json_safe(doc), f, indent=2, allow_nan=False)
             f.write("\n")
         write_csv(csv_rows(analysis), tmp / "results.csv")
         (tmp / "report.md").write_text(markdown(analysis, plots, extra_markdown), encoding="utf-8")

@@ -5,7 +5,7 @@ import math
 
 import numpy as np
 
-from bench.output import Progress, _clean, fmt_db
+from bench.output import Progress, json_safe, fmt_db
 
 
 class _Tty(io.StringIO):
@@ -25,7 +25,7 @@ def test_progress_updates_only_on_a_terminal():
 
 
 def test_json_cleaning_makes_strict_json():
-    doc = _clean({"a": np.float64(1.5), "b": [np.inf, -np.inf, math.nan], "c": np.arange(2)})
+    doc = json_safe({"a": np.float64(1.5), "b": [np.inf, -np.inf, math.nan], "c": np.arange(2)})
     assert doc == {"a": 1.5, "b": [None, None, None], "c": [0, 1]}
 
 
