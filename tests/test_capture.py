@@ -143,7 +143,7 @@ def test_noise_levels_follow_physics(recorded):
     _, cold = reading(session, "04-cold", tone=False)
     _, hot = reading(session, "05-hot", tone=False)
     y = hot.floor.density / cold.floor.density
-    # Y-factor method: F = ENR / (Y - 1) with a cold source at T0 (Agilent AN 57-1, eq. 3-4)
+    # Y-factor method: F = ENR / (Y - 1) with a cold source at T0 (Agilent AN 57-1, eq. 3-4, from memory)
     nf_db = 10 * np.log10(power_from_db(15.0) / (y - 1))
     assert nf_db == pytest.approx(TRUTH.dongle_nf_db, abs=0.2)
     _, ant = reading(session, "07-antenna", tone=False)
