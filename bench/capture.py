@@ -31,7 +31,7 @@ from typing import Callable, Sequence, TextIO
 from bench import keys
 from bench.device import CHUNK_BYTES, CaptureSource
 from bench.errors import CaptureError, UsageError
-from bench.output import CAUTIONS, Progress
+from bench.output import Progress
 from bench.plan import TONE_ROLES, Plan, PlannedCapture
 from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 
@@ -409,4 +409,4 @@ def run_plan(
                        prompt=prompt).written
 
 
-__all__ = ["run_plan", "run_session", "check_levels", "prepare_session", "SessionRun", "CAUTIONS"]
+__all__ = ["run_plan", "run_session", "check_levels", "prepare_session", "SessionRun"]

@@ -300,8 +300,20 @@ def _rel_u(dof):
 # --------------------------------------------------------------------------------------------------
 
 
+class _NoiseFactorDb:
+    """dB views of ``noise_factor`` and ``u_noise_factor``, shared by the noise-figure results."""
+
+    @property
+    def nf_db(self):
+        return db_from_power(np.maximum(self.noise_factor, 0.0))
+
+    @property
+    def u_nf_db(self):
+        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
+
+
 @dataclass(frozen=True)
-class YFactor:
+class YFactor(_NoiseFactorDb):
     """Y-factor result, scalar or per sub-band (arrays).
 
     Attributes
@@ -329,14 +341,6 @@ class YFactor:
     @property
     def enr_db(self):
         return db_from_power(self.enr)
-
-    @property
-    def nf_db(self):
-        return db_from_power(np.maximum(self.noise_factor, 0.0))
-
-    @property
-    def u_nf_db(self):
-        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
 
     @property
     def noise_temperature_k(self):
@@ -388,7 +392,7 @@ def y_factor(n_hot, n_cold, enr, *, t_cold_k=T0_K, dof_hot=np.inf, dof_cold=np.i
 
 
 @dataclass(frozen=True)
-class DutFromNoise:
+class DutFromNoise(_NoiseFactorDb):
     """A DUT measured with a noise source: gain (insertion loss) and its own noise factor.
 
     Attributes
@@ -415,13 +419,6 @@ class DutFromNoise:
     def u_insertion_loss_db(self):
         return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_gain) / np.asarray(self.gain))
 
-    @property
-    def nf_db(self):
-        return db_from_power(np.maximum(self.noise_factor, 0.0))
-
-    @property
-    def u_nf_db(self):
-        return scalar_or_array(_DB_PER_NEPER * np.asarray(self.u_noise_factor) / np.asarray(self.noise_factor))
 
 
 def dut_from_noise(n_hot, n_cold, n_hot_dut, n_cold_dut, enr, *, t_cold_k=T0_K,
