@@ -69,23 +69,8 @@ ENCODINGS: dict[str, Encoding] = {
 #: Raw-file ``--format`` names and the SigMF datatype each stands for.
 RAW_FORMATS = {"cu8": "cu8", "cs8": "ci8", "cs16": "ci16_le", "cf32": "cf32_le"}
 
-_CU8_LUT: np.ndarray | None = None
-
-
-def _cu8_lut() -> np.ndarray:
-    """complex64 value of every little-endian (I, Q) byte pair: one gather per sample."""
-    global _CU8_LUT
-    if _CU8_LUT is None:
-        v = (np.arange(256, dtype=np.float32) - np.float32(127.5)) / np.float32(127.5)
-        codes = np.arange(65536, dtype=np.uint32)
-        _CU8_LUT = (v[codes & 0xFF] + 1j * v[codes >> 8]).astype(np.complex64)
-    return _CU8_LUT
-
-
 def decode(raw: np.ndarray, encoding: Encoding) -> np.ndarray:
     """Codes (one rail per element) -> complex64 (or float32 for real) at +/-1 full scale."""
-    if encoding.component == "u1" and encoding.is_complex:
-        return _cu8_lut()[raw.view("<u2")]
     x = raw.astype(np.float32)
     if encoding.offset:
         x -= np.float32(encoding.offset)

@@ -44,18 +44,23 @@ class HealthAccumulator:
 
     def update(self, block) -> None:
         x = np.asarray(block)
-        finite = np.isfinite(x)
-        if not finite.all():
-            self._nonfinite += int(x.size - finite.sum())
+        total = complex(x.sum())  # pairwise summation, in the block's own precision
+        power = float(np.vdot(x, x).real)
+        if not (np.isfinite(total) and np.isfinite(power)):
+            # Rare path: count the bad samples, then measure the rest.
+            finite = np.isfinite(x)
+            self._nonfinite += int(x.size - np.count_nonzero(finite))
             x = x[finite]
+            total = complex(x.sum(dtype=np.complex128 if np.iscomplexobj(x) else np.float64))
+            power = float(np.vdot(x, x).real)
         if np.iscomplexobj(x):
-            re, im = x.real, x.imag
-            clipped = (np.abs(re) >= self.clip_level) | (np.abs(im) >= self.clip_level)
+            rail = np.abs(x.view(x.real.dtype)) >= self.clip_level
+            clipped = rail[0::2] | rail[1::2]  # either rail at full scale
         else:
             clipped = np.abs(x) >= self.clip_level
         self._clipped += int(np.count_nonzero(clipped))
-        self._sum += complex(np.sum(x, dtype=np.complex128))
-        self._power += float(np.vdot(x, x).real)
+        self._sum += total
+        self._power += power
         self._n += x.size
 
     def result(self) -> Health:

@@ -208,7 +208,8 @@ class PsdAccumulator:
     -----
     Segments run continuously across block boundaries, so the result does not depend on how the
     capture was cut into blocks. Complex64 input is transformed in single precision (scipy.fft, all
-    cores); sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
+    cores); each call sums at most 64 segments in that precision (relative error below 1e-5), and
+    the running sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
     of them, merged pairwise as the capture grows) give the Type A scatter of any reading.
     """
 
@@ -270,7 +271,7 @@ class PsdAccumulator:
         else:
             spec = scipy.fft.fft(windowed, axis=-1, workers=-1, overwrite_x=True)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
-        squares = np.einsum("ij,ij->j", rails, rails, dtype=np.float64)
+        squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
         return squares[0::2] + squares[1::2]
 
     def _open_batch(self) -> None:
