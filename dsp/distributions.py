@@ -13,6 +13,7 @@ continued fraction) and 9.4 (Newton-Raphson kept inside a bracket).
 
 from __future__ import annotations
 
+import functools
 import math
 from statistics import NormalDist
 
@@ -159,6 +160,7 @@ def _chi2_slope(a: float, x: float) -> float:
     return -math.exp(_log_gamma_kernel(a, x / 2.0) - math.log(x)) if x > 0.0 else -math.inf
 
 
+@functools.lru_cache(maxsize=1024)  # readings in a run share a few (p, dof): solve each once
 def _chi2_quantile(p: float, dof: float, upper: bool) -> float:
     """x with P(chi2(dof) > x) = p (``upper``) or P(chi2(dof) <= x) = p. Solved on the smaller
     tail, which the expansions give to full relative precision."""
@@ -184,6 +186,7 @@ def _t_upper(t: float, dof: float) -> float:
     return 0.5 * upper
 
 
+@functools.lru_cache(maxsize=1024)
 def _t_quantile(q: float, dof: float) -> float:
     if not (dof > 0.0 and 0.0 <= q <= 1.0):
         return math.nan

@@ -53,12 +53,11 @@ class HealthAccumulator:
             x = x[finite]
             total = complex(x.sum(dtype=np.complex128 if np.iscomplexobj(x) else np.float64))
             power = float(np.vdot(x, x).real)
-        if np.iscomplexobj(x):
-            rail = np.abs(x.view(x.real.dtype)) >= self.clip_level
-            clipped = rail[0::2] | rail[1::2]  # either rail at full scale
-        else:
-            clipped = np.abs(x) >= self.clip_level
-        self._clipped += int(np.count_nonzero(clipped))
+        rails = x.view(x.real.dtype) if np.iscomplexobj(x) else x
+        if rails.size and max(-rails.min(), rails.max()) >= self.clip_level:  # two fast reductions
+            at_rail = np.abs(rails) >= self.clip_level
+            clipped = at_rail[0::2] | at_rail[1::2] if np.iscomplexobj(x) else at_rail  # either rail
+            self._clipped += int(np.count_nonzero(clipped))
         self._sum += total
         self._power += power
         self._n += x.size

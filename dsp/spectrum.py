@@ -15,8 +15,36 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import threading
+
 import numpy as np
-import scipy.fft
+
+from dsp.fft import cpu_threads, fft_rows, rfft_rows
+
+_POOL = None
+_LOCAL = threading.local()
+
+
+def _worker_pool():
+    """The process's FFT worker threads (one per core), or None on a single core."""
+    global _POOL
+    if _POOL is None and cpu_threads() > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        _POOL = ThreadPoolExecutor(max_workers=cpu_threads(), thread_name_prefix="rxbench-psd")
+    return _POOL
+
+
+def _work_buffer(dtype, rows: int, columns: int) -> np.ndarray:
+    """A per-thread scratch array for windowed segments, reused from call to call (fresh arrays of
+    this size cost a page fault per 4 kB, which was a fifth of the whole pass)."""
+    buffers = _LOCAL.__dict__.setdefault("buffers", {})
+    key = (np.dtype(dtype), columns)
+    buf = buffers.get(key)
+    if buf is None or len(buf) < rows:
+        buf = buffers[key] = np.empty((rows, columns), dtype)
+    return buf
+
 
 #: Number of time-ordered sub-averages kept for Type A scatter (between N_BATCHES and 2*N_BATCHES).
 N_BATCHES = 16
@@ -207,8 +235,8 @@ class PsdAccumulator:
     Notes
     -----
     Segments run continuously across block boundaries, so the result does not depend on how the
-    capture was cut into blocks. Complex64 input is transformed in single precision (scipy.fft, all
-    cores); each call sums at most 64 segments in that precision (relative error below 1e-5), and
+    capture was cut into blocks. Complex64 input is transformed in single precision (:mod:`dsp.fft`,
+    all cores); each call sums at most 64 segments in that precision (relative error below 1e-5), and
     the running sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
     of them, merged pairwise as the capture grows) give the Type A scatter of any reading.
     """
@@ -232,6 +260,7 @@ class PsdAccumulator:
         self.step = max(1, int(round(self.nperseg * (1.0 - overlap))))
         self.one_sided = bool(one_sided)
         self._tail = None
+        self._pending: list[tuple[int, object]] = []  # (sub-average index, future), oldest first
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
@@ -255,21 +284,43 @@ class PsdAccumulator:
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
             view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
-            self._batches[-1] += self._periodogram_sum(view)
+            self._add(len(self._batches) - 1, view)
             self._counts[-1] += count
             self.n_segments += count
             first += count
         self._tail = x[n_seg * self.step :].copy()
 
-    def _periodogram_sum(self, segments: np.ndarray) -> np.ndarray:
+    def _add(self, batch: int, segments: np.ndarray) -> None:
+        """Add the periodograms of ``segments`` to sub-average ``batch``: on the worker threads when
+        there are several cores and the batch is worth a hand-off (results are added in submission
+        order, so the sums do not depend on thread timing), else at once."""
+        pool = _worker_pool() if len(segments) >= _SEGMENTS_PER_CALL // 2 else None
+        if pool is None:
+            self._batches[batch] += self._periodogram_sum(segments, fft_threads=None)
+            return
+        self._pending.append((batch, pool.submit(self._periodogram_sum, segments, 1)))
+        while len(self._pending) > 2 * pool._max_workers:
+            self._collect_oldest()
+
+    def _collect_oldest(self) -> None:
+        batch, future = self._pending.pop(0)
+        self._batches[batch] += future.result()
+
+    def _drain(self) -> None:
+        while self._pending:
+            self._collect_oldest()
+
+    def _periodogram_sum(self, segments: np.ndarray, fft_threads: int | None) -> np.ndarray:
         """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64."""
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
-        windowed = segments * win
+        dtype = np.result_type(segments.dtype, win.dtype)
+        work = _work_buffer(dtype, max(len(segments), _SEGMENTS_PER_CALL), self.nperseg)
+        windowed = np.multiply(segments, win, out=work[: len(segments)])
         if self.one_sided:
-            spec = scipy.fft.rfft(windowed, axis=-1, workers=-1)
+            spec = rfft_rows(windowed, threads=fft_threads)
         else:
-            spec = scipy.fft.fft(windowed, axis=-1, workers=-1, overwrite_x=True)
+            spec = fft_rows(windowed, overwrite=True, threads=fft_threads)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
         squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
         return squares[0::2] + squares[1::2]
@@ -279,6 +330,7 @@ class PsdAccumulator:
         if self._batches and self._counts[-1] < self._batch_len:
             return
         if len(self._batches) == 2 * N_BATCHES:
+            self._drain()
             self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
             self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
             self._batch_len *= 2
@@ -289,6 +341,7 @@ class PsdAccumulator:
 
     def result(self) -> Psd:
         """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
+        self._drain()
         if self.n_segments == 0:
             raise ValueError(
                 f"fewer samples than one segment ({self.nperseg=}): the capture is too short"
@@ -298,15 +351,15 @@ class PsdAccumulator:
         sums = np.array(self._batches)
         counts = np.array(self._counts)
         if self.one_sided:
-            freq = scipy.fft.rfftfreq(n, 1.0 / fs)
+            freq = np.fft.rfftfreq(n, 1.0 / fs)
             fold = np.full(freq.size, 2.0)
             fold[0] = 1.0
             if n % 2 == 0:
                 fold[-1] = 1.0
             scale = scale * fold
         else:
-            freq = scipy.fft.fftshift(scipy.fft.fftfreq(n, 1.0 / fs))
-            sums = scipy.fft.fftshift(sums, axes=-1)
+            freq = np.fft.fftshift(np.fft.fftfreq(n, 1.0 / fs))
+            sums = np.fft.fftshift(sums, axes=-1)
         batch_density = sums * scale / counts[:, None]
         density = sums.sum(axis=0) * scale / self.n_segments
         props_enbw = n * np.sum(self.window**2) / self.window.sum() ** 2
