@@ -22,7 +22,6 @@ import datetime as _dt
 import json
 import math
 import os
-import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterator, Mapping
@@ -71,10 +70,12 @@ ENCODINGS: dict[str, Encoding] = {
 RAW_FORMATS = {"cu8": "cu8", "cs8": "ci8", "cs16": "ci16_le", "cf32": "cf32_le"}
 
 def decode(raw: np.ndarray, encoding: Encoding) -> np.ndarray:
-    """Codes (one rail per element) -> complex64 (or float32 for real) at +/-1 full scale."""
-    x = raw.astype(np.float32)
+    """Codes (one rail per element) -> complex64 (or float32 for real) at +/-1 full scale, always in a
+    new array (readers reuse their buffer of codes)."""
     if encoding.offset:
-        x -= np.float32(encoding.offset)
+        x = np.subtract(raw, np.float32(encoding.offset), dtype=np.float32)
+    else:
+        x = raw.astype(np.float32)
     if encoding.scale != 1.0:
         x *= np.float32(1.0 / encoding.scale)
     return x.view(np.complex64) if encoding.is_complex else x
@@ -184,12 +185,15 @@ def _file_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
     rails = 2 if encoding.is_complex else 1
 
     def reader(block):
+        # One read buffer for the whole pass (decode always returns a new array): a fresh one per
+        # block would cost a page fault per 4 kB.
+        buf = np.empty(min(block, n_samples) * rails, dtype=encoding.component)
         with open(path, "rb") as f:
             f.seek(offset)
             for i in range(0, n_samples, block):
                 count = min(block, n_samples - i) * rails
-                raw = np.fromfile(f, dtype=encoding.component, count=count)
-                if raw.size != count:
+                raw = buf[:count]
+                if f.readinto(memoryview(raw).cast("B")) != raw.nbytes:
                     raise CaptureError(path, f"file shrank while being read (at sample {i})")
                 yield decode(raw, encoding)
 
@@ -435,7 +439,7 @@ def atomic_path(final, overwrite: bool = False):
         raise CaptureError(final.parent, "no such folder")
     if final.exists() and not overwrite:
         raise CaptureError(final, "already exists; not overwriting it")
-    tmp = final.parent / f".{final.name}.{secrets.token_hex(4)}.tmp{final.suffix}"
+    tmp = final.parent / f".{final.name}.{os.urandom(4).hex()}.tmp{final.suffix}"
     try:
         yield tmp
         _link_into_place(tmp, final, overwrite)
@@ -487,7 +491,7 @@ class SigmfWriter:
         self.description = description
         self.extra = dict(extra or {})
         self.overwrite = overwrite
-        token = secrets.token_hex(4)
+        token = os.urandom(4).hex()
         base = self.meta_path.name[: -len(META_SUFFIX)]
         self._tmp_data = self.folder / f".{base}.{token}.tmp{DATA_SUFFIX}"
         self._tmp_meta = self.folder / f".{base}.{token}.tmp{META_SUFFIX}"

@@ -15,14 +15,12 @@ from __future__ import annotations
 
 import functools
 import math
-from statistics import NormalDist
 
 import numpy as np
 
 _EPS = 2.0**-53
 _TINY = 1e-300
 _MAX_TERMS = 100_000
-_NORMAL = NormalDist()
 
 
 def _stirling_tail(a: float) -> float:
@@ -148,9 +146,22 @@ def _falling_root(tail, slope, target: float, start: float, low: float = 0.0) ->
     return x
 
 
+def normal_ppf(q: float) -> float:
+    """Quantile of the standard normal distribution (Newton on the complementary error function)."""
+    if not 0.0 < q < 1.0:
+        return -math.inf if q == 0.0 else math.inf if q == 1.0 else math.nan
+    if q == 0.5:
+        return 0.0
+    upper = min(q, 1.0 - q)
+    z = _falling_root(lambda v: 0.5 * math.erfc(v / math.sqrt(2.0)),
+                      lambda v: -math.exp(-0.5 * v * v) / math.sqrt(2.0 * math.pi),
+                      upper, math.sqrt(-2.0 * math.log(upper)))
+    return z if q > 0.5 else -z
+
+
 def _chi2_start(lower_q: float, dof: float) -> float:
     """Wilson-Hilferty approximation to the chi-square quantile (Numerical Recipes 6.14), kept positive."""
-    z = _NORMAL.inv_cdf(lower_q)
+    z = normal_ppf(lower_q)
     h = 2.0 / (9.0 * dof)
     return dof * max(1.0 - h + z * math.sqrt(h), 0.1) ** 3
 
@@ -191,13 +202,13 @@ def _t_quantile(q: float, dof: float) -> float:
     if not (dof > 0.0 and 0.0 <= q <= 1.0):
         return math.nan
     if math.isinf(dof):
-        return _NORMAL.inv_cdf(q) if 0.0 < q < 1.0 else math.copysign(math.inf, q - 0.5)
+        return normal_ppf(q) if 0.0 < q < 1.0 else math.copysign(math.inf, q - 0.5)
     if q == 0.5:
         return 0.0
     upper = min(q, 1.0 - q)
     if upper == 0.0:
         return math.copysign(math.inf, q - 0.5)
-    z = -_NORMAL.inv_cdf(upper)
+    z = -normal_ppf(upper)
     start = z + (z**3 + z) / (4.0 * dof)  # Cornish-Fisher, first term
     log_norm = _log_gamma_ratio(dof / 2.0, 0.5) - 0.5 * math.log(dof * math.pi)
 

@@ -275,7 +275,21 @@ class PsdAccumulator:
         if self.one_sided and np.iscomplexobj(x):
             raise ValueError("one-sided accumulator takes real samples")
         if self._tail is not None and self._tail.size:
-            x = np.concatenate([self._tail, x.astype(self._tail.dtype, copy=False)])
+            x = x.astype(self._tail.dtype, copy=False)
+            t = self._tail.size
+            inside = -(-t // self.step) * self.step  # first segment start at or after the join
+            used = inside - self.step + self.nperseg - t  # block samples the straddling segments need
+            if x.size >= used:
+                # Only the segments across the join need a joined copy; the rest are views of x.
+                self._segments(np.concatenate([self._tail, x[:used]]))
+                x = x[inside - t :]
+            else:
+                x = np.concatenate([self._tail, x])
+        n_seg = self._segments(x)
+        self._tail = x[n_seg * self.step :].copy()
+
+    def _segments(self, x: np.ndarray) -> int:
+        """Add every whole segment of ``x`` (starting at 0, every ``step``); return how many."""
         n_seg = 0 if x.size < self.nperseg else 1 + (x.size - self.nperseg) // self.step
         first = 0
         while first < n_seg:
@@ -288,7 +302,7 @@ class PsdAccumulator:
             self._counts[-1] += count
             self.n_segments += count
             first += count
-        self._tail = x[n_seg * self.step :].copy()
+        return n_seg
 
     def _add(self, batch: int, segments: np.ndarray) -> None:
         """Add the periodograms of ``segments`` to sub-average ``batch``: on the worker threads when

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, t_ppf
+from dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, normal_ppf, t_ppf
 
 #: Degrees of freedom rxbench meets: a few segments up to the Welch dof of a many-gigabyte capture.
 CHI2_DOF = [0.5, 1.0, 2.0, 3.7, 7.5, 38.0, 441.6, 1e4, 1e5, 1e6, 1e7]
@@ -43,7 +43,7 @@ def test_huge_dof():
     # value summed with mpmath.
     nu, h = 1e7, 2 / 9e7
     for q in PROBABILITIES:
-        z = NormalDist().inv_cdf(q)
+        z = NormalDist().inv_cdf(q)  # the standard library's, not ours
         assert chi2_ppf(q, nu) == pytest.approx(nu * (1 - h + z * math.sqrt(h)) ** 3, rel=1e-9), q
         assert chi2_isf(q, nu) == pytest.approx(nu * (1 - h - z * math.sqrt(h)) ** 3, rel=1e-9), q
     # P(5e6, x) at x = 9968573.147172954 / 2, summed with mpmath at 40 digits (the series
@@ -85,3 +85,9 @@ def test_edges_and_arrays():
     got = t_ppf(np.array([0.025, 0.975]), np.array([[4.0], [9.0]]))
     assert got.shape == (2, 2)
     assert np.allclose(got, stats.t.ppf([0.025, 0.975], [[4.0], [9.0]]), rtol=1e-9)
+
+
+def test_normal_quantile_against_scipy_stats():
+    for q in (1e-300, 1e-20, 1e-7, 0.025, 0.3, 0.4999, 0.5, 0.6, 0.975, 1 - 1e-9, 1 - 2**-52):
+        assert normal_ppf(q) == pytest.approx(stats.norm.ppf(q), rel=1e-12, abs=1e-15), q
+    assert normal_ppf(0.0) == -math.inf and normal_ppf(1.0) == math.inf and math.isnan(normal_ppf(2.0))

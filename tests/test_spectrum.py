@@ -83,11 +83,12 @@ def test_kernel_sums_to_one_over_all_bins():
 
 
 @settings(max_examples=25, deadline=None)
-@given(st.lists(st.integers(min_value=1, max_value=3000), min_size=1, max_size=12))
-def test_result_does_not_depend_on_block_boundaries(cuts):
+@given(st.lists(st.integers(min_value=1, max_value=3000), min_size=1, max_size=12),
+       st.sampled_from([0.0, 0.3, 0.5, 0.75]))
+def test_result_does_not_depend_on_block_boundaries(cuts, overlap):
     x = np.random.default_rng(7).standard_normal(12_000).astype(np.float32).view(np.complex64)
-    whole = psd(x, 1e4, nperseg=256)
-    acc = PsdAccumulator(1e4, nperseg=256)
+    whole = psd(x, 1e4, nperseg=256, overlap=overlap)
+    acc = PsdAccumulator(1e4, nperseg=256, overlap=overlap)
     i = 0
     for c in cuts:
         acc.update(x[i : i + c])
@@ -96,6 +97,8 @@ def test_result_does_not_depend_on_block_boundaries(cuts):
     part = acc.result()
     assert part.n_segments == whole.n_segments
     assert np.allclose(part.density, whole.density, rtol=1e-5)
+    assert np.array_equal(part.batch_counts, whole.batch_counts)
+    assert np.allclose(part.batch_density, whole.batch_density, rtol=1e-5)
 
 
 def test_sub_averages_partition_the_segments(rng):
