@@ -37,9 +37,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.ndimage
-from scipy import stats
 
+from dsp.distributions import normal_ppf, t_ppf, t_sf
 from dsp.floor import detection_threshold, median_bias, noise_floor, usable_mask
 from dsp.spectrum import Psd
 from dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, measure_tone
@@ -145,9 +144,9 @@ def paired_t_interval(differences, confidence: float = 0.95) -> Interval:
         raise ValueError(f"a paired t interval needs at least 2 differences, got {n}")
     mean = float(d.mean())
     se = float(d.std(ddof=1) / math.sqrt(n))
-    k = float(stats.t.ppf(0.5 + confidence / 2.0, n - 1))
+    k = float(t_ppf(0.5 + confidence / 2.0, n - 1))
     if se > 0:
-        p = float(2.0 * stats.t.sf(abs(mean) / se, n - 1))
+        p = float(2.0 * t_sf(abs(mean) / se, n - 1))
     else:
         p = 1.0 if mean == 0 else 0.0
     return Interval("paired-t", mean, mean - k * se, mean + k * se, confidence, n, se, p, confidence)
@@ -239,7 +238,7 @@ def hodges_lehmann_interval(differences, confidence: float = 0.95) -> Interval:
         c = m + 1 - t_crit
         achieved = 1.0 - 2.0 * float(upper_tail[t_crit])
     else:
-        z = stats.norm.ppf(1.0 - alpha_half)
+        z = normal_ppf(1.0 - alpha_half)
         c = int(math.floor(m / 2.0 - z * math.sqrt(n * (n + 1) * (2 * n + 1) / 24.0)))
         c = max(c, 1)
         achieved = confidence
@@ -248,6 +247,8 @@ def hodges_lehmann_interval(differences, confidence: float = 0.95) -> Interval:
     if np.all(d == 0):
         p = 1.0
     else:
+        from scipy import stats  # here, not at the top: a slow import
+
         p = float(stats.wilcoxon(d).pvalue)
     return Interval("hodges-lehmann", estimate, low, high, confidence, n, math.nan, p, achieved)
 
@@ -334,6 +335,8 @@ def local_noise_density(spectrum: Psd, halfwidth_bins: int = LOCAL_HALFWIDTH_BIN
     """
     if halfwidth_bins < 4:
         raise ValueError(f"{halfwidth_bins=} must be at least 4")
+    import scipy.ndimage  # here, not at the top: a slow import
+
     med = scipy.ndimage.median_filter(spectrum.density, size=2 * halfwidth_bins + 1, mode="nearest")
     return med / median_bias(spectrum.dof)
 
@@ -670,6 +673,8 @@ def classify(snr: Interval | None, noise: Interval | None) -> str:
 
 def _trend(levels_a, levels_b, ta, tb):
     """Common slope of the (per-signal centred) levels against time, and its standard error."""
+    from scipy import stats  # here, not at the top: a slow import
+
     slopes, ses = [], []
     for y, t in ((levels_a, ta), (levels_b, tb)):
         ok = np.isfinite(y)

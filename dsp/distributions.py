@@ -246,6 +246,19 @@ def chi2_pdf(x, dof):
         math.inf if d < 2.0 else 0.5 if d == 2.0 else 0.0) if d > 0.0 else math.nan, x, dof)
 
 
+def t_sf(t, dof):
+    """Upper tail of Student's t distribution, P(T > t) (infinite dof gives the normal tail)."""
+    def upper(t_: float, d: float) -> float:
+        if not d > 0.0 or math.isnan(t_):
+            return math.nan
+        if math.isinf(d):
+            return 0.5 * math.erfc(t_ / math.sqrt(2.0))
+        tail = _t_upper(abs(t_), d) if not math.isinf(t_) else 0.0
+        return tail if t_ >= 0.0 else 1.0 - tail
+
+    return _elementwise(upper, t, dof)
+
+
 def t_ppf(q, dof):
     """Quantile of Student's t distribution (infinite dof gives the normal quantile)."""
     return _elementwise(_t_quantile, q, dof)

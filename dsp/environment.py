@@ -23,7 +23,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from dsp.units import T0_K, db_from_power, power_from_db, scalar_or_array
 
@@ -410,6 +409,8 @@ def fit_knee(loss_db, density, *, u_density=None, load_density=None, u_load_dens
 
     def resid(theta):
         return (y_db - model_db(theta)) / sigma_db
+
+    from scipy import optimize  # here, not at the top: a slow import
 
     sol = optimize.least_squares(resid, start)
     p1, nn = np.exp(sol.x) * scale

@@ -28,7 +28,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from dsp.mismatch import gamma_from_swr, two_port_mismatch_terms_db
 from dsp.uncertainty import DEFAULT_K, Budget, Component, type_a, welch_satterthwaite
@@ -526,6 +525,8 @@ def substitution_loss(nominal_db, reading_dbfs, u_reading_db, dut_dbfs, u_dut_db
     s = (a_u - a_l) / (r_l - r_u)
     t = (r_l - dut_dbfs) / (r_l - r_u)
     chord = a_l + s * (r_l - dut_dbfs)
+    from scipy.interpolate import PchipInterpolator  # here, not at the top: a slow import
+
     attenuation = float(PchipInterpolator(-reading, nominal)(-dut_dbfs))
 
     components = [

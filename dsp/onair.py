@@ -35,7 +35,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.signal
 
 from dsp import synth
 from dsp.environment import snr_degradation_db
@@ -165,6 +164,8 @@ def fading_gains(times_s, band: OnAirBand, rng: np.random.Generator, *, grid_ste
     t0, t1 = float(t.min()), float(t.max())
     n_grid = int(np.ceil((t1 - t0) / dt)) + 2
     grid = t0 + dt * np.arange(n_grid)
+    import scipy.signal  # here, not at the top: a slow import
+
     rho = np.exp(-dt / tc)
     c = np.sqrt(1.0 - rho**2)
     out = np.empty((len(band.carriers), t.size), dtype=np.complex128)

@@ -12,7 +12,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-import scipy.fft
 
 from dsp.units import K_B, T0_K, amplitude_from_db, power_from_db
 
@@ -75,6 +74,8 @@ def passive_loss(
     """
     x = np.asarray(x, dtype=np.complex128)
     if callable(loss_db):
+        import scipy.fft  # here, not at the top: a slow import
+
         f = scipy.fft.fftfreq(x.size, 1.0 / sample_rate_hz)
         h2 = power_from_db(-np.asarray(loss_db(f), dtype=float))
         if np.any(h2 > 1):

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, normal_ppf, t_ppf
+from dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, normal_ppf, t_ppf, t_sf
 
 #: Degrees of freedom rxbench meets: a few segments up to the Welch dof of a many-gigabyte capture.
 CHI2_DOF = [0.5, 1.0, 2.0, 3.7, 7.5, 38.0, 441.6, 1e4, 1e5, 1e6, 1e7]
@@ -91,3 +91,9 @@ def test_normal_quantile_against_scipy_stats():
     for q in (1e-300, 1e-20, 1e-7, 0.025, 0.3, 0.4999, 0.5, 0.6, 0.975, 1 - 1e-9, 1 - 2**-52):
         assert normal_ppf(q) == pytest.approx(stats.norm.ppf(q), rel=1e-12, abs=1e-15), q
     assert normal_ppf(0.0) == -math.inf and normal_ppf(1.0) == math.inf and math.isnan(normal_ppf(2.0))
+
+
+@pytest.mark.parametrize("dof", [1.0, 2.5, 9.0, 40.0, 1e5, np.inf])
+def test_t_tail_against_scipy_stats(dof):
+    for t in (-30.0, -2.0, -0.1, 0.0, 0.7, 2.0, 6.0, 40.0):
+        assert t_sf(t, dof) == pytest.approx(stats.t.sf(t, dof), rel=1e-9, abs=1e-300), t
