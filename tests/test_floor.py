@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from dsp.floor import median_bias, noise_floor
+from dsp.floor import _median, median_bias, noise_floor
 from dsp.spectrum import psd
 
 
@@ -63,3 +63,12 @@ def test_no_bins_left_is_an_error():
     s = psd(np.ones(4096, np.complex64) * 1e-3, 1e3, nperseg=16)
     with pytest.raises(ValueError, match="bins"):
         noise_floor(s, edge_fraction=0.45)
+
+
+def test_partial_sort_median_equals_numpy_median():
+    # numpy.median is the reference (general-purpose library); odd and even lengths, ties included.
+    rng = np.random.default_rng(3)
+    for n in (1, 2, 3, 8, 9, 1000, 1001):
+        x = rng.exponential(size=n)
+        assert _median(x) == np.median(x)
+    assert _median(np.array([2.0, 2.0, 1.0, 5.0])) == np.median([2.0, 2.0, 1.0, 5.0])
