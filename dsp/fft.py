@@ -17,6 +17,8 @@ import sys
 
 import numpy as np
 
+from dsp.parallel import cpu_threads
+
 _CORE_NAME = "scipy.fft._pocketfft.pypocketfft"
 _core = None
 _loaded = False
@@ -51,14 +53,6 @@ def core():
     if not _loaded:
         _core, _loaded = _load_core(), True
     return _core
-
-
-def cpu_threads() -> int:
-    """Cores this process may run on."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):
-        return max(1, os.cpu_count() or 1)
 
 
 def fft_rows(a: np.ndarray, overwrite: bool = False, threads: int | None = None) -> np.ndarray:

@@ -6,6 +6,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from dsp.parallel import InOrder
+
 
 @dataclass(frozen=True)
 class Health:
@@ -21,6 +23,30 @@ class Health:
     def dc_offset_dbfs(self) -> float:
         m = abs(self.dc_offset) ** 2
         return float(10 * np.log10(m)) if m > 0 else float("-inf")
+
+
+#: Blocks smaller than this are measured at once rather than handed to a worker thread.
+_INLINE_BELOW = 1 << 16
+
+
+def _block_statistics(x: np.ndarray, clip_level: float) -> tuple[int, int, complex, float, int]:
+    """(samples, clipped samples, sum, sum of |x|^2, non-finite samples) of one block."""
+    total = complex(x.sum())  # pairwise summation, in the block's own precision
+    power = float(np.vdot(x, x).real)
+    nonfinite = 0
+    if not (np.isfinite(total) and np.isfinite(power)):
+        # Rare path: count the bad samples, then measure the rest.
+        finite = np.isfinite(x)
+        nonfinite = int(x.size - np.count_nonzero(finite))
+        x = x[finite]
+        total = complex(x.sum(dtype=np.complex128 if np.iscomplexobj(x) else np.float64))
+        power = float(np.vdot(x, x).real)
+    clipped = 0
+    rails = x.view(x.real.dtype) if np.iscomplexobj(x) else x
+    if rails.size and max(-rails.min(), rails.max()) >= clip_level:  # two fast reductions
+        at_rail = np.abs(rails) >= clip_level
+        clipped = int(np.count_nonzero(at_rail[0::2] | at_rail[1::2] if np.iscomplexobj(x) else at_rail))
+    return x.size, clipped, total, power, nonfinite
 
 
 class HealthAccumulator:
@@ -41,28 +67,23 @@ class HealthAccumulator:
         self._sum = 0j
         self._power = 0.0
         self._nonfinite = 0
+        self._work = InOrder()
 
     def update(self, block) -> None:
+        """Add a block (its statistics are taken on a worker thread when it is large)."""
         x = np.asarray(block)
-        total = complex(x.sum())  # pairwise summation, in the block's own precision
-        power = float(np.vdot(x, x).real)
-        if not (np.isfinite(total) and np.isfinite(power)):
-            # Rare path: count the bad samples, then measure the rest.
-            finite = np.isfinite(x)
-            self._nonfinite += int(x.size - np.count_nonzero(finite))
-            x = x[finite]
-            total = complex(x.sum(dtype=np.complex128 if np.iscomplexobj(x) else np.float64))
-            power = float(np.vdot(x, x).real)
-        rails = x.view(x.real.dtype) if np.iscomplexobj(x) else x
-        if rails.size and max(-rails.min(), rails.max()) >= self.clip_level:  # two fast reductions
-            at_rail = np.abs(rails) >= self.clip_level
-            clipped = at_rail[0::2] | at_rail[1::2] if np.iscomplexobj(x) else at_rail  # either rail
-            self._clipped += int(np.count_nonzero(clipped))
+        self._work.submit(self._absorb, _block_statistics, x, self.clip_level, inline=x.size < _INLINE_BELOW)
+
+    def _absorb(self, stats: tuple[int, int, complex, float, int]) -> None:
+        n, clipped, total, power, nonfinite = stats
+        self._n += n
+        self._clipped += clipped
         self._sum += total
         self._power += power
-        self._n += x.size
+        self._nonfinite += nonfinite
 
     def result(self) -> Health:
+        self._work.drain()
         n = max(self._n, 1)
         return Health(
             n_samples=self._n,

@@ -19,20 +19,10 @@ import threading
 
 import numpy as np
 
-from dsp.fft import cpu_threads, fft_rows, rfft_rows
+from dsp.fft import fft_rows, rfft_rows
+from dsp.parallel import InOrder
 
-_POOL = None
 _LOCAL = threading.local()
-
-
-def _worker_pool():
-    """The process's FFT worker threads (one per core), or None on a single core."""
-    global _POOL
-    if _POOL is None and cpu_threads() > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        _POOL = ThreadPoolExecutor(max_workers=cpu_threads(), thread_name_prefix="rxbench-psd")
-    return _POOL
 
 
 def _work_buffer(dtype, rows: int, columns: int) -> np.ndarray:
@@ -260,7 +250,7 @@ class PsdAccumulator:
         self.step = max(1, int(round(self.nperseg * (1.0 - overlap))))
         self.one_sided = bool(one_sided)
         self._tail = None
-        self._pending: list[tuple[int, object]] = []  # (sub-average index, future), oldest first
+        self._work = InOrder()
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
@@ -305,26 +295,15 @@ class PsdAccumulator:
         return n_seg
 
     def _add(self, batch: int, segments: np.ndarray) -> None:
-        """Add the periodograms of ``segments`` to sub-average ``batch``: on the worker threads when
-        there are several cores and the batch is worth a hand-off (results are added in submission
-        order, so the sums do not depend on thread timing), else at once."""
-        pool = _worker_pool() if len(segments) >= _SEGMENTS_PER_CALL // 2 else None
-        if pool is None:
-            self._batches[batch] += self._periodogram_sum(segments, fft_threads=None)
-            return
-        self._pending.append((batch, pool.submit(self._periodogram_sum, segments, 1)))
-        while len(self._pending) > 2 * pool._max_workers:
-            self._collect_oldest()
+        """Add the periodograms of ``segments`` to sub-average ``batch``, on a worker thread unless
+        the batch is too small to be worth the hand-off."""
 
-    def _collect_oldest(self) -> None:
-        batch, future = self._pending.pop(0)
-        self._batches[batch] += future.result()
+        def add(total, batch=batch):
+            self._batches[batch] += total
 
-    def _drain(self) -> None:
-        while self._pending:
-            self._collect_oldest()
+        self._work.submit(add, self._periodogram_sum, segments, inline=len(segments) < _SEGMENTS_PER_CALL // 2)
 
-    def _periodogram_sum(self, segments: np.ndarray, fft_threads: int | None) -> np.ndarray:
+    def _periodogram_sum(self, segments: np.ndarray) -> np.ndarray:
         """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64."""
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
@@ -332,9 +311,9 @@ class PsdAccumulator:
         work = _work_buffer(dtype, max(len(segments), _SEGMENTS_PER_CALL), self.nperseg)
         windowed = np.multiply(segments, win, out=work[: len(segments)])
         if self.one_sided:
-            spec = rfft_rows(windowed, threads=fft_threads)
+            spec = rfft_rows(windowed, threads=1)
         else:
-            spec = fft_rows(windowed, overwrite=True, threads=fft_threads)
+            spec = fft_rows(windowed, overwrite=True, threads=1)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
         squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
         return squares[0::2] + squares[1::2]
@@ -344,7 +323,7 @@ class PsdAccumulator:
         if self._batches and self._counts[-1] < self._batch_len:
             return
         if len(self._batches) == 2 * N_BATCHES:
-            self._drain()
+            self._work.drain()  # the sub-averages about to merge must be complete
             self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
             self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
             self._batch_len *= 2
@@ -355,7 +334,7 @@ class PsdAccumulator:
 
     def result(self) -> Psd:
         """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
-        self._drain()
+        self._work.drain()
         if self.n_segments == 0:
             raise ValueError(
                 f"fewer samples than one segment ({self.nperseg=}): the capture is too short"

@@ -1,0 +1,41 @@
+"""Worker threads change nothing but the time: a pass gives the same numbers on one core or many."""
+
+import numpy as np
+import pytest
+
+import dsp.parallel as parallel
+from dsp.health import HealthAccumulator
+from dsp.parallel import InOrder
+from dsp.spectrum import PsdAccumulator
+
+
+def _pass(x):
+    acc, health = PsdAccumulator(2.4e6, nperseg=1024), HealthAccumulator()
+    for i in range(0, x.size, 200_000):
+        acc.update(x[i : i + 200_000])
+        health.update(x[i : i + 200_000])
+    return acc.result(), health.result()
+
+
+@pytest.mark.skipif(parallel.cpu_threads() < 2, reason="needs two cores to use worker threads")
+def test_same_numbers_to_the_last_bit_with_and_without_workers(monkeypatch):
+    assert parallel.worker_pool() is not None
+    rng = np.random.default_rng(5)
+    x = (0.1 * (rng.standard_normal(1_500_000) + 1j * rng.standard_normal(1_500_000))).astype(np.complex64)
+    x[::977] = 1.0  # some samples at the rails
+    threaded_psd, threaded_health = _pass(x)
+    monkeypatch.setattr(parallel, "worker_pool", lambda: None)
+    single_psd, single_health = _pass(x)
+    assert np.array_equal(threaded_psd.density, single_psd.density)
+    assert np.array_equal(threaded_psd.batch_density, single_psd.batch_density)
+    assert threaded_health == single_health
+    assert threaded_health.clip_fraction > 0
+
+
+def test_results_are_applied_in_submission_order():
+    seen = []
+    work = InOrder()
+    for k in range(50):
+        work.submit(seen.append, lambda k=k: k, inline=k % 3 == 0)
+    work.drain()
+    assert seen == list(range(50))
