@@ -75,7 +75,8 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
         raise CaptureError(capture.path, f"FFT segment length {n} is outside 16 .. 16777216")
     if capture.n_samples < n:
         raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
-    acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex)
+    acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex,
+                         expected_samples=capture.n_samples)
     health = HealthAccumulator(capture.clip_level)
     done = 0
     for block in capture.blocks():

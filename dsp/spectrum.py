@@ -221,6 +221,10 @@ class PsdAccumulator:
         Fraction of ``nperseg`` by which consecutive segments overlap, 0 <= overlap < 1.
     one_sided : bool
         Real input: fold the spectrum onto positive frequencies.
+    expected_samples : int, optional
+        Length of the whole stream, when known (a file): the sub-averages then start at their final
+        size instead of growing by merges, which gives the same sub-averages with the work in
+        full-size batches from the first block.
 
     Notes
     -----
@@ -238,6 +242,7 @@ class PsdAccumulator:
         window: str | tuple = "hann",
         overlap: float = 0.5,
         one_sided: bool = False,
+        expected_samples: int | None = None,
     ):
         if not np.isfinite(sample_rate_hz) or sample_rate_hz <= 0:
             raise ValueError(f"{sample_rate_hz=} must be a positive number of Hz")
@@ -254,6 +259,10 @@ class PsdAccumulator:
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
+        if expected_samples:
+            expected_segments = 1 + (int(expected_samples) - self.nperseg) // self.step
+            while 2 * N_BATCHES * self._batch_len < expected_segments:
+                self._batch_len *= 2
         self._nbins = self.nperseg // 2 + 1 if self.one_sided else self.nperseg
         self.n_segments = 0
 

@@ -101,6 +101,16 @@ def test_result_does_not_depend_on_block_boundaries(cuts, overlap):
     assert np.allclose(part.batch_density, whole.batch_density, rtol=1e-5)
 
 
+@pytest.mark.parametrize("n", [4096, 9000, 40_000, 300_000])
+def test_known_length_gives_the_same_sub_averages(rng, n):
+    x = (rng.standard_normal(n) + 1j * rng.standard_normal(n)).astype(np.complex64)
+    grown = psd(x, 1e6, nperseg=256)
+    sized = psd(x, 1e6, nperseg=256, expected_samples=n)
+    assert np.array_equal(sized.batch_counts, grown.batch_counts)
+    assert np.allclose(sized.batch_density, grown.batch_density, rtol=1e-6)
+    assert np.allclose(sized.density, grown.density, rtol=1e-6)
+
+
 def test_sub_averages_partition_the_segments(rng):
     x = (rng.standard_normal(300_000) + 1j * rng.standard_normal(300_000)).astype(np.complex64)
     s = psd(x, 1e6, nperseg=256)
