@@ -1,5 +1,6 @@
 """The batched FFT agrees with numpy.fft (reference library), by either route."""
 
+import subprocess
 import sys
 
 import numpy as np
@@ -32,6 +33,20 @@ def test_complex_rows_match_numpy(route):
 def test_real_rows_match_numpy(route):
     x = np.random.default_rng(2).standard_normal((5, 1000))
     assert np.allclose(fft.rfft_rows(x), np.fft.rfft(x, axis=-1), rtol=1e-12, atol=1e-9)
+
+
+def test_core_loaded_first_is_reused_by_a_later_scipy_fft():
+    # In a fresh process: load the core on its own, then import scipy.fft, which must take the same
+    # module and still agree with numpy.fft.
+    code = (
+        "import sys, numpy as np, dsp.fft as f\n"
+        "core = f.core(); assert core is not None and 'scipy.fft' not in sys.modules\n"
+        "import scipy.fft\n"
+        "assert sys.modules[f._CORE_NAME] is core\n"
+        "x = np.arange(16.0) + 1j\n"
+        "assert np.allclose(scipy.fft.fft(x), np.fft.fft(x))\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)
 
 
 def test_core_loads_here_and_is_scipys_own():
