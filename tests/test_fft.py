@@ -58,3 +58,15 @@ def test_core_loads_here_and_is_scipys_own():
     assert sys.modules[fft._CORE_NAME] is core
     x = np.ones((2, 8), np.complex64)
     assert np.allclose(scipy.fft.fft(x), fft.fft_rows(x))
+
+
+def test_a_core_with_another_interface_is_refused():
+    class Changed:
+        @staticmethod
+        def c2c(a, axes, forward, norm):  # a different signature than the one dsp.fft calls
+            return a
+
+        r2c = c2c
+
+    assert not fft._answers_as_expected(Changed)
+    assert fft._answers_as_expected(fft.core())
