@@ -31,9 +31,9 @@ import numpy as np
 from bench import keys
 from bench.errors import CaptureError, UsageError
 
-#: Samples per block handed to the estimators (2**20 complex64 = 8 MiB: numpy backs arrays this
+#: Samples per block handed to the estimators (2**19 complex64 = 4 MiB: numpy backs arrays this
 #: large with huge pages, which saves most of the page faults of a fresh block).
-BLOCK_SAMPLES = 1 << 20
+BLOCK_SAMPLES = 1 << 19
 
 META_SUFFIX = ".sigmf-meta"
 DATA_SUFFIX = ".sigmf-data"

@@ -39,3 +39,16 @@ def test_results_are_applied_in_submission_order():
         work.submit(seen.append, lambda k=k: k, inline=k % 3 == 0)
     work.drain()
     assert seen == list(range(50))
+
+
+@pytest.mark.skipif(parallel.cpu_threads() < 2, reason="needs two cores to use worker threads")
+def test_an_error_on_a_worker_reaches_the_caller():
+    def fails():
+        raise ValueError("bad block")
+
+    work = InOrder()
+    work.submit(lambda _: None, fails)
+    with pytest.raises(ValueError, match="bad block"):
+        work.drain()
+    job = parallel.worker_pool().submit(lambda a, b: a + b, 2, 3)
+    assert job.result() == 5
