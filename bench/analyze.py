@@ -15,8 +15,10 @@ from bench.errors import CaptureError, MeasurementError, UsageError
 from bench.recordings import Capture
 from dsp.floor import NoiseFloor, noise_floor
 from dsp.health import Health, HealthAccumulator
+from dsp.ladder import mismatch_components
 from dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
 from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from dsp.uncertainty import Component
 from dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
@@ -291,3 +293,31 @@ def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = 
     for r in readings:
         warnings.extend(r.warnings)
     return readings, warnings
+
+
+#: Where each SWR of a loss budget's mismatch terms comes from, per front end.
+SWR_FROM_OPTIONS = {"source_swr": "--source-swr", "load_swr": "--load-swr", "dut_swr": "--dut-swr"}
+SWR_FROM_PLAN = {key: f"[match] {key}" for key in SWR_FROM_OPTIONS}
+
+
+def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list[Component], str | None]:
+    """The mismatch components of an insertion-loss budget, and a warning or None.
+
+    ``swr`` maps ``source_swr``, ``load_swr`` and ``dut_swr`` to the values known (missing or None:
+    unknown); ``given_by`` names where the user gives each (:data:`SWR_FROM_OPTIONS`,
+    :data:`SWR_FROM_PLAN`). What cannot be assessed stays in the budget as a zero line that says
+    so, never silently out of it.
+    """
+    known = {k: v for k, v in dict(swr).items() if v is not None}
+    comps = mismatch_components(known.get("source_swr"), known.get("load_swr"), known.get("dut_swr"), loss_db)
+    if comps:
+        if "dut_swr" not in known:
+            comps.append(Component.normal("mismatch at the DUT's ports", 0.0, kind="B",
+                                          note=f"not assessed (give {given_by['dut_swr']})"))
+        return comps, None
+    warning = None
+    if known:
+        warning = (f"mismatch is not in the budget: it needs both {given_by['source_swr']} and "
+                   f"{given_by['load_swr']}")
+    return [Component.normal("mismatch", 0.0, kind="B",
+                             note=f"not assessed (give {', '.join(given_by.values())})")], warning

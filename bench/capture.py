@@ -326,6 +326,7 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         extra[keys.U_ENR_DB] = cap.u_enr_db
     if cap.attenuator_tolerance_db is not None:
         extra[keys.ATTENUATOR_TOLERANCE_DB] = cap.attenuator_tolerance_db
+    extra.update(dict(cap.swr))  # the plan's [match] names are the metadata keys
     if cap.step.devices != 1:
         extra[keys.DEVICES] = cap.step.devices
     if settings.direct_sampling != "off":

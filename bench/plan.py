@@ -25,6 +25,11 @@ Schema (every quantity carries its unit in its name)::
     [attenuator]             # optional
     tolerance_db = 0.3       # the step attenuator's stated accuracy (per setting), dB
 
+    [match]                  # optional: SWRs for the mismatch terms of the loss budgets
+    source_swr = 1.1         # what drives the DUT: generator with its pads and attenuator
+    load_swr = 1.2           # what the DUT drives: the dongle's input (behind its pad, if any)
+    dut_swr = 1.5            # the device under test, at its ports
+
     [noise_source]           # optional: needed by hot/cold steps
     enr_db = 15.0            # excess noise ratio; or a table:
     # enr_table = [[26e6, 15.3], [30e6, 15.1]]     # [frequency_hz, enr_db] rows, ascending
@@ -132,6 +137,7 @@ class PlannedCapture:
     enr_db: float | None  # noise-source ENR at the centre frequency (hot/cold only)
     u_enr_db: float | None = None  # its standard uncertainty (hot/cold only, when given)
     attenuator_tolerance_db: float | None = None  # the attenuator's stated accuracy, when given
+    swr: tuple[tuple[str, float], ...] = ()  # (source_swr/load_swr/dut_swr, value) given (tone roles)
 
     @property
     def role(self) -> str:
@@ -178,6 +184,7 @@ class Plan:
     enr_table: tuple[tuple[float, float], ...] = ()
     u_enr_db: float | None = None
     attenuator_tolerance_db: float | None = None
+    swr: tuple[tuple[str, float], ...] = ()  # [match]: (source_swr/load_swr/dut_swr, value) given
     warnings: tuple[str, ...] = field(default=())
 
     def step_named(self, name: str) -> Step:
@@ -223,6 +230,7 @@ class Plan:
                     enr_db=self.enr_at(step.center_hz) if step.role in NOISE_SOURCE_ROLES else None,
                     u_enr_db=self.u_enr_db if step.role in NOISE_SOURCE_ROLES else None,
                     attenuator_tolerance_db=self.attenuator_tolerance_db,
+                    swr=self.swr if tone else (),
                 ))
         return out
 
@@ -327,12 +335,13 @@ class _Checker:
         return value
 
 
-_TOP = ("title", "description", "dongle", "generator", "attenuator", "noise_source", "defaults", "step")
+_TOP = ("title", "description", "dongle", "generator", "attenuator", "match", "noise_source", "defaults", "step")
 _DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_hz", "bias_tee",
            "settle_s", "full_scale_dbm")
 _GENERATOR = ("level_dbm", "offset_hz")
 _NOISE = ("enr_db", "enr_table", "u_enr_db")
 _ATTENUATOR = ("tolerance_db",)
+_MATCH = ("source_swr", "load_swr", "dut_swr")
 _STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
 _STEP = ("name", "role", "instruction", "devices") + _STEP_COMMON
 
@@ -409,6 +418,14 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     at = c.table(data, "attenuator")
     c.known("attenuator", at, _ATTENUATOR)
     tolerance = c.number("attenuator", at, "tolerance_db", default=None, low=0, high=20)
+
+    match = c.table(data, "match")
+    c.known("match", match, _MATCH)
+    swr = {key: c.number("match", match, key, default=None, low=1, high=100) for key in _MATCH}
+    swr = {key: value for key, value in swr.items() if value is not None}
+    if swr and not {"source_swr", "load_swr"} <= swr.keys():
+        warnings.append(f"{name}: [match] needs both source_swr and load_swr for a mismatch term; "
+                        "the loss budgets will show mismatch as not assessed")
 
     ns = c.table(data, "noise_source")
     c.known("noise_source", ns, _NOISE)
@@ -518,6 +535,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         enr_table=tuple(enr_table),
         u_enr_db=u_enr,
         attenuator_tolerance_db=tolerance,
+        swr=tuple(swr.items()),
         warnings=tuple(warnings),
     )
 

@@ -34,8 +34,8 @@ from pathlib import Path
 import numpy as np
 
 from bench import keys
-from bench.analyze import (CENTER_TOLERANCE_HZ, Reading, capture_start_s, pool_tones, read_capture,
-                           setup_difference, tone_dict)
+from bench.analyze import (CENTER_TOLERANCE_HZ, SWR_FROM_PLAN, Reading, capture_start_s, mismatch_budget,
+                           pool_tones, read_capture, setup_difference, tone_dict)
 from bench.errors import CaptureError, RxbenchError, UsageError
 from bench.recordings import META_SUFFIX, Capture, open_capture
 from dsp import environment as env
@@ -114,6 +114,7 @@ class Entry:
     tone_offset_hz: float | None = None
     dropped_samples: int = 0
     u_enr_db: float | None = None
+    swr: tuple[tuple[str, float], ...] = ()  # source_swr, load_swr, dut_swr recorded from the plan
 
     @property
     def name(self) -> str:
@@ -204,6 +205,13 @@ def _entry(cap: Capture) -> Entry:
     if isinstance(devices, bool) or not isinstance(devices, int) or devices < 1:
         raise ValueError(f"rxbench:devices is {devices!r}, not a whole number >= 1")
     through = x.get(keys.WITH_DUT) is True or role == "dut"
+    swr = []
+    for key in (keys.SOURCE_SWR, keys.LOAD_SWR, keys.DUT_SWR):
+        value = _number(x, key)
+        if value is not None and value < 1:
+            raise ValueError(f"rxbench:{key} is {value:g}, below 1")
+        if value is not None:
+            swr.append((key, value))
     return Entry(
         capture=cap, role=role, step=str(x.get(keys.STEP, "")), attenuation_db=att,
         gain_db=_number(x, keys.GAIN_DB), through_dut=through,
@@ -211,6 +219,7 @@ def _entry(cap: Capture) -> Entry:
         tone_offset_hz=_number(x, keys.TONE_OFFSET_HZ) if role in TONE_ROLES else None,
         dropped_samples=int(_number(x, keys.DROPPED_SAMPLES) or 0),
         u_enr_db=_number(x, keys.U_ENR_DB),
+        swr=tuple(swr),
     )
 
 
@@ -545,11 +554,14 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> No
             tols = [e.attenuator_tolerance_db for p in pooled_ladder.values() for e in p.entries] + \
                    [e.attenuator_tolerance_db for e in duts]
             tols = [t for t in tols if t is not None]
-            try:
-                loss = ladder_mod.substitution_loss(
+            def substitution(extra):
+                return ladder_mod.substitution_loss(
                     nominal, [p.dbfs for p in pooled_ladder.values()], [p.u_db for p in pooled_ladder.values()],
                     dut.dbfs, dut.u_db, dut_step_db=att, atten_tolerance_db=max(tols, default=0.0),
-                    dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()])
+                    dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()], extra_components=extra)
+
+            try:
+                loss = _with_mismatch(substitution, dut, f"substitution {where}", warnings)
             except ValueError as exc:
                 warnings.append(f"substitution {where}: {exc}")
                 continue
@@ -560,6 +572,16 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> No
             d = _loss_dict(loss, center, dut.offset_hz, n_dev, {"dut": dut.names, "ladder": {
                 f"{db:g}": p.names for db, p in pooled_ladder.items()}}, att)
             analysis.losses.append(d)
+
+
+def _with_mismatch(compute, dut: _Pooled, where: str, warnings: list[str]):
+    """``compute(extra_components)`` with the mismatch terms the plan's SWRs allow (they scale with
+    the loss itself, hence the first pass without them)."""
+    loss = compute(())
+    comps, warning = mismatch_budget(dut.entries[0].swr, loss.loss_db, SWR_FROM_PLAN)
+    if warning:
+        warnings.append(f"{where}: {warning}")
+    return compute(comps)
 
 
 def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_dev, analysis) -> None:
@@ -592,10 +614,13 @@ def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_d
     if after is not None:
         kw = dict(thru_after_dbfs=after.dbfs, u_thru_after_db=after.u_db,
                   times_s=(before.time_s, t_dut, after.time_s))
-    try:
-        loss = ladder_mod.direct_loss(before.dbfs, before.u_db, dut.dbfs, dut.u_db,
+    def direct(extra):
+        return ladder_mod.direct_loss(before.dbfs, before.u_db, dut.dbfs, dut.u_db,
                                       dof=(before.dof, dut.dof, after.dof if after else math.inf),
-                                      linearity_db=lin_db, **kw)
+                                      linearity_db=lin_db, extra_components=extra, **kw)
+
+    try:
+        loss = _with_mismatch(direct, dut, where, warnings)
     except ValueError as exc:
         warnings.append(f"{where}: {exc}")
         return

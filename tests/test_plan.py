@@ -191,3 +191,20 @@ def test_load_plan_missing_file_and_cli_message(tmp_path, capsys):
     assert err[-1] == (f"rxbench capture: error: {bad}, line 17: step 1 ('a') attenuation_db: "
                        "must be >= 0, got -3")
     assert not (tmp_path / "s").exists()
+
+
+def test_match_table_goes_with_the_tone_captures():
+    p = plan_with('[match]\nsource_swr = 1.1\nload_swr = 2\n\n[[step]]\nname = "t"\nrole = "thru"\n'
+                  '[[step]]\nname = "h"\nrole = "hot"\n\n[noise_source]\nenr_db = 15\n')
+    thru, hot = p.expand()
+    assert dict(thru.swr) == {"source_swr": 1.1, "load_swr": 2.0} and hot.swr == ()
+    assert not any("[match]" in w for w in p.warnings)
+    half = plan_with('[match]\ndut_swr = 1.4\n\n[[step]]\nname = "t"\nrole = "thru"\n')
+    assert any("[match] needs both source_swr and load_swr" in w for w in half.warnings)
+
+
+@pytest.mark.parametrize("value, words", [("0.9", "must be >= 1"), ('"low"', "must be a number"),
+                                          ("nan", "must be finite")])
+def test_match_errors_name_line_and_field(value, words):
+    msg = error_of(BASE + f'[match]\nload_swr = {value}\n\n[[step]]\nname = "t"\nrole = "thru"\n')
+    assert "p.toml" in msg and "load_swr" in msg and words in msg and "line 14" in msg

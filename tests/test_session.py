@@ -24,6 +24,7 @@ from bench.cli import main
 from bench.errors import UsageError
 from bench.recordings import SigmfWriter, write_sigmf
 from dsp import synth
+from dsp.ladder import mismatch_components
 from dsp.units import T0_K, power_from_db, w_from_dbm
 
 FS = 250e3
@@ -154,6 +155,34 @@ def test_direct_loss_recovers_a_known_attenuation_and_removes_drift(tmp_path):
     # Without a ladder the dongle's linearity is not assessed, and the budget says so.
     lin = [c for c in loss["budget"] if c["name"] == "dongle linearity"][0]
     assert "not assessed" in lin["note"]
+
+
+def test_mismatch_terms_from_the_plan_enter_the_loss_budget(tmp_path):
+    # The SWRs a plan's [match] table records with the captures give the first-order mismatch terms
+    # of Harris & Warner (REFERENCES.md; dsp.ladder.mismatch_components is checked against them in
+    # test_ladder), added in quadrature to the readings' uncertainty (GUM 5.1.2).
+    swr = {"source_swr": 1.1, "load_swr": 2.0, "dut_swr": 1.5}
+    for folder, extra in ((tmp_path / "plain", {}), (tmp_path / "matched", swr)):
+        folder.mkdir()
+        write_capture(folder, "01-thru", tone_in(-90.0, 1), role="thru", seed=11, time_s=0, **extra)
+        write_capture(folder, "02-dut", lossy(tone_in(-90.0, 2), 3.0, 2), role="dut", seed=12, time_s=10, **extra)
+    (plain,) = analyse(tmp_path / "plain").losses
+    (matched,) = analyse(tmp_path / "matched").losses
+    assert matched["insertion_loss_db"] == pytest.approx(plain["insertion_loss_db"], abs=1e-12)
+    names = [c["name"] for c in matched["budget"]]
+    expected = mismatch_components(1.1, 2.0, 1.5, matched["insertion_loss_db"])
+    assert [c.name for c in expected] == [n for n in names if n.startswith("mismatch")]
+    u_mismatch = math.sqrt(sum(c.u ** 2 for c in expected))
+    assert matched["u_db"] == pytest.approx(math.hypot(plain["u_db"], u_mismatch), rel=1e-6)
+    # Without SWRs the budget keeps a line that says mismatch was not assessed, and where to give it.
+    (line,) = [c for c in plain["budget"] if c["name"].startswith("mismatch")]
+    assert line["u_db"] == 0 and "[match] source_swr" in line["note"]
+
+
+def test_bad_swr_in_metadata_names_the_key(tmp_path):
+    write_capture(tmp_path, "01-thru", tone_in(-90.0, 1), role="thru", seed=11, load_swr=0.5)
+    with pytest.raises(UsageError, match="rxbench:load_swr is 0.5, below 1"):
+        sess.open_session(tmp_path)
 
 
 def test_back_to_back_pair_halves_the_loss(tmp_path):

@@ -13,12 +13,12 @@ import math
 
 import numpy as np
 
-from bench.analyze import capture_start_s, pool_tones, read_tones, tone_db
+from bench.analyze import SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
 from bench.errors import MeasurementError, UsageError
 from bench.output import CAUTIONS, add_json_option, emit, fmt_db
 from bench.recordings import add_capture_options, capture_from_args, step_capture_from_args
-from dsp.ladder import direct_loss, mismatch_components, substitution_loss
-from dsp.uncertainty import Component, coverage_factor
+from dsp.ladder import direct_loss, substitution_loss
+from dsp.uncertainty import coverage_factor
 
 
 
@@ -137,16 +137,11 @@ def _check_options(args) -> str:
 
 
 def _mismatch(args, loss_db, warnings):
-    comps = mismatch_components(args.source_swr, args.load_swr, args.dut_swr, loss_db)
-    if comps:
-        if args.dut_swr is None:
-            comps.append(Component.normal("mismatch at the DUT's ports", 0.0, kind="B",
-                                          note="not assessed (give --dut-swr)"))
-        return comps
-    if any(v is not None for v in (args.source_swr, args.load_swr, args.dut_swr)):
-        warnings.append("mismatch is not in the budget: it needs both --source-swr and --load-swr")
-    return [Component.normal("mismatch", 0.0, kind="B",
-                             note="not assessed (give --source-swr, --load-swr, --dut-swr)")]
+    swr = {key: getattr(args, key) for key in SWR_FROM_OPTIONS}
+    comps, warning = mismatch_budget(swr, loss_db, SWR_FROM_OPTIONS)
+    if warning:
+        warnings.append(warning)
+    return comps
 
 
 def _direct(args, readings, n_thru, n_dut, warnings):
