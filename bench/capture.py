@@ -220,7 +220,36 @@ def run_session(
     progress: TextIO | None = None,
     prompt: Callable[[str], str] | None = None,
 ) -> SessionRun:
-    """Run ``plan`` into ``session_dir`` with ``device``; see :func:`run_plan`. Returns a SessionRun."""
+    """Run ``plan`` into the session folder ``session_dir``: what was written, kept, skipped, replaced.
+
+    Parameters
+    ----------
+    plan : Plan
+        A validated plan (:func:`bench.plan.load_plan` / :func:`bench.plan.parse_plan`).
+    session_dir : path
+        Created if missing; an existing session of the same plan is resumed (captures already there
+        are kept and skipped); one of another plan is refused.
+    device : CaptureSource
+        A :class:`bench.device.RtlSdrSource` or :class:`bench.simulated.SimulatedBench`, not yet open;
+        it is opened and closed here.
+    yes : bool
+        Unattended: show each step's instruction but do not wait for the operator.
+    force : bool
+        Capture even where the estimated input level is above :data:`REFUSE_ABOVE_DBM`.
+    redo : sequence of str
+        Step names to capture again; their earlier recordings are moved to ``.replaced/``.
+    progress : text stream, optional
+        Where progress goes (stderr from the command line); None for silence.
+    prompt : callable, optional
+        Asks the operator (message -> reply); default reads stdin, prompting on stderr.
+
+    Raises
+    ------
+    UsageError, PlanError, DeviceError, CaptureError
+        Refused levels, a session of another plan, unknown --redo steps, dongle failures.
+    KeyboardInterrupt
+        After keeping the interrupted capture as a ``.partial`` recording marked incomplete.
+    """
     for name in redo:
         plan.step_named(name)  # PlanError naming the plan for an unknown step
     warnings = list(plan.warnings) + check_levels(plan, force=force)
@@ -365,49 +394,4 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     return meta
 
 
-def run_plan(
-    plan: Plan,
-    session_dir,
-    device: CaptureSource,
-    *,
-    yes: bool = False,
-    force: bool = False,
-    redo: Sequence[str] = (),
-    progress: TextIO | None = None,
-    prompt: Callable[[str], str] | None = None,
-) -> list[Path]:
-    """Run ``plan`` into the session folder ``session_dir`` and return the metadata paths written.
-
-    Parameters
-    ----------
-    plan : Plan
-        A validated plan (:func:`bench.plan.load_plan` / :func:`bench.plan.parse_plan`).
-    session_dir : path
-        Created if missing; an existing session of the same plan is resumed (captures already there
-        are kept and skipped); one of another plan is refused.
-    device : CaptureSource
-        A :class:`bench.device.RtlSdrSource` or :class:`bench.simulated.SimulatedBench`, not yet open;
-        it is opened and closed here.
-    yes : bool
-        Unattended: show each step's instruction but do not wait for the operator.
-    force : bool
-        Capture even where the estimated input level is above :data:`REFUSE_ABOVE_DBM`.
-    redo : sequence of str
-        Step names to capture again; their earlier recordings are moved to ``.replaced/``.
-    progress : text stream, optional
-        Where progress goes (stderr from the command line); None for silence.
-    prompt : callable, optional
-        Asks the operator (message -> reply); default reads stdin, prompting on stderr.
-
-    Raises
-    ------
-    UsageError, PlanError, DeviceError, CaptureError
-        Refused levels, a session of another plan, unknown --redo steps, dongle failures.
-    KeyboardInterrupt
-        After keeping the interrupted capture as a ``.partial`` recording marked incomplete.
-    """
-    return run_session(plan, session_dir, device, yes=yes, force=force, redo=redo, progress=progress,
-                       prompt=prompt).written
-
-
-__all__ = ["run_plan", "run_session", "check_levels", "prepare_session", "SessionRun"]
+__all__ = ["run_session", "check_levels", "prepare_session", "SessionRun"]

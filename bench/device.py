@@ -67,7 +67,7 @@ class Applied:
 
 
 class CaptureSource(Protocol):
-    """The interface :func:`bench.capture.run_plan` drives."""
+    """The interface :func:`bench.capture.run_session` drives."""
 
     name: str
     dropped_bytes: int

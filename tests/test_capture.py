@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from bench.analyze import read_capture
-from bench.capture import LOG_NAME, PLAN_NAME, REPLACED_DIR, run_plan, run_session, stdin_prompt
+from bench.capture import LOG_NAME, PLAN_NAME, REPLACED_DIR, run_session, stdin_prompt
 from bench.cli import main
 from bench.errors import CaptureError, DeviceError, UsageError
 from bench.plan import parse_plan
@@ -91,7 +91,7 @@ def session_files(session):
 @pytest.fixture(scope="module")
 def recorded(tmp_path_factory):
     session = tmp_path_factory.mktemp("sim") / "session"
-    metas = run_plan(plan(), session, SimulatedBench(truth=TRUTH, seed=7), yes=True)
+    metas = run_session(plan(), session, SimulatedBench(truth=TRUTH, seed=7), yes=True).written
     return session, metas
 
 
@@ -155,7 +155,7 @@ def test_noise_levels_follow_physics(recorded):
 def test_resume_keeps_and_skips(recorded, tmp_path):
     session, _ = recorded
     before = session_files(session)
-    assert run_plan(plan(), session, SimulatedBench(truth=TRUTH, seed=8), yes=True) == []
+    assert run_session(plan(), session, SimulatedBench(truth=TRUTH, seed=8), yes=True).written == []
     assert session_files(session) == before
     # a copy of the session missing one capture gets just that one back
     copy = tmp_path / "copy"
@@ -163,7 +163,7 @@ def test_resume_keeps_and_skips(recorded, tmp_path):
     for p in session.iterdir():
         if p.is_file() and not p.name.startswith("05-hot"):
             (copy / p.name).write_bytes(p.read_bytes())
-    metas = run_plan(plan(), copy, SimulatedBench(truth=TRUTH, seed=9), yes=True)
+    metas = run_session(plan(), copy, SimulatedBench(truth=TRUTH, seed=9), yes=True).written
     assert [m.name for m in metas] == ["05-hot.sigmf-meta"]
     assert {k: v for k, v in session_files(copy).items() if not k.startswith("05-hot")} == \
         {k: v for k, v in before.items() if not k.startswith("05-hot")}
@@ -172,36 +172,36 @@ def test_resume_keeps_and_skips(recorded, tmp_path):
 def test_redo_moves_the_earlier_recording_aside(tmp_path):
     text = HEAD + STEPS.split("[[step]]\nname = \"dut\"")[0]  # the thru step alone
     session = tmp_path / "s"
-    run_plan(plan(text), session, SimulatedBench(seed=1), yes=True)
+    run_session(plan(text), session, SimulatedBench(seed=1), yes=True)
     old = digest(session / "01-thru.sigmf-data")
-    metas = run_plan(plan(text), session, SimulatedBench(seed=2), yes=True, redo=["thru"])
+    metas = run_session(plan(text), session, SimulatedBench(seed=2), yes=True, redo=["thru"]).written
     assert [m.name for m in metas] == ["01-thru.sigmf-meta"]
     aside = sorted((session / REPLACED_DIR).iterdir())
     assert [p.suffix for p in aside] == [".sigmf-data", ".sigmf-meta"]
     assert digest(aside[0]) == old != digest(session / "01-thru.sigmf-data")
     with pytest.raises(Exception, match="no step named 'nope'"):
-        run_plan(plan(text), session, SimulatedBench(seed=2), yes=True, redo=["nope"])
+        run_session(plan(text), session, SimulatedBench(seed=2), yes=True, redo=["nope"])
 
 
 def test_never_overwrites_or_mixes_sessions(tmp_path):
     one = HEAD + STEPS.split("[[step]]\nname = \"dut\"")[0]
     session = tmp_path / "s"
-    run_plan(plan(one), session, SimulatedBench(seed=1), yes=True)
+    run_session(plan(one), session, SimulatedBench(seed=1), yes=True)
     before = session_files(session)
     # the same plan with a comment added resumes (the session keeps its own copy)
     commented = "# checked on the bench\n" + one
-    assert run_plan(plan(commented), session, SimulatedBench(seed=1), yes=True) == []
+    assert run_session(plan(commented), session, SimulatedBench(seed=1), yes=True).written == []
     assert session_files(session) == before
     other = one.replace("attenuation_db = 50", "attenuation_db = 55")
     with pytest.raises(UsageError, match="different plan"):
-        run_plan(plan(other), session, SimulatedBench(seed=1), yes=True)
+        run_session(plan(other), session, SimulatedBench(seed=1), yes=True)
     assert session_files(session) == before
     # a folder of someone else's recordings is not taken for a session
     foreign = tmp_path / "foreign"
     foreign.mkdir()
     (foreign / "x.sigmf-meta").write_text("{}")
     with pytest.raises(UsageError, match="not an rxbench session"):
-        run_plan(plan(one), foreign, SimulatedBench(seed=1), yes=True)
+        run_session(plan(one), foreign, SimulatedBench(seed=1), yes=True)
     assert sorted(p.name for p in foreign.iterdir()) == ["x.sigmf-meta"]
     # samples without metadata under a capture's name are not replaced
     stray = tmp_path / "stray"
@@ -209,7 +209,7 @@ def test_never_overwrites_or_mixes_sessions(tmp_path):
     (stray / PLAN_NAME).write_text(one)
     (stray / "01-thru.sigmf-data").write_bytes(b"\x01" * 512)
     with pytest.raises(CaptureError, match="no metadata"):
-        run_plan(plan(one), stray, SimulatedBench(seed=1), yes=True)
+        run_session(plan(one), stray, SimulatedBench(seed=1), yes=True)
     assert (stray / "01-thru.sigmf-data").read_bytes() == b"\x01" * 512
 
 
@@ -230,7 +230,7 @@ attenuation_db = 50
     for settle in (0.05, 0.0):
         text = two_thrus.replace("settle_s = 0.05", f"settle_s = {settle}")
         session = tmp_path / f"settle-{settle}"
-        run_plan(plan(text), session, SimulatedBench(truth=truth, seed=3), yes=True)
+        run_session(plan(text), session, SimulatedBench(truth=truth, seed=3), yes=True)
         levels[settle] = [reading(session, n)[1].tone.power_dbfs for n in ("01-first", "02-second")]
     kept = levels[0.05]
     assert kept[0] == pytest.approx(kept[1], abs=0.03)
@@ -250,7 +250,7 @@ attenuation_db = 6
 """
     session = tmp_path / "s"
     with pytest.raises(UsageError, match=r"'loud'.*\+4\.0 dBm.*--force"):
-        run_plan(plan(hot), session, SimulatedBench(seed=1), yes=True)
+        run_session(plan(hot), session, SimulatedBench(seed=1), yes=True)
     assert not session.exists()
     run = run_session(plan(hot), session, SimulatedBench(seed=1), yes=True, force=True)
     assert len(run.written) == 1 and any("forced" in w for w in run.warnings)
@@ -295,8 +295,8 @@ class _Tty(io.StringIO):
 def test_progress_plain_when_not_a_terminal(tmp_path):
     plain, tty = io.StringIO(), _Tty()
     one = plan(HEAD + STEPS.split("[[step]]\nname = \"dut\"")[0])
-    run_plan(one, tmp_path / "a", SimulatedBench(seed=1), yes=True, progress=plain)
-    run_plan(one, tmp_path / "b", SimulatedBench(seed=1), yes=True, progress=tty)
+    run_session(one, tmp_path / "a", SimulatedBench(seed=1), yes=True, progress=plain)
+    run_session(one, tmp_path / "b", SimulatedBench(seed=1), yes=True, progress=tty)
     assert "\r" not in plain.getvalue() and "written 01-thru.sigmf-meta" in plain.getvalue()
     assert "\r" in tty.getvalue() and "%" in tty.getvalue()
 
@@ -324,7 +324,7 @@ class _FailingBench(SimulatedBench):
 def test_interrupted_capture_is_kept_as_partial(tmp_path, exc):
     session = tmp_path / "s"
     with pytest.raises(type(exc)):
-        run_plan(plan(), session, _FailingBench(exc, seed=1), yes=True)
+        run_session(plan(), session, _FailingBench(exc, seed=1), yes=True)
     assert (session / "01-thru.sigmf-meta").exists() and not (session / "02-dut.sigmf-meta").exists()
     partial = open_capture(session / "02-dut.partial.sigmf-meta")
     assert partial.extra["incomplete"] is True and partial.n_samples > 0

@@ -23,7 +23,7 @@ import pytest
 if importlib.util.find_spec("rtlsdr") is None:  # pyrtlsdr is in the `test` extra; skip without it
     pytest.skip("pyrtlsdr is not installed", allow_module_level=True)
 
-from bench.capture import run_plan  # noqa: E402
+from bench.capture import run_session  # noqa: E402
 from bench.device import RtlSdrSource, import_rtlsdr  # noqa: E402
 from bench.errors import DeviceError  # noqa: E402
 from bench.plan import DongleSettings, parse_plan  # noqa: E402
@@ -409,10 +409,10 @@ attenuation_db = 60
 """
 
 
-def test_run_plan_stores_the_dongle_bytes_unchanged(fake_lib, tmp_path):
+def test_a_session_stores_the_dongle_bytes_unchanged(fake_lib, tmp_path):
     lib = fake_lib(FakeLibrtlsdr())
     plan = parse_plan(PLAN, "fake.toml")
-    metas = run_plan(plan, tmp_path / "s", RtlSdrSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True)
+    metas = run_session(plan, tmp_path / "s", RtlSdrSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True).written
     assert len(metas) == 2
     for meta in metas:
         cap = open_capture(meta)
@@ -450,7 +450,7 @@ def test_interruption_leaves_a_valid_partial_capture(fake_lib, tmp_path):
     plan = parse_plan(PLAN, "fake.toml")
     session = tmp_path / "s"
     with pytest.raises(KeyboardInterrupt):
-        run_plan(plan, session, _InterruptingSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True)
+        run_session(plan, session, _InterruptingSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True)
     assert not lib.opened and lib.set_calls("cancel_async")
     assert (session / "01-thru.sigmf-meta").exists()
     assert not (session / "02-dut.sigmf-meta").exists()
@@ -461,7 +461,7 @@ def test_interruption_leaves_a_valid_partial_capture(fake_lib, tmp_path):
     assert 0 < raw.size < full and raw.size % 16384 == 0 and contiguous(raw)
     assert "interrupted" in (session / "log.txt").read_text()
     # resuming captures the missing step and leaves the partial as it was
-    metas = run_plan(plan, session, RtlSdrSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True)
+    metas = run_session(plan, session, RtlSdrSource(0, chunk_bytes=16384, queue_chunks=1000), yes=True).written
     assert [m.name for m in metas] == ["02-dut.sigmf-meta"]
     assert np.array_equal(np.fromfile(session / "02-dut.partial.sigmf-data", dtype=np.uint8), raw)
 
