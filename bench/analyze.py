@@ -15,10 +15,8 @@ from bench.errors import CaptureError, MeasurementError, UsageError
 from bench.recordings import Capture
 from dsp.floor import NoiseFloor, noise_floor
 from dsp.health import Health, HealthAccumulator
-from dsp.ladder import mismatch_components
 from dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
 from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
-from dsp.uncertainty import Component
 from dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
@@ -184,8 +182,6 @@ def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
     :func:`dsp.ladder.mean_reading` (the larger of the estimators' and the scatter's uncertainty).
     Raises MeasurementError naming a capture whose tone could not be read.
     """
-    from dsp.ladder import mean_reading  # scipy.interpolate: kept off the start-up of inspect
-
     readings = list(readings)
     values = [tone_db(r) for r in readings]
     for r, (p, _, _) in zip(readings, values):
@@ -193,6 +189,8 @@ def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
             what = f"{role} tone" if role else "tone"
             raise MeasurementError(f"{r.capture.path}: no {what} could be read (none above the noise)")
     p, u, dof = zip(*values)
+    from dsp.ladder import mean_reading  # here: dsp.ladder is 4 ms of every inspect's start-up
+
     return mean_reading(p, u, dof)
 
 
@@ -300,7 +298,7 @@ SWR_FROM_OPTIONS = {"source_swr": "--source-swr", "load_swr": "--load-swr", "dut
 SWR_FROM_PLAN = {key: f"[match] {key}" for key in SWR_FROM_OPTIONS}
 
 
-def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list[Component], str | None]:
+def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list, str | None]:
     """The mismatch components of an insertion-loss budget, and a warning or None.
 
     ``swr`` maps ``source_swr``, ``load_swr`` and ``dut_swr`` to the values known (missing or None:
@@ -308,6 +306,9 @@ def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list
     :data:`SWR_FROM_PLAN`). What cannot be assessed stays in the budget as a zero line that says
     so, never silently out of it.
     """
+    from dsp.ladder import mismatch_components  # here: dsp.ladder is 4 ms of inspect's start-up
+    from dsp.uncertainty import Component
+
     known = {k: v for k, v in dict(swr).items() if v is not None}
     comps = mismatch_components(known.get("source_swr"), known.get("load_swr"), known.get("dut_swr"), loss_db)
     if comps:
