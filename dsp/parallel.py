@@ -25,11 +25,21 @@ def cpu_threads() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+#: At most this many workers: a pass streams from one file, and each queued job holds a block
+#: (4 MiB) or a scratch array (2 MiB), so memory stays bounded on machines with many cores.
+MAX_WORKERS = 4
+
+
+def workers() -> int:
+    """Worker threads a pass uses: one per core, at most :data:`MAX_WORKERS`."""
+    return min(cpu_threads(), MAX_WORKERS)
+
+
 def worker_pool():
-    """The process's worker threads (one per core), or None on a single core."""
+    """The process's worker threads, or None on a single core."""
     global _POOL
-    if _POOL is None and cpu_threads() > 1:
-        _POOL = _Workers(cpu_threads())
+    if _POOL is None and workers() > 1:
+        _POOL = _Workers(workers())
     return _POOL
 
 
@@ -83,7 +93,7 @@ class _Job:
 
 class InOrder:
     """Compute ``fn(*args)`` on a worker thread and hand each result to its ``apply`` callback in
-    the order the work was submitted. At most ``2 * workers`` results wait at a time."""
+    the order the work was submitted. At most ``2 * workers()`` jobs wait at a time."""
 
     def __init__(self) -> None:
         self._pending: deque = deque()  # (apply, future or finished result)
@@ -95,7 +105,7 @@ class InOrder:
             self._pending.append((apply, _Done(fn(*args))))
         else:
             self._pending.append((apply, pool.submit(fn, *args)))
-        while len(self._pending) > 2 * cpu_threads():
+        while len(self._pending) > 2 * workers():
             self._take_oldest()
 
     def drain(self) -> None:

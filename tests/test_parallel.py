@@ -17,7 +17,7 @@ def _pass(x):
     return acc.result(), health.result()
 
 
-@pytest.mark.skipif(parallel.cpu_threads() < 2, reason="needs two cores to use worker threads")
+@pytest.mark.skipif(parallel.workers() < 2, reason="needs two cores to use worker threads")
 def test_same_numbers_to_the_last_bit_with_and_without_workers(monkeypatch):
     assert parallel.worker_pool() is not None
     rng = np.random.default_rng(5)
@@ -41,7 +41,7 @@ def test_results_are_applied_in_submission_order():
     assert seen == list(range(50))
 
 
-@pytest.mark.skipif(parallel.cpu_threads() < 2, reason="needs two cores to use worker threads")
+@pytest.mark.skipif(parallel.workers() < 2, reason="needs two cores to use worker threads")
 def test_an_error_on_a_worker_reaches_the_caller():
     def fails():
         raise ValueError("bad block")
@@ -52,3 +52,10 @@ def test_an_error_on_a_worker_reaches_the_caller():
         work.drain()
     job = parallel.worker_pool().submit(lambda a, b: a + b, 2, 3)
     assert job.result() == 5
+
+
+def test_worker_count_is_capped_on_many_cores(monkeypatch):
+    # Each queued job holds a block or a scratch array: the cap keeps memory bounded (issue target:
+    # peak memory <= 200 MB whatever the capture; 2 * 4 queued blocks of 4 MiB at most).
+    monkeypatch.setattr(parallel, "cpu_threads", lambda: 64)
+    assert parallel.workers() == parallel.MAX_WORKERS == 4
