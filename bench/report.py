@@ -451,6 +451,18 @@ def write_csv(rows: list[dict], path: Path) -> None:
                         for k in fields})
 
 
+def _mismatch_sentence(losses: list[dict]) -> str:
+    """What the loss budgets say about mismatch between generator, attenuator, device and dongle."""
+    assessed = [x for x in losses if any(c["name"].startswith("mismatch") and c["u_db"] > 0 for c in x["budget"])]
+    if len(assessed) == len(losses):
+        return ("Mismatch between generator, attenuator, device and dongle is in these budgets, from the "
+                "plan's `[match]` SWRs (first-order terms, U-shaped; Harris & Warner 1981).")
+    return ("Mismatch between generator, attenuator, device and dongle is not assessed in "
+            f"{'these budgets' if not assessed else 'some of these budgets'} (a zero line marks it): give "
+            "the SWRs in the plan's `[match]` table (`source_swr`, `load_swr`, `dut_swr`). It is commonly "
+            "a few tenths of a dB, more with a bare dongle input (Harris & Warner 1981).")
+
+
 def _table(header: list[str], rows: list[list]) -> str:
     out = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
     for r in rows:
@@ -495,9 +507,7 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
                          "" if x["bracket_db"] is None else f"{x['bracket_db'][0]:g}–{x['bracket_db'][1]:g} dB"])
         w(_table(["method", "device at (dB)", "frequency", "loss (dB)", "U (dB)", "devices", "per device (dB)",
                   "thru drift (dB)", "between steps"], rows) + "\n\n")
-        w("Mismatch between generator, attenuator, device and dongle is not in these budgets (no SWRs are "
-          "recorded in the session); with SWRs known, `rxbench loss --source-swr --load-swr --dut-swr` "
-          "adds it (Harris & Warner 1981). It is commonly a few tenths of a dB.\n\n")
+        w(_mismatch_sentence(analysis.losses) + "\n\n")
         for x in analysis.losses:
             nu = x["dof_eff"]
             nu_text = "> 1000" if nu is None or not math.isfinite(nu) or nu > 1000 else f"{nu:.0f}"

@@ -163,3 +163,11 @@ def test_report_of_a_session_with_nothing_to_measure(tmp_path):
     assert "no measurement could be made" in (out / "report.md").read_text()
     doc = json.loads((out / "results.json").read_text())
     assert doc["summary"]["insertion_loss_db"] is None and len(doc["captures"]) == 1
+
+
+def test_the_mismatch_sentence_follows_the_budgets():
+    assessed = {"budget": [{"name": "mismatch DUT-load", "u_db": 0.11}]}
+    missing = {"budget": [{"name": "mismatch", "u_db": 0.0, "note": "not assessed"}]}
+    assert "is in these budgets" in rep._mismatch_sentence([assessed])
+    assert "not assessed in these budgets" in rep._mismatch_sentence([missing])
+    assert "some of these budgets" in rep._mismatch_sentence([assessed, missing])
