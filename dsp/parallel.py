@@ -43,6 +43,16 @@ def worker_pool():
     return _POOL
 
 
+def _forget_pool_in_child() -> None:
+    """A forked child has none of its parent's threads: it starts its own pool when it needs one."""
+    global _POOL
+    _POOL = None
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_pool_in_child)
+
+
 class _Workers:
     """Daemon threads serving one queue of jobs (lighter to start and to feed than
     ``concurrent.futures``, whose import alone is 4 ms of every command)."""

@@ -59,3 +59,22 @@ def test_worker_count_is_capped_on_many_cores(monkeypatch):
     # peak memory <= 200 MB whatever the capture; 2 * 4 queued blocks of 4 MiB at most).
     monkeypatch.setattr(parallel, "cpu_threads", lambda: 64)
     assert parallel.workers() == parallel.MAX_WORKERS == 4
+
+
+@pytest.mark.skipif(not hasattr(__import__("os"), "fork"), reason="needs fork")
+def test_a_forked_child_starts_its_own_workers():
+    # The child inherits no threads: a pass there must still run (not wait on the parent's workers).
+    import multiprocessing
+
+    parallel.worker_pool()
+    ctx = multiprocessing.get_context("fork")
+    with ctx.Pool(1) as pool:
+        density = pool.apply_async(_child_pass).get(timeout=60)  # a wait on absent threads fails here
+    assert density > 0
+
+
+def _child_pass() -> float:
+    x = np.random.default_rng(1).standard_normal(600_000).astype(np.float32).view(np.complex64)
+    acc = PsdAccumulator(1e6, nperseg=1024)
+    acc.update(x)
+    return float(acc.result().density.mean())
