@@ -74,6 +74,33 @@ def test_noise_figure_within_0_15_db(tmp_path, capsys):
     assert "insertion_loss_db" not in res
 
 
+def test_repeated_pairs_at_one_centre_are_pooled(tmp_path, capsys):
+    # Three short hot/cold pairs at one centre pool into one reading: NF within 0.15 dB of the
+    # simulated receiver's, and an uncertainty close to 1/sqrt(3) of one pair's (averaging
+    # independent readings, GUM 4.2.3).
+    rng = np.random.default_rng(14)
+    pairs = [_pair(tmp_path, f"r{k}", rng, n=40_000) for k in range(3)]
+    one, _ = _json(capsys, ["nf", "--hot", pairs[0][0], "--cold", pairs[0][1], "--enr-db", "15"])
+    argv = ["nf", "--enr-db", "15"]
+    for hot, cold in pairs:
+        argv += ["--hot", hot, "--cold", cold]
+    pooled, err = _json(capsys, argv)
+    assert pooled["noise_figure_db"] == pytest.approx(6.0, abs=0.15)
+    (band,) = pooled["bands"]
+    assert len(band["captures"]["hot"]) == 3 and len(band["captures"]["cold"]) == 3
+    ratio = pooled["noise_figure_u_db"] / one["noise_figure_u_db"]
+    assert 0.45 < ratio < 0.75  # 1/sqrt(3) = 0.58
+    assert pooled["warnings"] == [] and err == ""
+
+
+def test_a_centre_without_its_cold_capture_is_named(tmp_path, capsys):
+    rng = np.random.default_rng(15)
+    hot_a, cold_a = _pair(tmp_path, "a", rng, n=20_000)
+    hot_b, _ = _pair(tmp_path, "b", rng, n=20_000, center_hz=CENTER + 200e3)
+    err = _fails(capsys, ["nf", "--hot", hot_a, "--cold", cold_a, "--hot", hot_b, "--enr-db", "15"])
+    assert "b-hot" in err and "no --cold capture at 1.002e+08 Hz" in err
+
+
 def test_human_output_has_nf_and_uncertainty(tmp_path, capsys):
     rng = np.random.default_rng(11)
     hot, cold = _pair(tmp_path, "ref", rng, n=40_000)

@@ -36,7 +36,8 @@ Noise figure of the receive system by the Y-factor method: capture a noise sourc
 (--hot) and off (--cold), with its ENR given as a number or a table against frequency. With the
 same pair captured through a device (--hot-dut, --cold-dut), also the device's insertion loss and
 noise figure across the captured band. Repeat --hot/--cold (and the DUT pair) for captures at
-several centre frequencies (taken from their metadata) to get one stitched curve. With --tone and
+several centre frequencies (taken from their metadata) to get one stitched curve; repeated
+captures at one centre frequency are pooled. With --tone and
 --level-dbm, the noise figure by the gain method: NF = P_in - C/N0 - kT0.
 Keep the dongle's gain fixed (AGC off) for every capture of a pair."""
 
@@ -45,7 +46,7 @@ def add_parser(subparsers) -> None:
     p = subparsers.add_parser("nf", help="noise figure, and a DUT's loss across frequency, from a noise source",
                               description=DESCRIPTION)
     p.add_argument("--hot", action="append", default=[], metavar="CAPTURE",
-                   help="capture with the noise source on (repeat for several centre frequencies)")
+                   help="capture with the noise source on (repeat: several centre frequencies, or repeats to pool)")
     p.add_argument("--cold", action="append", default=[], metavar="CAPTURE",
                    help="capture with the noise source off")
     p.add_argument("--hot-dut", action="append", default=[], metavar="CAPTURE",
@@ -74,30 +75,30 @@ def add_parser(subparsers) -> None:
 # ------------------------------------------------------------------------------------------ input
 
 
+#: The capture options, in the order their captures are listed.
+ROLES = ("cold", "hot", "cold_dut", "hot_dut")
+
+
 @dataclass
 class _Group:
-    """The captures taken at one centre frequency."""
+    """The captures taken at one centre frequency (repeats of a role are pooled)."""
 
     center_hz: float | None
-    hot: Capture
-    cold: Capture
-    hot_dut: Capture | None = None
-    cold_dut: Capture | None = None
+    hot: list[Capture]
+    cold: list[Capture]
+    hot_dut: list[Capture]
+    cold_dut: list[Capture]
 
     @property
-    def captures(self) -> list[Capture]:
-        return [c for c in (self.cold, self.hot, self.cold_dut, self.hot_dut) if c is not None]
+    def captures(self) -> list[tuple[str, Capture]]:
+        return [(role.replace("_", "-"), c) for role in ROLES for c in getattr(self, role)]
 
 
 def _validate(args) -> None:
     if bool(args.hot) != bool(args.cold):
-        raise UsageError("give both --hot and --cold (one of each per centre frequency)")
-    if len(args.hot) != len(args.cold):
-        raise UsageError(f"{len(args.hot)} --hot but {len(args.cold)} --cold captures; give one of each per centre frequency")
-    if len(args.hot_dut) != len(args.cold_dut):
-        raise UsageError(f"{len(args.hot_dut)} --hot-dut but {len(args.cold_dut)} --cold-dut captures")
-    if args.hot_dut and len(args.hot_dut) != len(args.hot):
-        raise UsageError("give a --hot-dut/--cold-dut pair for every --hot/--cold pair")
+        raise UsageError("give both --hot and --cold (at least one of each per centre frequency)")
+    if bool(args.hot_dut) != bool(args.cold_dut):
+        raise UsageError("give both --hot-dut and --cold-dut, or neither")
     if args.hot_dut and not args.hot:
         raise UsageError("--hot-dut/--cold-dut need the --hot/--cold pair without the DUT as reference")
     if (args.tone is None) != (args.level_dbm is None):
@@ -121,39 +122,30 @@ def _validate(args) -> None:
 
 
 def _groups(args) -> list[_Group]:
-    """Pair hot, cold (and DUT) captures by centre frequency."""
+    """Group the captures by centre frequency; repeats of a role at one centre are pooled."""
     roles = {name: [capture_from_args(p, args) for p in getattr(args, name)]
-             for name in ("hot", "cold", "hot_dut", "cold_dut")}
-    if len(roles["hot"]) == 1:
-        hot = roles["hot"][0]
-        return [_Group(hot.center_hz, hot, roles["cold"][0],
-                       roles["hot_dut"][0] if roles["hot_dut"] else None,
-                       roles["cold_dut"][0] if roles["cold_dut"] else None)]
-    by_role = {}
+             for name in ("hot", "cold", "hot_dut", "cold_dut")}  # opened in the order they are asked for
+    everything = [c for caps in roles.values() for c in caps]
+    if all(len(caps) <= 1 for caps in roles.values()):
+        # One of each: a single group, whatever their metadata says (differences are warned about).
+        return [_Group(roles["hot"][0].center_hz, *(roles[name] for name in ("hot", "cold", "hot_dut", "cold_dut")))]
+    for cap in everything:
+        if cap.center_hz is None:
+            raise UsageError(f"{cap.path}: no centre frequency in its metadata; with several captures per "
+                             "role each needs one (give --center for raw files)")
+    table: dict[int, dict[str, list[Capture]]] = {}
     for name, caps in roles.items():
-        table = {}
         for cap in caps:
-            if cap.center_hz is None:
-                raise UsageError(f"{cap.path}: no centre frequency in its metadata; with several "
-                                 "captures per role each needs one (give --center for raw files)")
-            key = round(cap.center_hz)
-            if key in table:
-                raise UsageError(f"{cap.path} and {table[key].path}: two --{name.replace('_', '-')} "
-                                 f"captures at {cap.center_hz:g} Hz")
-            table[key] = cap
-        by_role[name] = table
+            table.setdefault(round(cap.center_hz), {n: [] for n in ROLES})[name].append(cap)
     groups = []
-    for key, hot in sorted(by_role["hot"].items()):
-        missing = [name for name in ("cold", "hot_dut", "cold_dut")
-                   if roles[name] and key not in by_role[name]]
-        if missing:
-            raise UsageError(f"{hot.path}: no --{missing[0].replace('_', '-')} capture at {hot.center_hz:g} Hz")
-        groups.append(_Group(hot.center_hz, hot, by_role["cold"][key], by_role["hot_dut"].get(key),
-                             by_role["cold_dut"].get(key)))
-    extra = set(by_role["cold"]) - set(by_role["hot"])
-    if extra:
-        cap = by_role["cold"][extra.pop()]
-        raise UsageError(f"{cap.path}: no --hot capture at {cap.center_hz:g} Hz")
+    for key in sorted(table):
+        g = table[key]
+        first = next(c for name in ROLES for c in g[name])
+        needed = ("hot", "cold") + (("hot_dut", "cold_dut") if roles["hot_dut"] else ())
+        for name in needed:
+            if not g[name]:
+                raise UsageError(f"{first.path}: no --{name.replace('_', '-')} capture at {first.center_hz:g} Hz")
+        groups.append(_Group(first.center_hz, g["hot"], g["cold"], g["hot_dut"], g["cold_dut"]))
     return groups
 
 
@@ -164,14 +156,14 @@ def _enr_source(args, groups):
 
         def for_group(g):
             if g.center_hz is None:
-                raise UsageError(f"{g.hot.path}: no centre frequency, needed to look up --enr-table "
+                raise UsageError(f"{g.hot[0].path}: no centre frequency, needed to look up --enr-table "
                                  "(give --center HZ)")
             return lambda f_hz, c=g.center_hz: table.enr_db_at(c + np.asarray(f_hz))
 
         return f"table {table.path.name} ({table.range_text})", for_group, table
     if args.enr_db is not None:
         return f"{args.enr_db:.2f} dB", lambda g: float(args.enr_db), None
-    values = {g.hot.extra.get("enr_db") for g in groups}
+    values = {c.extra.get("enr_db") for g in groups for c in g.hot}
     if len(values) == 1 and None not in values:
         value = float(values.pop())
         return f"{value:.2f} dB (from the hot capture's metadata)", lambda g: value, None
@@ -183,27 +175,22 @@ def _enr_source(args, groups):
 
 def _group_warnings(g: _Group, healths) -> list[str]:
     out = []
-    names = {"hot": g.hot, "cold": g.cold, "hot-dut": g.hot_dut, "cold-dut": g.cold_dut}
-    for role, cap in names.items():
-        if cap is None:
-            continue
+    for role, cap in g.captures:
         clip = healths[id(cap)].clip_fraction
         if clip > CLIP_WARN_FRACTION:
             effect = ("the hot reading, Y and the noise figure are wrong (NF reads high)" if role.startswith("hot")
                       else "its reading is compressed")
             out.append(f"{cap.path.name} ({role}) clips: {100 * clip:.3g} % of samples at the rails; {effect}; "
                        "lower the dongle's gain")
-    pairs = [("hot", g.hot, "cold", g.cold)]
-    if g.hot_dut is not None:
-        pairs += [("hot-dut", g.hot_dut, "cold-dut", g.cold_dut), ("hot", g.hot, "hot-dut", g.hot_dut)]
-    for ra, a, rb, b in pairs:
+    ra, a = "cold", g.cold[0]  # every other capture of the group is compared with this one
+    for rb, b in g.captures[1:]:
         if a.sample_rate_hz != b.sample_rate_hz:
             out.append(f"{a.path.name} ({ra}) and {b.path.name} ({rb}) differ in sample rate "
                        f"({a.sample_rate_hz:g} vs {b.sample_rate_hz:g} Hz): compared over the common band "
                        "only, and the dongle's filter shape may differ between the two")
         ga, gb = a.extra.get("gain_db"), b.extra.get("gain_db")
         if ga is not None and gb is not None and float(ga) != float(gb):
-            what = "the DUT's loss" if rb == "hot-dut" else "Y and the noise figure"
+            what = "the DUT's loss" if rb.endswith("dut") else "Y and the noise figure"
             out.append(f"{a.path.name} ({ra}) and {b.path.name} ({rb}) were taken at different dongle gain "
                        f"({float(ga):g} vs {float(gb):g} dB): {what} cannot be trusted")
         if a.center_hz is not None and b.center_hz is not None and a.center_hz != b.center_hz:
@@ -213,32 +200,31 @@ def _group_warnings(g: _Group, healths) -> list[str]:
 
 
 def _analyse_group(g: _Group, enr_spec, args, warnings: list[str]) -> dict:
-    nperseg = args.nperseg or choose_nperseg(min(c.n_samples for c in g.captures))
-    spectra, healths = [], {}
-    for cap in g.captures:
-        spectrum, health = accumulate(cap, nperseg)
-        spectra.append(spectrum)
-        healths[id(cap)] = health
+    nperseg = args.nperseg or choose_nperseg(min(c.n_samples for _, c in g.captures))
+    spectra: dict[str, list] = {name: [] for name in ROLES}
+    healths = {}
+    for name in ROLES:
+        for cap in getattr(g, name):
+            spectrum, healths[id(cap)] = accumulate(cap, nperseg)
+            spectra[name].append(spectrum)
     warnings.extend(_group_warnings(g, healths))
     try:
-        ns = nfm.noise_source_analysis(spectra[:1], spectra[1:2], spectra[2:3], spectra[3:4], enr_db=enr_spec,
+        ns = nfm.noise_source_analysis(*(spectra[name] for name in ROLES), enr_db=enr_spec,
                                        n_sub_bands=args.sub_bands, t_cold_k=args.cold_k, u_enr_db=args.enr_u_db,
-                                       dc_halfwidth_hz=None if g.hot.is_complex else 0.0)
+                                       dc_halfwidth_hz=None if g.hot[0].is_complex else 0.0)
     except ValueError as exc:
         raise UsageError(f"--sub-bands {args.sub_bands}: {exc}") from None
     if not ns.valid[-1]:
         raise MeasurementError(
-            f"{g.hot.path.name} (hot) reads {fmt_db(float(db_from_power(ns.n_hot[-1] / ns.n_cold[-1])))} dB against "
-            f"{g.cold.path.name} (cold): the hot reading must be the higher; are the captures swapped, "
+            f"{_names(g.hot)} (hot) reads {fmt_db(float(db_from_power(ns.n_hot[-1] / ns.n_cold[-1])))} dB against "
+            f"{_names(g.cold)} (cold): the hot reading must be the higher; are the captures swapped, "
             "or was the source off?")
     rx = ns.receiver
     y_last = float(rx.y[-1])
     result = {
         "center_hz": g.center_hz,
-        "sample_rate_hz": g.hot.sample_rate_hz,
-        "captures": {role: str(c.path) for role, c in
-                     (("hot", g.hot), ("cold", g.cold), ("hot_dut", g.hot_dut), ("cold_dut", g.cold_dut))
-                     if c is not None},
+        "sample_rate_hz": g.hot[0].sample_rate_hz,
+        "captures": {name: [str(c.path) for c in getattr(g, name)] for name in ROLES if getattr(g, name)},
         "usable_band_hz": [float(ns.low_hz[-1]), float(ns.high_hz[-1])],
         "nperseg": nperseg,
         "dof_hot": float(ns.dof_hot[-1]),
@@ -253,11 +239,11 @@ def _analyse_group(g: _Group, enr_spec, args, warnings: list[str]) -> dict:
                 "u_noise_factor": rx.u_noise_factor[:-1]},
     }
     if not ns.valid[:-1].all():
-        warnings.append(f"{g.hot.path.name}: in {int((~ns.valid[:-1]).sum())} sub-band(s) the hot reading is "
+        warnings.append(f"{_names(g.hot)}: in {int((~ns.valid[:-1]).sum())} sub-band(s) the hot reading is "
                         "not above the cold one; no noise figure there")
     if ns.dut is not None:
         if not ns.valid_dut[-1]:
-            raise MeasurementError(f"{g.hot_dut.path.name} (hot-dut) is not above {g.cold_dut.path.name} "
+            raise MeasurementError(f"{_names(g.hot_dut)} (hot-dut) is not above {_names(g.cold_dut)} "
                                    "(cold-dut): no noise-source excess came through the DUT")
         d = ns.dut
         result.update(gain=float(d.gain[-1]), u_gain=float(d.u_gain[-1]), dut_noise_factor=float(d.noise_factor[-1]),
@@ -265,9 +251,14 @@ def _analyse_group(g: _Group, enr_spec, args, warnings: list[str]) -> dict:
         result["sub"].update(gain=d.gain[:-1], u_gain=d.u_gain[:-1], dut_noise_factor=d.noise_factor[:-1],
                              u_dut_noise_factor=d.u_noise_factor[:-1])
         if not ns.valid_dut[:-1].all():
-            warnings.append(f"{g.hot_dut.path.name}: in {int((~ns.valid_dut[:-1]).sum())} sub-band(s) no excess "
+            warnings.append(f"{_names(g.hot_dut)}: in {int((~ns.valid_dut[:-1]).sum())} sub-band(s) no excess "
                             "came through the DUT; no loss there")
     return result
+
+
+def _names(captures: list[Capture]) -> str:
+    """File names of pooled captures, for messages."""
+    return " + ".join(c.path.name for c in captures)
 
 
 def _db(x):
@@ -384,7 +375,7 @@ def run(args: argparse.Namespace) -> int:
             if table is not None:
                 lo, hi = (g.center_hz + r["usable_band_hz"][0], g.center_hz + r["usable_band_hz"][1])
                 if not table.covers(lo, hi):
-                    warnings.append(f"{g.hot.path.name}: the usable band {lo / 1e6:.4f}-{hi / 1e6:.4f} MHz reaches "
+                    warnings.append(f"{_names(g.hot)}: the usable band {lo / 1e6:.4f}-{hi / 1e6:.4f} MHz reaches "
                                     f"beyond the ENR table ({table.range_text}); ENR held at the table's end value")
             results.append(r)
         f_mean, u_f = _mean_with_u([r["noise_factor"] for r in results], [r["u_noise_factor"] for r in results])
