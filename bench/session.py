@@ -41,7 +41,7 @@ from bench.recordings import META_SUFFIX, Capture, open_capture
 from dsp import environment as env
 from dsp import ladder as ladder_mod
 from dsp import noisefig
-from dsp.uncertainty import DEFAULT_K, Budget
+from dsp.uncertainty import DEFAULT_K, Budget, Component
 from dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 
 #: Roles whose captures carry a generator tone.
@@ -554,11 +554,14 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> No
             tols = [e.attenuator_tolerance_db for p in pooled_ladder.values() for e in p.entries] + \
                    [e.attenuator_tolerance_db for e in duts]
             tols = [t for t in tols if t is not None]
+            drift = _ladder_drift(pooled_ladder, dut, readings, f"substitution {where}", warnings)
+
             def substitution(extra):
                 return ladder_mod.substitution_loss(
                     nominal, [p.dbfs for p in pooled_ladder.values()], [p.u_db for p in pooled_ladder.values()],
                     dut.dbfs, dut.u_db, dut_step_db=att, atten_tolerance_db=max(tols, default=0.0),
-                    dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()], extra_components=extra)
+                    dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()],
+                    extra_components=(drift, *extra))
 
             try:
                 loss = _with_mismatch(substitution, dut, f"substitution {where}", warnings)
@@ -572,6 +575,35 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> No
             d = _loss_dict(loss, center, dut.offset_hz, n_dev, {"dut": dut.names, "ladder": {
                 f"{db:g}": p.names for db, p in pooled_ladder.items()}}, att)
             analysis.losses.append(d)
+
+
+def _ladder_drift(pooled_ladder: dict, dut: _Pooled, readings, where: str, warnings: list[str]) -> Component:
+    """The generator's drift between the ladder and the DUT, as a budget line.
+
+    A ladder step captured again after the DUT shows how far the level moved meanwhile; the largest
+    change seen bounds the drift in the DUT's reading against the ladder (rectangular, half-width
+    that change). Without such a re-read the line is zero and says it was not assessed.
+    """
+    times = [e.time_s for e in dut.entries]
+    if any(t is None for t in times):
+        return Component.normal("generator drift", 0.0, kind="B", note="not assessed (captures without times)")
+    first, last = min(times), max(times)
+    changes = []
+    for nominal, step in pooled_ladder.items():
+        before = [e for e in step.entries if e.time_s is not None and e.time_s < first]
+        after = [e for e in step.entries if e.time_s is not None and e.time_s > last]
+        if before and after:
+            b, a = _pool(before, readings), _pool(after, readings)
+            changes.append((a.dbfs - b.dbfs, math.hypot(a.u_db, b.u_db), nominal))
+    if not changes:
+        return Component.normal("generator drift", 0.0, kind="B",
+                                note="not assessed (capture a ladder step again after the DUT)")
+    change, u_change, nominal = max(changes, key=lambda c: abs(c[0]))
+    if abs(change) > 2 * u_change:  # more than the readings' own scatter explains
+        warnings.append(f"{where}: the {nominal:g} dB step reads {change:+.3f} dB after the DUT against "
+                        "before it; the generator or the dongle drifted, and the budget carries it")
+    return Component.rectangular("generator drift", abs(change),
+                                 note=f"{nominal:g} dB step re-read after the DUT: {change:+.3f} dB")
 
 
 def _with_mismatch(compute, dut: _Pooled, where: str, warnings: list[str]):

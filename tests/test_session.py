@@ -240,6 +240,29 @@ def test_substitution_is_immune_to_compression_where_direct_is_not(tmp_path):
     assert att["u_db"] == pytest.approx(0.02 / math.sqrt(3))
 
 
+def test_a_step_re_read_after_the_dut_puts_the_drift_in_the_substitution_budget(tmp_path):
+    # The generator creeps up 0.3 dB between the ladder and a re-read of its 4 dB step after the
+    # DUT. The change seen bounds the drift in the DUT's reading: a rectangular term of that
+    # half-width (GUM 4.3.7), and a warning, since 0.3 dB is far beyond the readings' scatter.
+    for i, att in enumerate((0, 2, 4, 6)):
+        write_capture(tmp_path, f"{i:02d}-step", lossy(tone_in(-90.0, 10 + i), float(att), 10 + i) if att
+                      else tone_in(-90.0, 10), role="step", seed=20 + i, time_s=i, attenuation_db=float(att))
+    write_capture(tmp_path, "10-dut", lossy(tone_in(-89.85, 30), 3.0, 30), role="dut", seed=31, time_s=10)
+    a_plain = analyse(tmp_path)
+    (sub,) = [x for x in a_plain.losses if x["method"] == "substitution"]
+    (line,) = [c for c in sub["budget"] if c["name"] == "generator drift"]
+    assert line["u_db"] == 0 and "not assessed" in line["note"]
+    write_capture(tmp_path, "11-step-again", lossy(tone_in(-89.7, 40), 4.0, 40), role="step", seed=41, time_s=20,
+                  attenuation_db=4.0)
+    a = analyse(tmp_path)
+    (sub,) = [x for x in a.losses if x["method"] == "substitution"]
+    (line,) = [c for c in sub["budget"] if c["name"] == "generator drift"]
+    assert line["half_width_db"] == pytest.approx(0.3, abs=0.03)
+    assert line["u_db"] == pytest.approx(line["half_width_db"] / math.sqrt(3))
+    assert abs(sub["insertion_loss_db"] - 3.0) <= sub["expanded_uncertainty_db"]
+    assert any("4 dB step reads +0.3" in w for w in a.warnings)
+
+
 def test_dut_outside_the_ladder_is_not_extrapolated(tmp_path):
     for i, att in enumerate((0, 1, 2)):
         x = tone_in(-90.0, 400 + i)
