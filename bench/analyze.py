@@ -294,8 +294,8 @@ def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = 
 
 
 #: Where each SWR of a loss budget's mismatch terms comes from, per front end.
-SWR_FROM_OPTIONS = {"source_swr": "--source-swr", "load_swr": "--load-swr", "dut_swr": "--dut-swr"}
-SWR_FROM_PLAN = {key: f"[match] {key}" for key in SWR_FROM_OPTIONS}
+SWR_FROM_OPTIONS = {key: "--" + key.replace("_", "-") for key in keys.SWRS}
+SWR_FROM_PLAN = {key: f"[match] {key}" for key in keys.SWRS}
 
 
 def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list, str | None]:
@@ -310,15 +310,13 @@ def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list
     from dsp.uncertainty import Component
 
     known = {k: v for k, v in dict(swr).items() if v is not None}
-    comps = mismatch_components(known.get("source_swr"), known.get("load_swr"), known.get("dut_swr"), loss_db)
+    comps = mismatch_components(*(known.get(key) for key in keys.SWRS), loss_db)
     if comps:
-        if "dut_swr" not in known:
-            comps.append(Component.normal("mismatch at the DUT's ports", 0.0, kind="B",
-                                          note=f"not assessed (give {given_by['dut_swr']})"))
+        if keys.DUT_SWR not in known:
+            comps.append(Component.not_assessed("mismatch at the DUT's ports", f"give {given_by[keys.DUT_SWR]}"))
         return comps, None
     warning = None
     if known:
-        warning = (f"mismatch is not in the budget: it needs both {given_by['source_swr']} and "
-                   f"{given_by['load_swr']}")
-    return [Component.normal("mismatch", 0.0, kind="B",
-                             note=f"not assessed (give {', '.join(given_by.values())})")], warning
+        warning = (f"mismatch is not in the budget: it needs both {given_by[keys.SOURCE_SWR]} and "
+                   f"{given_by[keys.LOAD_SWR]}")
+    return [Component.not_assessed("mismatch", f"give {', '.join(given_by.values())}")], warning

@@ -22,7 +22,6 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import os
-import secrets
 import sys
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -127,7 +126,7 @@ class _Log:
 
 def _write_new(path: Path, text: str) -> None:
     """Write ``text`` to a new file atomically; never replaces an existing one."""
-    tmp = path.parent / f".{path.name}.{secrets.token_hex(4)}.tmp"
+    tmp = path.parent / f".{path.name}.{os.urandom(4).hex()}.tmp"
     with open(tmp, "x", encoding="utf-8") as f:
         f.write(text)
         f.flush()
@@ -355,7 +354,7 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         extra[keys.U_ENR_DB] = cap.u_enr_db
     if cap.attenuator_tolerance_db is not None:
         extra[keys.ATTENUATOR_TOLERANCE_DB] = cap.attenuator_tolerance_db
-    extra.update(dict(cap.swr))  # the plan's [match] names are the metadata keys
+    extra.update(dict(cap.swr))  # keys.SWRS: the plan's [match] names are the metadata keys
     if cap.step.devices != 1:
         extra[keys.DEVICES] = cap.step.devices
     if settings.direct_sampling != "off":

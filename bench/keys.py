@@ -28,6 +28,7 @@ ATTENUATOR_TOLERANCE_DB = "attenuator_tolerance_db"  # its stated accuracy
 SOURCE_SWR = "source_swr"  # SWR of what drives the DUT (generator, pads, attenuator)
 LOAD_SWR = "load_swr"  # SWR of what the DUT drives (the dongle's input, with any pad)
 DUT_SWR = "dut_swr"  # SWR of the device under test at its ports
+SWRS = (SOURCE_SWR, LOAD_SWR, DUT_SWR)  # also the field names of a plan's [match] table
 GAIN_DB = "gain_db"  # the dongle's fixed gain
 PPM = "ppm"  # frequency correction applied
 WITH_DUT = "with_dut"  # the DUT is in the path

@@ -64,6 +64,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from bench.errors import PlanError
+from bench import keys
 from bench.keys import ROLES
 
 #: Sample rates the RTL2832U accepts (Hz): (low, high] intervals, as librtlsdr checks them.
@@ -341,7 +342,7 @@ _DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_h
 _GENERATOR = ("level_dbm", "offset_hz")
 _NOISE = ("enr_db", "enr_table", "u_enr_db")
 _ATTENUATOR = ("tolerance_db",)
-_MATCH = ("source_swr", "load_swr", "dut_swr")
+_MATCH = keys.SWRS
 _STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
 _STEP = ("name", "role", "instruction", "devices") + _STEP_COMMON
 
@@ -423,7 +424,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     c.known("match", match, _MATCH)
     swr = {key: c.number("match", match, key, default=None, low=1, high=100) for key in _MATCH}
     swr = {key: value for key, value in swr.items() if value is not None}
-    if swr and not {"source_swr", "load_swr"} <= swr.keys():
+    if swr and not {keys.SOURCE_SWR, keys.LOAD_SWR} <= swr.keys():
         warnings.append(f"{name}: [match] needs both source_swr and load_swr for a mismatch term; "
                         "the loss budgets will show mismatch as not assessed")
 

@@ -22,7 +22,6 @@ import io
 import json
 import math
 import os
-import secrets
 import shutil
 import tomllib
 from pathlib import Path
@@ -75,7 +74,7 @@ def _install(tmp: Path, final: Path, overwrite: bool) -> Path:
             raise UsageError(f"{final}: already exists; not overwriting it")
         if not final.is_dir():
             raise UsageError(f"{final}: exists and is not a folder; not replacing it")
-        old = final.parent / f".{final.name}.old-{secrets.token_hex(4)}"
+        old = final.parent / f".{final.name}.old-{os.urandom(4).hex()}"
         os.rename(final, old)
         os.rename(tmp, final)
         shutil.rmtree(old, ignore_errors=True)
@@ -636,7 +635,7 @@ def write_report(analysis: Analysis, *, overwrite: bool = False, extra_markdown:
     """
     folder = analysis.session.folder
     final = next_report_dir(folder, overwrite=overwrite)
-    tmp = folder / f".{final.name}.tmp-{secrets.token_hex(4)}"
+    tmp = folder / f".{final.name}.tmp-{os.urandom(4).hex()}"
     tmp.mkdir()
     try:
         plots: dict = {"spectra": plot_spectra(analysis, tmp), "ladder": []}

@@ -206,7 +206,7 @@ def _entry(cap: Capture) -> Entry:
         raise ValueError(f"rxbench:devices is {devices!r}, not a whole number >= 1")
     through = x.get(keys.WITH_DUT) is True or role == "dut"
     swr = []
-    for key in (keys.SOURCE_SWR, keys.LOAD_SWR, keys.DUT_SWR):
+    for key in keys.SWRS:
         value = _number(x, key)
         if value is not None and value < 1:
             raise ValueError(f"rxbench:{key} is {value:g}, below 1")
@@ -586,7 +586,7 @@ def _ladder_drift(pooled_ladder: dict, dut: _Pooled, readings, where: str, warni
     """
     times = [e.time_s for e in dut.entries]
     if any(t is None for t in times):
-        return Component.normal("generator drift", 0.0, kind="B", note="not assessed (captures without times)")
+        return Component.not_assessed("generator drift", "captures without times")
     first, last = min(times), max(times)
     changes = []
     for nominal, step in pooled_ladder.items():
@@ -596,8 +596,7 @@ def _ladder_drift(pooled_ladder: dict, dut: _Pooled, readings, where: str, warni
             b, a = _pool(before, readings), _pool(after, readings)
             changes.append((a.dbfs - b.dbfs, math.hypot(a.u_db, b.u_db), nominal))
     if not changes:
-        return Component.normal("generator drift", 0.0, kind="B",
-                                note="not assessed (capture a ladder step again after the DUT)")
+        return Component.not_assessed("generator drift", "capture a ladder step again after the DUT")
     change, u_change, nominal = max(changes, key=lambda c: abs(c[0]))
     if abs(change) > 2 * u_change:  # more than the readings' own scatter explains
         warnings.append(f"{where}: the {nominal:g} dB step reads {change:+.3f} dB after the DUT against "

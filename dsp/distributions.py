@@ -146,6 +146,11 @@ def _falling_root(tail, slope, target: float, start: float, low: float = 0.0) ->
     return x
 
 
+def _normal_upper(z: float) -> float:
+    """P(Z > z) for the standard normal, to full relative precision in the upper tail."""
+    return 0.5 * math.erfc(z / math.sqrt(2.0))
+
+
 def normal_ppf(q: float) -> float:
     """Quantile of the standard normal distribution (Newton on the complementary error function)."""
     if not 0.0 < q < 1.0:
@@ -153,7 +158,7 @@ def normal_ppf(q: float) -> float:
     if q == 0.5:
         return 0.0
     upper = min(q, 1.0 - q)
-    z = _falling_root(lambda v: 0.5 * math.erfc(v / math.sqrt(2.0)),
+    z = _falling_root(_normal_upper,
                       lambda v: -math.exp(-0.5 * v * v) / math.sqrt(2.0 * math.pi),
                       upper, math.sqrt(-2.0 * math.log(upper)))
     return z if q > 0.5 else -z
@@ -240,10 +245,17 @@ def chi2_isf(p, dof):
     return _elementwise(lambda p_, d: _chi2_quantile(p_, d, upper=True), p, dof)
 
 
+def _chi2_density(x: float, dof: float) -> float:
+    if not dof > 0.0:
+        return math.nan
+    if x > 0.0:
+        return -_chi2_slope(dof / 2.0, x)
+    return math.inf if dof < 2.0 else 0.5 if dof == 2.0 else 0.0  # the limit at x = 0
+
+
 def chi2_pdf(x, dof):
     """Density of the chi-square distribution."""
-    return _elementwise(lambda x_, d: -_chi2_slope(d / 2.0, x_) if x_ > 0.0 else (
-        math.inf if d < 2.0 else 0.5 if d == 2.0 else 0.0) if d > 0.0 else math.nan, x, dof)
+    return _elementwise(_chi2_density, x, dof)
 
 
 def t_sf(t, dof):
@@ -252,7 +264,7 @@ def t_sf(t, dof):
         if not d > 0.0 or math.isnan(t_):
             return math.nan
         if math.isinf(d):
-            return 0.5 * math.erfc(t_ / math.sqrt(2.0))
+            return _normal_upper(t_)
         tail = _t_upper(abs(t_), d) if not math.isinf(t_) else 0.0
         return tail if t_ >= 0.0 else 1.0 - tail
 

@@ -449,10 +449,9 @@ def direct_loss(thru_dbfs, u_thru_db, dut_dbfs, u_dut_db, *, thru_after_dbfs=Non
     components.append(Component.normal("DUT reading", u_dut_db, sensitivity=-1.0, dof=dof[1]))
     components.append(Component.rectangular(
         "dongle linearity", linearity_db,
-        note="" if linearity_db > 0 else "not assessed; check the range with a ladder"))
+        note="" if linearity_db > 0 else "not assessed (check the range with a ladder)"))
     if thru_after_dbfs is None:
-        components.append(Component.normal("drift", 0.0, kind="B",
-                                           note="not assessed; capture a thru after the DUT"))
+        components.append(Component.not_assessed("drift", "capture a thru after the DUT"))
     components.extend(extra_components)
     return Loss(loss_db=float(reference - dut_dbfs), budget=Budget(tuple(components), k),
                 method="direct", reference_dbfs=float(reference), dut_dbfs=float(dut_dbfs),

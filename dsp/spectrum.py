@@ -13,9 +13,8 @@ Proc. IEEE 66(1), 1978.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import threading
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -230,7 +229,7 @@ class PsdAccumulator:
     -----
     Segments run continuously across block boundaries, so the result does not depend on how the
     capture was cut into blocks. Complex64 input is transformed in single precision (:mod:`dsp.fft`,
-    all cores); each call sums at most 64 segments in that precision (relative error below 1e-5), and
+    batches of segments spread over the worker threads of :mod:`dsp.parallel`); each call sums at most 64 segments in that precision (relative error below 1e-5), and
     the running sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
     of them, merged pairwise as the capture grows) give the Type A scatter of any reading.
     """

@@ -210,6 +210,12 @@ class Component:
         return abs(self.sensitivity) * self.u
 
     @classmethod
+    def not_assessed(cls, name, how):
+        """A zero Type B line for an input nobody assessed, saying ``how`` it could be: the budget
+        shows what it leaves out rather than dropping it silently."""
+        return cls.normal(name, 0.0, kind="B", note=f"not assessed ({how})")
+
+    @classmethod
     def normal(cls, name, u, *, sensitivity=1.0, dof=math.inf, kind="A", note=""):
         """An input with a normal (or Student-t) standard uncertainty ``u``."""
         return cls(name, float(u), float(sensitivity), float(dof), kind, "normal", None, note)

@@ -75,7 +75,9 @@ def add_parser(subparsers) -> None:
 # ------------------------------------------------------------------------------------------ input
 
 
-#: The capture options, in the order their captures are listed.
+#: The capture options, in the order they are opened (and named in errors).
+OPTIONS = ("hot", "cold", "hot_dut", "cold_dut")
+#: The same, in the order the noise-source analysis takes them.
 ROLES = ("cold", "hot", "cold_dut", "hot_dut")
 
 
@@ -123,13 +125,11 @@ def _validate(args) -> None:
 
 def _groups(args) -> list[_Group]:
     """Group the captures by centre frequency; repeats of a role at one centre are pooled."""
-    roles = {name: [capture_from_args(p, args) for p in getattr(args, name)]
-             for name in ("hot", "cold", "hot_dut", "cold_dut")}  # opened in the order they are asked for
-    everything = [c for caps in roles.values() for c in caps]
+    roles = {name: [capture_from_args(p, args) for p in getattr(args, name)] for name in OPTIONS}
     if all(len(caps) <= 1 for caps in roles.values()):
         # One of each: a single group, whatever their metadata says (differences are warned about).
-        return [_Group(roles["hot"][0].center_hz, *(roles[name] for name in ("hot", "cold", "hot_dut", "cold_dut")))]
-    for cap in everything:
+        return [_Group(roles["hot"][0].center_hz, **roles)]
+    for cap in (c for caps in roles.values() for c in caps):
         if cap.center_hz is None:
             raise UsageError(f"{cap.path}: no centre frequency in its metadata; with several captures per "
                              "role each needs one (give --center for raw files)")
@@ -145,7 +145,7 @@ def _groups(args) -> list[_Group]:
         for name in needed:
             if not g[name]:
                 raise UsageError(f"{first.path}: no --{name.replace('_', '-')} capture at {first.center_hz:g} Hz")
-        groups.append(_Group(first.center_hz, g["hot"], g["cold"], g["hot_dut"], g["cold_dut"]))
+        groups.append(_Group(first.center_hz, **g))
     return groups
 
 
