@@ -10,14 +10,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from bench import keys
-from bench.errors import CaptureError, MeasurementError, UsageError
-from bench.recordings import Capture
-from dsp.floor import NoiseFloor, noise_floor
-from dsp.health import Health, HealthAccumulator
-from dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
-from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
-from dsp.units import db_from_power
+from rxbench import keys
+from rxbench.errors import CaptureError, MeasurementError, UsageError
+from rxbench.recordings import Capture
+from rxbench.dsp.floor import NoiseFloor, noise_floor
+from rxbench.dsp.health import Health, HealthAccumulator
+from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
+from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from rxbench.dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
 DEFAULT_NPERSEG = 4096
@@ -189,7 +189,7 @@ def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
             what = f"{role} tone" if role else "tone"
             raise MeasurementError(f"{r.capture.path}: no {what} could be read (none above the noise)")
     p, u, dof = zip(*values)
-    from dsp.ladder import mean_reading  # here: dsp.ladder is 4 ms of every inspect's start-up
+    from rxbench.dsp.ladder import mean_reading  # here: dsp.ladder is 4 ms of every inspect's start-up
 
     return mean_reading(p, u, dof)
 
@@ -306,8 +306,8 @@ def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list
     :data:`SWR_FROM_PLAN`). What cannot be assessed stays in the budget as a zero line that says
     so, never silently out of it.
     """
-    from dsp.ladder import mismatch_components  # here: dsp.ladder is 4 ms of inspect's start-up
-    from dsp.uncertainty import Component
+    from rxbench.dsp.ladder import mismatch_components  # here: dsp.ladder is 4 ms of inspect's start-up
+    from rxbench.dsp.uncertainty import Component
 
     known = {k: v for k, v in dict(swr).items() if v is not None}
     comps = mismatch_components(*(known.get(key) for key in keys.SWRS), loss_db)

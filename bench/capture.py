@@ -27,12 +27,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Sequence, TextIO
 
-from bench import keys
-from bench.device import CHUNK_BYTES, CaptureSource
-from bench.errors import CaptureError, UsageError
-from bench.output import Progress
-from bench.plan import TONE_ROLES, Plan, PlannedCapture
-from bench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
+from rxbench import keys
+from rxbench.device import CHUNK_BYTES, CaptureSource
+from rxbench.errors import CaptureError, UsageError
+from rxbench.output import Progress
+from rxbench.plan import TONE_ROLES, Plan, PlannedCapture
+from rxbench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 
 PLAN_NAME = "plan.toml"
 LOG_NAME = "log.txt"

@@ -11,8 +11,8 @@ import gc
 import importlib
 import sys
 
-from bench import __version__
-from bench.errors import RxbenchError
+from rxbench import __version__
+from rxbench.errors import RxbenchError
 
 #: Command modules, in the order ``rxbench --help`` lists them.
 COMMANDS = (
@@ -40,7 +40,7 @@ class _Parser(argparse.ArgumentParser):
 
 def _command_modules(names):
     for name in names:
-        yield importlib.import_module(f"bench.commands.{name}")
+        yield importlib.import_module(f"rxbench.commands.{name}")
 
 
 def _chosen_command(argv: list[str]) -> str | None:

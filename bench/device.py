@@ -38,8 +38,8 @@ from typing import Protocol
 
 import numpy as np
 
-from bench.errors import DeviceError
-from bench.plan import VALID_RATE_RANGES_HZ, DongleSettings, PlannedCapture
+from rxbench.errors import DeviceError
+from rxbench.plan import VALID_RATE_RANGES_HZ, DongleSettings, PlannedCapture
 
 #: Bytes per USB transfer (and so per async chunk); must be a multiple of 512.
 CHUNK_BYTES = 16 * 16384
@@ -341,7 +341,7 @@ def open_source(kind: str, *, device_index: int = 0, truth=None, seed: int | Non
     if kind == "rtlsdr":
         return RtlSdrSource(device_index)
     if kind == "simulated":
-        from bench.simulated import SimulatedBench
+        from rxbench.simulated import SimulatedBench
 
         return SimulatedBench(truth=truth, seed=seed)
     raise DeviceError(f"unknown device {kind!r}: use rtlsdr or simulated")

@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.errors import RxbenchError
+from rxbench.errors import RxbenchError
 
 COLUMNS = ("frequency_hz", "enr_db")
 #: ENR outside this range (dB) is taken for a typing error rather than a noise source.

@@ -63,9 +63,9 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from bench.errors import PlanError
-from bench import keys
-from bench.keys import ROLES
+from rxbench.errors import PlanError
+from rxbench import keys
+from rxbench.keys import ROLES
 
 #: Sample rates the RTL2832U accepts (Hz): (low, high] intervals, as librtlsdr checks them.
 VALID_RATE_RANGES_HZ = ((225_000.0, 300_000.0), (900_000.0, 3_200_000.0))

@@ -28,8 +28,8 @@ from typing import Callable, Iterator, Mapping
 
 import numpy as np
 
-from bench import keys
-from bench.errors import CaptureError, UsageError
+from rxbench import keys
+from rxbench.errors import CaptureError, UsageError
 
 #: Samples per block handed to the estimators (2**19 complex64 = 4 MiB: numpy backs arrays this
 #: large with huge pages, which saves most of the page faults of a fresh block).

@@ -28,10 +28,10 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.errors import UsageError
-from bench.output import CAUTIONS, json_safe, fmt_db
-from bench.session import QUIET_GALACTIC, Analysis
-from dsp.units import db_from_power
+from rxbench.errors import UsageError
+from rxbench.output import CAUTIONS, json_safe, fmt_db
+from rxbench.session import QUIET_GALACTIC, Analysis
+from rxbench.dsp.units import db_from_power
 
 REPORT_DIR = "report"
 #: Capture panels per spectra page.

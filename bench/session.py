@@ -33,16 +33,16 @@ from pathlib import Path
 
 import numpy as np
 
-from bench import keys
-from bench.analyze import (CENTER_TOLERANCE_HZ, SWR_FROM_PLAN, Reading, capture_start_s, mismatch_budget,
+from rxbench import keys
+from rxbench.analyze import (CENTER_TOLERANCE_HZ, SWR_FROM_PLAN, Reading, capture_start_s, mismatch_budget,
                            pool_tones, read_capture, setup_difference, tone_dict)
-from bench.errors import CaptureError, RxbenchError, UsageError
-from bench.recordings import META_SUFFIX, Capture, open_capture
-from dsp import environment as env
-from dsp import ladder as ladder_mod
-from dsp import noisefig
-from dsp.uncertainty import DEFAULT_K, Budget, Component
-from dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
+from rxbench.errors import CaptureError, RxbenchError, UsageError
+from rxbench.recordings import META_SUFFIX, Capture, open_capture
+from rxbench.dsp import environment as env
+from rxbench.dsp import ladder as ladder_mod
+from rxbench.dsp import noisefig
+from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
+from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 
 #: Roles whose captures carry a generator tone.
 TONE_ROLES = ("thru", "dut", "step")

@@ -23,12 +23,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bench.device import Applied, check_rate, check_read_size
-from bench.errors import DeviceError
-from bench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, DongleSettings, PlannedCapture
-from dsp import synth
-from dsp.environment import external_fa_db
-from dsp.units import T0_K, amplitude_from_db, w_from_dbm
+from rxbench.device import Applied, check_rate, check_read_size
+from rxbench.errors import DeviceError
+from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, DongleSettings, PlannedCapture
+from rxbench.dsp import synth
+from rxbench.dsp.environment import external_fa_db
+from rxbench.dsp.units import T0_K, amplitude_from_db, w_from_dbm
 
 #: The field station's splitter plus 10 m band-pass filter: (frequency_hz, loss_db). Invented.
 FIELD_STATION_DUT_LOSS = (

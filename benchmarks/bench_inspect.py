@@ -57,7 +57,7 @@ def main() -> int:
     args = ap.parse_args()
     work = args.workdir or Path(tempfile.mkdtemp(prefix="rxbench-bench-"))
     work.mkdir(parents=True, exist_ok=True)
-    rx = [sys.executable, "-m", "bench.cli"]
+    rx = [sys.executable, "-m", "rxbench"]
     cap = work / "ten_seconds.cu8"
     if not cap.exists():
         subprocess.run([*rx, "synth", str(cap), "--rate", "2.4e6", "--duration", "10"], check=True)

@@ -38,11 +38,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.distributions import normal_ppf, t_ppf, t_sf
-from dsp.floor import detection_threshold, median_bias, noise_floor, usable_mask
-from dsp.spectrum import Psd
-from dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, measure_tone
-from dsp.units import db_from_power
+from rxbench.dsp.distributions import normal_ppf, t_ppf, t_sf
+from rxbench.dsp.floor import detection_threshold, median_bias, noise_floor, usable_mask
+from rxbench.dsp.spectrum import Psd
+from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, measure_tone
+from rxbench.dsp.units import db_from_power
 
 #: Default probability that noise alone produces at least one detection in a path's mean spectrum.
 DEFAULT_FALSE_ALARM = 0.01

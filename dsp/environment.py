@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.units import T0_K, db_from_power, power_from_db, scalar_or_array
+from rxbench.dsp.units import T0_K, db_from_power, power_from_db, scalar_or_array
 
 #: ITU-R P.372 median man-made noise, Fam = c - d*log10(f/MHz) dB above kT0*b: (c, d) per category.
 MAN_MADE_NOISE = {

@@ -18,7 +18,7 @@ import sys
 
 import numpy as np
 
-from dsp.parallel import cpu_threads
+from rxbench.dsp.parallel import cpu_threads
 
 _CORE_NAME = "scipy.fft._pocketfft.pypocketfft"
 _core = None

@@ -14,9 +14,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from dsp.distributions import chi2_isf, chi2_pdf, chi2_ppf
+from rxbench.dsp.distributions import chi2_isf, chi2_pdf, chi2_ppf
 
-from dsp.spectrum import Psd
+from rxbench.dsp.spectrum import Psd
 
 #: Probability that pure noise throws any one bin over the exclusion threshold, per spectrum.
 FALSE_ALARM = 0.01

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.parallel import InOrder
+from rxbench.dsp.parallel import InOrder
 
 
 @dataclass(frozen=True)

@@ -29,8 +29,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.mismatch import gamma_from_swr, two_port_mismatch_terms_db
-from dsp.uncertainty import DEFAULT_K, Budget, Component, type_a, welch_satterthwaite
+from rxbench.dsp.mismatch import gamma_from_swr, two_port_mismatch_terms_db
+from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component, type_a, welch_satterthwaite
 
 #: Default tolerance of a ladder step before it is flagged, dB (common practice for a bench step
 #: attenuator of modest grade).

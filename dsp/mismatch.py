@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from dsp.units import scalar_or_array
+from rxbench.dsp.units import scalar_or_array
 
 
 def _check_swr(swr):

@@ -26,9 +26,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.floor import usable_mask
-from dsp.spectrum import Psd, band_power
-from dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, power_from_db, scalar_or_array
+from rxbench.dsp.floor import usable_mask
+from rxbench.dsp.spectrum import Psd, band_power
+from rxbench.dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, power_from_db, scalar_or_array
 
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # dB per unit of relative power change
 

@@ -36,9 +36,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from dsp import synth
-from dsp.environment import snr_degradation_db
-from dsp.units import K_B, T0_K, db_from_power, power_from_db, w_from_dbm
+from rxbench.dsp import synth
+from rxbench.dsp.environment import snr_degradation_db
+from rxbench.dsp.units import K_B, T0_K, db_from_power, power_from_db, w_from_dbm
 
 
 @dataclass(frozen=True)

@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.fft import fft_rows, rfft_rows
-from dsp.parallel import InOrder
+from rxbench.dsp.fft import fft_rows, rfft_rows
+from rxbench.dsp.parallel import InOrder
 
 _LOCAL = threading.local()
 

@@ -13,7 +13,7 @@ from typing import Callable
 
 import numpy as np
 
-from dsp.units import K_B, T0_K, amplitude_from_db, power_from_db
+from rxbench.dsp.units import K_B, T0_K, amplitude_from_db, power_from_db
 
 LossSpec = float | Callable[[np.ndarray], np.ndarray]
 

@@ -24,10 +24,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.distributions import t_ppf
-from dsp.floor import NoiseFloor, detection_threshold
-from dsp.spectrum import Psd, kernel
-from dsp.units import db_from_power
+from rxbench.dsp.distributions import t_ppf
+from rxbench.dsp.floor import NoiseFloor, detection_threshold
+from rxbench.dsp.spectrum import Psd, kernel
+from rxbench.dsp.units import db_from_power
 
 #: Half-width of the band integrated around a tone, bins (Hann main lobe is +/-2 bins).
 BAND_HALFWIDTH_BINS = 4

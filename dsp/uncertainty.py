@@ -19,9 +19,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dsp.units import scalar_or_array
+from rxbench.dsp.units import scalar_or_array
 
-from dsp.distributions import t_ppf
+from rxbench.dsp.distributions import t_ppf
 
 #: Coverage factor used throughout rxbench (GUM 6.3.3: k = 2 gives about 95 %).
 DEFAULT_K = 2.0

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from dsp import synth
-from dsp.units import power_from_db, w_from_dbm
+from rxbench.dsp import synth
+from rxbench.dsp.units import power_from_db, w_from_dbm
 
 #: A realistic dongle for tests: the thermal floor sits well above 8-bit quantisation.
 TEST_DONGLE = synth.Dongle(gain_db=80.0, noise_figure_db=6.0, dc_offset=0.01 + 0.005j)

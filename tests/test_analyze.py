@@ -8,9 +8,9 @@ from types import SimpleNamespace
 
 import pytest
 
-from bench.analyze import capture_start_s, pool_tones, tone_db
-from bench.errors import MeasurementError
-from dsp.ladder import mean_reading
+from rxbench.analyze import capture_start_s, pool_tones, tone_db
+from rxbench.errors import MeasurementError
+from rxbench.dsp.ladder import mean_reading
 
 
 def _cap(datetime):

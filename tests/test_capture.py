@@ -11,14 +11,14 @@ import json
 import numpy as np
 import pytest
 
-from bench.analyze import read_capture
-from bench.capture import LOG_NAME, PLAN_NAME, REPLACED_DIR, run_session, stdin_prompt
-from bench.cli import main
-from bench.errors import CaptureError, DeviceError, UsageError
-from bench.plan import parse_plan
-from bench.recordings import open_capture
-from bench.simulated import BenchTruth, SimulatedBench
-from dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, noise_temperature_from_nf_db, power_from_db
+from rxbench.analyze import read_capture
+from rxbench.capture import LOG_NAME, PLAN_NAME, REPLACED_DIR, run_session, stdin_prompt
+from rxbench.cli import main
+from rxbench.errors import CaptureError, DeviceError, UsageError
+from rxbench.plan import parse_plan
+from rxbench.recordings import open_capture
+from rxbench.simulated import BenchTruth, SimulatedBench
+from rxbench.dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, noise_temperature_from_nf_db, power_from_db
 
 HEAD = """\
 title = "simulated session"

@@ -9,12 +9,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from dsp import compare as cmp
-from dsp import onair, synth
-from dsp.environment import snr_degradation_db
-from dsp.onair import Carrier
-from dsp.spectrum import psd
-from dsp.units import K_B, T0_K, noise_temperature_from_nf_db
+from rxbench.dsp import compare as cmp
+from rxbench.dsp import onair, synth
+from rxbench.dsp.environment import snr_degradation_db
+from rxbench.dsp.onair import Carrier
+from rxbench.dsp.spectrum import psd
+from rxbench.dsp.units import K_B, T0_K, noise_temperature_from_nf_db
 
 FS = 250e3
 NPERSEG = 128

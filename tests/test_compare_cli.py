@@ -6,10 +6,10 @@ import json
 import numpy as np
 import pytest
 
-from bench.cli import main
-from bench.recordings import write_sigmf
-from dsp import onair, synth
-from dsp.onair import Carrier
+from rxbench.cli import main
+from rxbench.recordings import write_sigmf
+from rxbench.dsp import onair, synth
+from rxbench.dsp.onair import Carrier
 
 FS = 250e3
 CENTER = 14.1e6

@@ -17,8 +17,8 @@ import math
 
 import pytest
 
-from bench.cli import main
-from bench.commands import demo
+from rxbench.cli import main
+from rxbench.commands import demo
 
 
 @pytest.fixture(scope="module")
@@ -77,8 +77,8 @@ def test_demo_truth_checks_can_fail(demo_run):
     U is below 0.2 dB) are reported outside their uncertainty."""
     import dataclasses
 
-    from bench.plan import parse_plan
-    from bench.session import analyze_session, open_session
+    from rxbench.plan import parse_plan
+    from rxbench.session import analyze_session, open_session
 
     folder, _ = demo_run
     analysis = analyze_session(open_session(folder))
@@ -95,7 +95,7 @@ def test_demo_truth_checks_can_fail(demo_run):
 def test_snr_cost_truth_follows_the_formula():
     # With the antenna no hotter than a resistor (X = 1) the cost equals the loss (REFERENCES.md,
     # "SNR cost of a loss", sanity check [calc]); 3 dB behind X = 10 dB: 10*log10(1 + 0.995/10).
-    from bench.session import _cost
+    from rxbench.session import _cost
 
     assert _cost(0.0, 3.0) == pytest.approx(3.0, abs=1e-9)
     assert _cost(10.0, 3.0) == pytest.approx(10 * math.log10(1 + (10 ** 0.3 - 1) / 10), abs=1e-9)
@@ -103,7 +103,7 @@ def test_snr_cost_truth_follows_the_formula():
 
 def test_receiver_temperature_includes_quantisation():
     # 8-bit quantisation: 2*(1/127.5)**2/12 FS^2 per sample (Bennett 1948), referred to the input.
-    from bench.plan import parse_plan
+    from rxbench.plan import parse_plan
 
     truth = demo.demo_truth()
     plan = parse_plan(demo.PLAN_TEXT, "demo")
@@ -128,7 +128,7 @@ def test_saved_recordings_analyse_offline_to_the_truth(tmp_path):
     import shutil
     from pathlib import Path
 
-    from bench.plan import load_plan
+    from rxbench.plan import load_plan
 
     src = Path(__file__).resolve().parent.parent / "recordings" / "field-station"
     folder = tmp_path / "field-station"
@@ -138,7 +138,7 @@ def test_saved_recordings_analyse_offline_to_the_truth(tmp_path):
         assert main(["analyze", str(folder), "--json"]) == 0, err.getvalue()
     doc = json.loads(out.getvalue())
     assert doc["n_captures"] == 41 and (folder / "report" / "report.md").is_file()
-    from bench.session import analyze_session, open_session
+    from rxbench.session import analyze_session, open_session
 
     analysis = analyze_session(open_session(folder))
     checks = demo.truth_checks(analysis, demo.demo_truth(), load_plan(folder / "plan.toml"))

@@ -23,11 +23,11 @@ import pytest
 if importlib.util.find_spec("rtlsdr") is None:  # pyrtlsdr is in the `test` extra; skip without it
     pytest.skip("pyrtlsdr is not installed", allow_module_level=True)
 
-from bench.capture import run_session  # noqa: E402
-from bench.device import RtlSdrSource, import_rtlsdr  # noqa: E402
-from bench.errors import DeviceError  # noqa: E402
-from bench.plan import DongleSettings, parse_plan  # noqa: E402
-from bench.recordings import open_capture  # noqa: E402
+from rxbench.capture import run_session  # noqa: E402
+from rxbench.device import RtlSdrSource, import_rtlsdr  # noqa: E402
+from rxbench.errors import DeviceError  # noqa: E402
+from rxbench.plan import DongleSettings, parse_plan  # noqa: E402
+from rxbench.recordings import open_capture  # noqa: E402
 
 #: Tuner gains of an R820T in tenths of a dB, as librtlsdr lists them (from memory).
 R820T_GAINS = (0, 9, 14, 27, 37, 77, 87, 125, 144, 157, 166, 197, 207, 229, 254, 280, 297, 328, 338, 364,
@@ -467,7 +467,7 @@ def test_interruption_leaves_a_valid_partial_capture(fake_lib, tmp_path):
 
 
 def test_cli_without_a_dongle_is_one_clear_line(fake_lib, tmp_path, capsys):
-    from bench.cli import main
+    from rxbench.cli import main
 
     fake_lib(FakeLibrtlsdr(n_devices=0))
     path = tmp_path / "p.toml"

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, normal_ppf, t_ppf, t_sf
+from rxbench.dsp.distributions import beta_tails, chi2_isf, chi2_pdf, chi2_ppf, gamma_tails, normal_ppf, t_ppf, t_sf
 
 #: Degrees of freedom rxbench meets: a few segments up to the Welch dof of a many-gigabyte capture.
 CHI2_DOF = [0.5, 1.0, 2.0, 3.7, 7.5, 38.0, 441.6, 1e4, 1e5, 1e6, 1e7]

@@ -7,8 +7,8 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from dsp import environment as env
-from dsp.units import T0_K, noise_temperature_from_nf_db
+from rxbench.dsp import environment as env
+from rxbench.dsp.units import T0_K, noise_temperature_from_nf_db
 
 # ITU-R P.372 median man-made and galactic noise, Fa in dB above kT0b, worked from
 # Fam = c - d*log10(f/MHz) [calc, REFERENCES.md "External noise: ITU-R Recommendation P.372"].

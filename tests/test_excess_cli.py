@@ -11,10 +11,10 @@ import math
 import numpy as np
 import pytest
 
-from bench.cli import main
-from bench.recordings import write_sigmf
-from dsp.synth import CU8_QUANTISATION_POWER, Dongle, passive_loss, thermal_noise
-from dsp.units import K_B, T0_K
+from rxbench.cli import main
+from rxbench.recordings import write_sigmf
+from rxbench.dsp.synth import CU8_QUANTISATION_POWER, Dongle, passive_loss, thermal_noise
+from rxbench.dsp.units import K_B, T0_K
 
 FS_HZ = 250e3
 N = 100_000  # 0.4 s

@@ -6,7 +6,7 @@ import sys
 import numpy as np
 import pytest
 
-import dsp.fft as fft
+import rxbench.dsp.fft as fft
 
 
 @pytest.fixture(params=["core", "scipy.fft"])
@@ -39,7 +39,7 @@ def test_core_loaded_first_is_reused_by_a_later_scipy_fft():
     # In a fresh process: load the core on its own, then import scipy.fft, which must take the same
     # module and still agree with numpy.fft.
     code = (
-        "import sys, numpy as np, dsp.fft as f\n"
+        "import sys, numpy as np, rxbench.dsp.fft as f\n"
         "core = f.core(); assert core is not None and 'scipy.fft' not in sys.modules\n"
         "import scipy.fft\n"
         "assert sys.modules[f._CORE_NAME] is core\n"

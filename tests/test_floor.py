@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from dsp.floor import _median, median_bias, noise_floor
-from dsp.spectrum import psd
+from rxbench.dsp.floor import _median, median_bias, noise_floor
+from rxbench.dsp.spectrum import psd
 
 
 @pytest.mark.parametrize(

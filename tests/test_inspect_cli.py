@@ -5,8 +5,8 @@ import json
 import numpy as np
 import pytest
 
-from bench.cli import main
-from bench.recordings import write_sigmf
+from rxbench.cli import main
+from rxbench.recordings import write_sigmf
 from tests.conftest import tone_capture
 
 

@@ -10,7 +10,7 @@ import math
 import numpy as np
 import pytest
 
-from dsp.ladder import (
+from rxbench.dsp.ladder import (
     COMPRESSED,
     LINEAR,
     NOISE_LIMITED,
@@ -20,8 +20,8 @@ from dsp.ladder import (
     mismatch_components,
     substitution_loss,
 )
-from dsp.mismatch import swr_from_gamma
-from dsp.uncertainty import Budget
+from rxbench.dsp.mismatch import swr_from_gamma
+from rxbench.dsp.uncertainty import Budget
 
 STEPS_DB = np.arange(0.0, 61.0, 10.0)
 

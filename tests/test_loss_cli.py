@@ -11,12 +11,12 @@ import math
 import numpy as np
 import pytest
 
-from bench.analyze import read_capture
-from bench.cli import main
-from bench.recordings import memory_capture, write_sigmf
-from dsp import synth
-from dsp.ladder import direct_loss, substitution_loss
-from dsp.units import w_from_dbm
+from rxbench.analyze import read_capture
+from rxbench.cli import main
+from rxbench.recordings import memory_capture, write_sigmf
+from rxbench.dsp import synth
+from rxbench.dsp.ladder import direct_loss, substitution_loss
+from rxbench.dsp.units import w_from_dbm
 
 FS = 250e3
 DURATION_S = 0.2

@@ -10,11 +10,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from bench.cli import main
-from bench.enr import EnrTableError, parse_enr_table
-from bench.recordings import write_sigmf
-from dsp import synth
-from dsp.units import T0_K, power_from_db, w_from_dbm
+from rxbench.cli import main
+from rxbench.enr import EnrTableError, parse_enr_table
+from rxbench.recordings import write_sigmf
+from rxbench.dsp import synth
+from rxbench.dsp.units import T0_K, power_from_db, w_from_dbm
 
 FS = 250e3
 N = 125_000  # 0.5 s

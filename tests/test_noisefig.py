@@ -10,10 +10,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from dsp import noisefig as nfm
-from dsp import synth
-from dsp.spectrum import get_window, psd
-from dsp.units import T0_K, db_from_power, noise_temperature_k, power_from_db
+from rxbench.dsp import noisefig as nfm
+from rxbench.dsp import synth
+from rxbench.dsp.spectrum import get_window, psd
+from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_k, power_from_db
 
 FS = 250e3
 

@@ -5,7 +5,7 @@ import math
 
 import numpy as np
 
-from bench.output import Progress, json_safe, fmt_db
+from rxbench.output import Progress, json_safe, fmt_db
 
 
 class _Tty(io.StringIO):

@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-import dsp.parallel as parallel
-from dsp.health import HealthAccumulator
-from dsp.parallel import InOrder
-from dsp.spectrum import PsdAccumulator
+import rxbench.dsp.parallel as parallel
+from rxbench.dsp.health import HealthAccumulator
+from rxbench.dsp.parallel import InOrder
+from rxbench.dsp.spectrum import PsdAccumulator
 
 
 def _pass(x):

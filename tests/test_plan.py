@@ -5,10 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bench.cli import main
-from bench.errors import PlanError
-from bench.keys import ROLES
-from bench.plan import example_plans, load_plan, parse_plan
+from rxbench.cli import main
+from rxbench.errors import PlanError
+from rxbench.keys import ROLES
+from rxbench.plan import example_plans, load_plan, parse_plan
 
 BASE = """\
 title = "test"

@@ -5,7 +5,7 @@ import math
 
 import pytest
 
-from bench.cli import main
+from rxbench.cli import main
 
 # ITU-R P.372 median man-made noise, Fam = c - d*log10(f/MHz) dB above kT0b (coefficients as
 # tabulated in REFERENCES.md), and the galactic line 52.0 - 23.0*log10(f/MHz).

@@ -6,13 +6,13 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, assume, given, settings, strategies as st
 
-from bench.analyze import read_capture
-from bench.errors import PlanError
-from bench.plan import parse_plan
-from bench.recordings import memory_capture
-from dsp import synth
-from dsp.units import w_from_dbm
-from bench.keys import ROLES
+from rxbench.analyze import read_capture
+from rxbench.errors import PlanError
+from rxbench.plan import parse_plan
+from rxbench.recordings import memory_capture
+from rxbench.dsp import synth
+from rxbench.dsp.units import w_from_dbm
+from rxbench.keys import ROLES
 
 names = st.from_regex(r"[a-z][a-z0-9_-]{0,11}", fullmatch=True)
 step = st.fixed_dictionaries({

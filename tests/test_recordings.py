@@ -8,8 +8,8 @@ import pytest
 import soundfile as sf
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from bench.errors import CaptureError
-from bench.recordings import (
+from rxbench.errors import CaptureError
+from rxbench.recordings import (
     ENCODINGS,
     SigmfWriter,
     decode,
@@ -242,7 +242,7 @@ def test_failed_commit_keeps_the_samples(tmp_path, monkeypatch):
 def test_write_error_is_one_line_in_the_cli(tmp_path, capsys, monkeypatch):
     import errno
 
-    from bench.cli import main
+    from rxbench.cli import main
 
     def full(self, data):
         raise OSError(errno.ENOSPC, "No space left on device", str(self.data_path))

@@ -13,10 +13,10 @@ import struct
 import pytest
 from test_session import lossy, noise_in, tone_in, write_capture
 
-from bench import report as rep
-from bench.cli import main
-from bench.session import analyze_session, open_session
-from dsp.units import T0_K, power_from_db
+from rxbench import report as rep
+from rxbench.cli import main
+from rxbench.session import analyze_session, open_session
+from rxbench.dsp.units import T0_K, power_from_db
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
 

@@ -19,13 +19,13 @@ import math
 import numpy as np
 import pytest
 
-from bench import session as sess
-from bench.cli import main
-from bench.errors import UsageError
-from bench.recordings import SigmfWriter, write_sigmf
-from dsp import synth
-from dsp.ladder import mismatch_components
-from dsp.units import T0_K, power_from_db, w_from_dbm
+from rxbench import session as sess
+from rxbench.cli import main
+from rxbench.errors import UsageError
+from rxbench.recordings import SigmfWriter, write_sigmf
+from rxbench.dsp import synth
+from rxbench.dsp.ladder import mismatch_components
+from rxbench.dsp.units import T0_K, power_from_db, w_from_dbm
 
 FS = 250e3
 CENTER = 28.4e6
@@ -396,8 +396,8 @@ def test_excess_without_a_loss_reports_no_cost(tmp_path):
 
 def test_stated_excess_uncertainty_covers_the_truth_about_95_percent_of_the_time():
     # Coverage of U = 2u over independent repeats (GUM 6.2: k = 2 for about 95 %).
-    from bench.analyze import read_capture
-    from bench.recordings import memory_capture
+    from rxbench.analyze import read_capture
+    from rxbench.recordings import memory_capture
 
     ta = T0_K * power_from_db(15.0)
     trx = DONGLE.noise_temperature_k

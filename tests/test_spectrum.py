@@ -5,7 +5,7 @@ import pytest
 import scipy.signal
 from hypothesis import given, settings, strategies as st
 
-from dsp.spectrum import PsdAccumulator, band_power, kernel, psd, welch_dof, window_properties
+from rxbench.dsp.spectrum import PsdAccumulator, band_power, kernel, psd, welch_dof, window_properties
 
 
 @pytest.mark.parametrize(
@@ -134,7 +134,7 @@ def test_too_short_and_bad_parameters():
 @pytest.mark.parametrize("window", ["boxcar", "hann", "hamming", "blackmanharris", "flattop"])
 def test_windows_match_scipy_get_window(window):
     # scipy.signal.get_window (reference library), periodic form.
-    from dsp.spectrum import get_window
+    from rxbench.dsp.spectrum import get_window
 
     assert np.allclose(get_window(window, 1000), scipy.signal.get_window(window, 1000, fftbins=True), atol=1e-12)
 

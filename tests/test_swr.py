@@ -5,8 +5,8 @@ import math
 
 import pytest
 
-from bench.cli import main
-from dsp import mismatch
+from rxbench.cli import main
+from rxbench.dsp import mismatch
 
 
 def _run_json(capsys, *argv):

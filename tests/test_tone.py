@@ -3,12 +3,12 @@
 import numpy as np
 import pytest
 
-from bench.analyze import read_capture
-from bench.recordings import memory_capture
-from dsp import synth
-from dsp.floor import noise_floor
-from dsp.spectrum import band_power, psd
-from dsp.tone import measure_tone
+from rxbench.analyze import read_capture
+from rxbench.recordings import memory_capture
+from rxbench.dsp import synth
+from rxbench.dsp.floor import noise_floor
+from rxbench.dsp.spectrum import band_power, psd
+from rxbench.dsp.tone import measure_tone
 from tests.conftest import TEST_DONGLE, noise_density_truth, tone_capture
 
 

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from dsp.uncertainty import (
+from rxbench.dsp.uncertainty import (
     Budget,
     Component,
     combine,

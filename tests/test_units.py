@@ -7,7 +7,7 @@ import pytest
 from hypothesis import given, strategies as st
 from scipy import constants
 
-from dsp import units
+from rxbench.dsp import units
 
 
 def test_kt0_from_codata():

@@ -5,9 +5,9 @@ from __future__ import annotations
 import argparse
 import sys
 
-from bench.output import Progress, add_json_option, emit
-from bench.report import summary_lines, write_report
-from bench.session import analyze_session, open_session
+from rxbench.output import Progress, add_json_option, emit
+from rxbench.report import summary_lines, write_report
+from rxbench.session import analyze_session, open_session
 
 
 def add_parser(sub) -> None:

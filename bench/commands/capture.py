@@ -6,11 +6,11 @@ from __future__ import annotations
 import argparse
 import sys
 
-from bench.capture import run_session
-from bench.device import open_source
-from bench.errors import UsageError
-from bench.output import CAUTIONS, add_json_option, emit
-from bench.plan import load_plan
+from rxbench.capture import run_session
+from rxbench.device import open_source
+from rxbench.errors import UsageError
+from rxbench.output import CAUTIONS, add_json_option, emit
+from rxbench.plan import load_plan
 
 
 def add_parser(sub) -> None:

@@ -15,12 +15,12 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, require_comparable
-from bench.errors import MeasurementError, UsageError
-from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options, atomic_path, capture_from_args
-from dsp import compare as cmp
-from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
+from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, require_comparable
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.recordings import add_capture_options, atomic_path, capture_from_args
+from rxbench.dsp import compare as cmp
+from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 
 #: Default limit on the two dongles' relative tuning error searched for, ppm of the centre frequency.
 DEFAULT_MAX_PPM = 100.0

@@ -17,11 +17,11 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.errors import UsageError
-from bench.output import add_json_option, emit
-from bench.report import summary_lines
-from dsp import synth
-from dsp.units import K_B, T0_K, db_from_power, power_from_db
+from rxbench.errors import UsageError
+from rxbench.output import add_json_option, emit
+from rxbench.report import summary_lines
+from rxbench.dsp import synth
+from rxbench.dsp.units import K_B, T0_K, db_from_power, power_from_db
 
 DEFAULT_OUT = "rxbench-demo"
 #: Seed of the simulated bench's noise: the demo gives the same numbers every time.
@@ -283,7 +283,7 @@ def demo_truth():
     """The simulated bench of the demo (invented): the field station's device, a step attenuator
     within its stated 0.05 dB except the 30 dB step (0.45 dB off), a quiet rural site with galactic
     noise on 10 m, and a dongle that compresses near full scale."""
-    from bench.simulated import BenchTruth
+    from rxbench.simulated import BenchTruth
 
     return BenchTruth(
         attenuator_errors_db=((2.0, 0.02), (4.0, -0.03), (6.0, 0.02), (8.0, -0.04), (10.0, 0.03), (20.0, -0.05),
@@ -437,17 +437,17 @@ def run_demo(out, *, seed: int = SEED):
 
     Returns (analysis, report_dir, checks, capture warnings).
     """
-    from bench.capture import run_session
-    from bench.plan import parse_plan
-    from bench.simulated import SimulatedBench
+    from rxbench.capture import run_session
+    from rxbench.plan import parse_plan
+    from rxbench.simulated import SimulatedBench
 
     folder = fresh_folder(out)
     plan = parse_plan(PLAN_TEXT, "demo plan (built in)")
     truth = demo_truth()
     run = run_session(plan, folder, SimulatedBench(truth=truth, seed=seed), yes=True, progress=None)
     # Analyse first, then write the report with the truth table in it.
-    from bench.report import write_report
-    from bench.session import analyze_session, open_session
+    from rxbench.report import write_report
+    from rxbench.session import analyze_session, open_session
 
     analysis = analyze_session(open_session(folder))
     checks = truth_checks(analysis, truth, plan)

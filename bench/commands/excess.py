@@ -13,12 +13,12 @@ import math
 
 import numpy as np
 
-from bench.analyze import read_capture, require_comparable
-from bench.errors import MeasurementError, UsageError
-from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import Capture, add_capture_options, capture_from_args, step_capture_from_args
-from dsp import environment as env
-from dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
+from rxbench.analyze import read_capture, require_comparable
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.recordings import Capture, add_capture_options, capture_from_args, step_capture_from_args
+from rxbench.dsp import environment as env
+from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 
 #: SNR costs (dB) for which the affordable loss is reported.
 BUDGET_COSTS_DB = (0.5, 1.0)

@@ -5,11 +5,11 @@ from __future__ import annotations
 import argparse
 import sys
 
-from bench.analyze import read_capture, tone_dict
-from bench.output import Progress, add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options, capture_from_args
-from dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
-from dsp.units import db_from_power
+from rxbench.analyze import read_capture, tone_dict
+from rxbench.output import Progress, add_json_option, emit, fmt_db
+from rxbench.recordings import add_capture_options, capture_from_args
+from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
+from rxbench.dsp.units import db_from_power
 
 
 def add_parser(sub) -> None:
@@ -27,7 +27,7 @@ def add_parser(sub) -> None:
 
 def run(args: argparse.Namespace) -> int:
     if args.snr_bandwidth <= 0:
-        from bench.errors import UsageError
+        from rxbench.errors import UsageError
 
         raise UsageError(f"--snr-bandwidth must be positive, got {args.snr_bandwidth}")
     cap = capture_from_args(args.capture, args)

@@ -9,11 +9,11 @@ from __future__ import annotations
 import argparse
 import math
 
-from bench.analyze import read_tones, tone_db
-from bench.errors import MeasurementError, UsageError
-from bench.output import CAUTIONS, add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options, step_capture_from_args
-from dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
+from rxbench.analyze import read_tones, tone_db
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
+from rxbench.recordings import add_capture_options, step_capture_from_args
+from rxbench.dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
 
 
 def add_parser(sub) -> None:

@@ -13,12 +13,12 @@ import math
 
 import numpy as np
 
-from bench.analyze import SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
-from bench.errors import MeasurementError, UsageError
-from bench.output import CAUTIONS, add_json_option, emit, fmt_db
-from bench.recordings import add_capture_options, capture_from_args, step_capture_from_args
-from dsp.ladder import direct_loss, substitution_loss
-from dsp.uncertainty import coverage_factor
+from rxbench.analyze import SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
+from rxbench.recordings import add_capture_options, capture_from_args, step_capture_from_args
+from rxbench.dsp.ladder import direct_loss, substitution_loss
+from rxbench.dsp.uncertainty import coverage_factor
 
 
 

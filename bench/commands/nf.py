@@ -14,13 +14,13 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_capture
-from bench.enr import read_enr_table
-from bench.errors import MeasurementError, UsageError
-from bench.output import add_json_option, emit, fmt_db
-from bench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
-from dsp import noisefig as nfm
-from dsp.units import T0_K, db_from_power
+from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_capture
+from rxbench.enr import read_enr_table
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
+from rxbench.dsp import noisefig as nfm
+from rxbench.dsp.units import T0_K, db_from_power
 
 #: Coverage factor of the expanded uncertainties printed (about 95 %).
 K_EXPANDED = 2.0

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import argparse
 
-from bench.errors import UsageError
-from bench.output import add_json_option, emit, fmt_db
-from dsp import environment as env
-from dsp.units import noise_temperature_from_nf_db
+from rxbench.errors import UsageError
+from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.dsp import environment as env
+from rxbench.dsp.units import noise_temperature_from_nf_db
 
 #: The usual HF amateur bands, at their lower edges (Hz), for the table printed without --frequency.
 HF_BANDS = (

@@ -5,9 +5,9 @@ from __future__ import annotations
 import argparse
 import math
 
-from bench.errors import UsageError
-from bench.output import add_json_option, emit, fmt_db
-from dsp import mismatch
+from rxbench.errors import UsageError
+from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.dsp import mismatch
 
 #: Meter error (in SWR) used to show how sensitive the load figure is to the reading.
 METER_ERROR_SWR = 0.05

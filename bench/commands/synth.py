@@ -10,11 +10,11 @@ import argparse
 
 import numpy as np
 
-from bench.errors import UsageError
-from bench.output import add_json_option, emit
-from bench.recordings import AUDIO_SUFFIXES, RAW_FORMATS, SigmfWriter, atomic_path, encode, ENCODINGS
-from dsp import synth
-from dsp.units import w_from_dbm
+from rxbench.errors import UsageError
+from rxbench.output import add_json_option, emit
+from rxbench.recordings import AUDIO_SUFFIXES, RAW_FORMATS, SigmfWriter, atomic_path, encode, ENCODINGS
+from rxbench.dsp import synth
+from rxbench.dsp.units import w_from_dbm
 
 #: Samples generated per block, so any length of capture takes flat memory.
 _BLOCK = 1 << 20
