@@ -37,8 +37,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import special
 
-from rxbench.dsp.distributions import normal_ppf, t_ppf, t_sf
 from rxbench.dsp.floor import detection_threshold, median_bias, noise_floor, usable_mask
 from rxbench.dsp.spectrum import Psd
 from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, measure_tone
@@ -144,9 +144,9 @@ def paired_t_interval(differences, confidence: float = 0.95) -> Interval:
         raise ValueError(f"a paired t interval needs at least 2 differences, got {n}")
     mean = float(d.mean())
     se = float(d.std(ddof=1) / math.sqrt(n))
-    k = float(t_ppf(0.5 + confidence / 2.0, n - 1))
+    k = float(special.stdtrit(n - 1, 0.5 + confidence / 2.0))
     if se > 0:
-        p = float(2.0 * t_sf(abs(mean) / se, n - 1))
+        p = float(2.0 * special.stdtr(n - 1, -abs(mean) / se))
     else:
         p = 1.0 if mean == 0 else 0.0
     return Interval("paired-t", mean, mean - k * se, mean + k * se, confidence, n, se, p, confidence)
@@ -238,7 +238,7 @@ def hodges_lehmann_interval(differences, confidence: float = 0.95) -> Interval:
         c = m + 1 - t_crit
         achieved = 1.0 - 2.0 * float(upper_tail[t_crit])
     else:
-        z = normal_ppf(1.0 - alpha_half)
+        z = float(special.ndtri(1.0 - alpha_half))
         c = int(math.floor(m / 2.0 - z * math.sqrt(n * (n + 1) * (2 * n + 1) / 24.0)))
         c = max(c, 1)
         achieved = confidence

@@ -14,7 +14,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from rxbench.dsp.distributions import chi2_isf, chi2_pdf, chi2_ppf
+from scipy import special
 
 from rxbench.dsp.spectrum import Psd
 
@@ -63,6 +63,17 @@ def _median(x: np.ndarray) -> float:
     return 0.5 * (float(part[k - 1]) + float(part[k]))
 
 
+def chi2_density(x: float, dof: float) -> float:
+    """Density of the chi-square distribution with ``dof`` degrees of freedom at x > 0.
+
+    The textbook form exp((k/2 - 1) ln x - x/2 - ln Gamma(k/2) - (k/2) ln 2), with the log-gamma
+    function from ``scipy.special``; ``scipy.stats.chi2.pdf`` evaluates the same expression but
+    scipy.stats is a far heavier import than scipy.special.
+    """
+    half = 0.5 * dof
+    return float(np.exp(special.xlogy(half - 1.0, x) - 0.5 * x - special.gammaln(half) - half * np.log(2.0)))
+
+
 def median_bias(dof: float) -> float:
     """Median / mean of chi2(dof)/dof: the factor by which a median of PSD bins reads low.
 
@@ -73,13 +84,13 @@ def median_bias(dof: float) -> float:
     """
     if dof <= 0:
         raise ValueError(f"{dof=} must be positive")
-    return float(chi2_ppf(0.5, dof) / dof)
+    return float(special.chdtri(dof, 0.5) / dof)
 
 
 def detection_threshold(dof: float, n_bins: int, false_alarm: float = FALSE_ALARM) -> float:
     """Ratio to the mean density above which a bin is called a signal (chi2 tail)."""
     p = false_alarm / max(n_bins, 1)
-    return float(chi2_isf(p, dof) / dof)
+    return float(special.chdtri(dof, p) / dof)
 
 
 def usable_mask(spectrum: Psd, *, edge_fraction: float = 0.1, dc_halfwidth_hz: float | None = None):
@@ -145,8 +156,7 @@ def noise_floor(
     level = _median(d[mask]) / bias
     nu = spectrum.dof
     # Density of chi2(nu)/nu at its median, times the noise level: f(m) for the standard error.
-    med = chi2_ppf(0.5, nu)
-    f_at_median = chi2_pdf(med, nu) * nu  # density of chi2/nu at med/nu
+    f_at_median = chi2_density(special.chdtri(nu, 0.5), nu) * nu  # density of chi2/nu at its median
     n_eff = mask.sum() / (spectrum.enbw_hz / spectrum.bin_width_hz)
     u_median = 1.0 / (2.0 * f_at_median * np.sqrt(n_eff))  # in units of the mean
     return NoiseFloor(

@@ -23,8 +23,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import special
 
-from rxbench.dsp.distributions import t_ppf
 from rxbench.dsp.floor import NoiseFloor, detection_threshold
 from rxbench.dsp.spectrum import Psd, kernel
 from rxbench.dsp.units import db_from_power
@@ -77,7 +77,7 @@ class Tone:
     @property
     def ci95_dbfs(self) -> tuple[float, float]:
         """95 % interval of the tone power, dBFS (Student t on ``dof_u``); low end -inf if it reaches 0."""
-        k = float(t_ppf(0.975, self.dof_u))
+        k = float(special.stdtrit(self.dof_u, 0.975))
         lo, hi = self.power - k * self.u_power, self.power + k * self.u_power
         return db_from_power(max(lo, 0.0)), db_from_power(max(hi, 0.0))
 

@@ -18,10 +18,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import special
 
 from rxbench.dsp.units import scalar_or_array
-
-from rxbench.dsp.distributions import t_ppf
 
 #: Coverage factor used throughout rxbench (GUM 6.3.3: k = 2 gives about 95 %).
 DEFAULT_K = 2.0
@@ -160,7 +159,7 @@ def coverage_factor(dof=math.inf, p: float = 0.9545):
         raise ValueError(f"coverage probability must be in (0, 1), got {p!r}")
     if dof <= 0:
         raise ValueError(f"degrees of freedom must be > 0, got {dof!r}")
-    return float(t_ppf(0.5 + p / 2, dof))
+    return float(special.stdtrit(dof, 0.5 + p / 2))
 
 
 @dataclass(frozen=True)

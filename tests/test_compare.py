@@ -53,6 +53,34 @@ def test_paired_t_matches_scipy_ttest_rel():
     assert (iv.low, iv.high) == pytest.approx((ci.low, ci.high), rel=1e-9)
 
 
+@pytest.mark.parametrize("n, confidence, t_table", [(2, 0.95, 12.706), (11, 0.95, 2.228), (11, 0.99, 3.169),
+                                                    (31, 0.95, 2.042)])
+def test_paired_t_half_width_uses_the_t_table(n, confidence, t_table):
+    # Two-sided critical values of Student's t for n - 1 dof, as printed in the usual t-tables
+    # (from memory): 12.706 (1 dof, 95 %), 2.228 (10, 95 %), 3.169 (10, 99 %), 2.042 (30, 95 %).
+    d = np.linspace(-1.0, 3.0, n)
+    iv = cmp.paired_t_interval(d, confidence)
+    se = np.std(d, ddof=1) / np.sqrt(n)
+    assert iv.half_width == pytest.approx(t_table * se, rel=2e-4)
+    # Two-sided p-value at t = 2.228 with 10 dof is 0.05 (the same table read the other way).
+    if n == 11 and confidence == 0.95:
+        shifted = cmp.paired_t_interval(d - d.mean() + 2.228 * se, confidence)
+        assert shifted.p_value == pytest.approx(0.05, abs=2e-4)
+
+
+def test_hodges_lehmann_normal_approximation_above_the_exact_range():
+    # Above EXACT_SIGNED_RANK_MAX_N pairs the interval's rank is M/2 - z sqrt(n(n+1)(2n+1)/24) with
+    # z = 1.960 for 95 % (normal table, from memory; Hollander, Wolfe & Chicken 3.3).
+    n = cmp.EXACT_SIGNED_RANK_MAX_N + 1
+    d = np.linspace(-1.0, 1.0, n) ** 3
+    iv = cmp.hodges_lehmann_interval(d, 0.95)
+    i, j = np.triu_indices(n)
+    walsh = np.sort(0.5 * (d[i] + d[j]))
+    m = walsh.size
+    c = int(np.floor(m / 2 - 1.960 * np.sqrt(n * (n + 1) * (2 * n + 1) / 24)))
+    assert (iv.low, iv.high) == (walsh[c - 1], walsh[m - c])
+
+
 @pytest.mark.parametrize("n, critical", [(6, 0), (8, 3), (10, 8), (20, 52)])
 def test_signed_rank_critical_values(n, critical):
     # Two-sided 5 % critical values of the Wilcoxon signed-rank statistic (the largest T with

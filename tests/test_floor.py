@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from rxbench.dsp.floor import _median, median_bias, noise_floor
+from rxbench.dsp.floor import _median, chi2_density, detection_threshold, median_bias, noise_floor
 from rxbench.dsp.spectrum import psd
 
 
@@ -20,6 +20,41 @@ def test_median_bias_of_averaged_periodograms(k, bias_db):
 def test_median_bias_one_periodogram_is_ln2():
     # One periodogram bin of Gaussian noise is exponential: median = ln 2 x mean.
     assert median_bias(2.0) == pytest.approx(np.log(2), rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    "dof, false_alarm, quantile",
+    # Upper percentage points of the chi-square distribution, as printed in the usual tables
+    # (from memory): 5 %: 3.841 (1), 5.991 (2), 18.307 (10); 1 %: 6.635 (1), 23.209 (10);
+    # 0.1 %: 10.828 (1).
+    [(1, 0.05, 3.841), (2, 0.05, 5.991), (10, 0.05, 18.307), (1, 0.01, 6.635), (10, 0.01, 23.209),
+     (1, 0.001, 10.828)],
+)
+def test_detection_threshold_is_the_chi_square_table_point(dof, false_alarm, quantile):
+    # One bin searched: the threshold (in units of the mean density) is chi2_isf(p, dof) / dof.
+    assert detection_threshold(dof, 1, false_alarm) * dof == pytest.approx(quantile, abs=5e-4)
+    # n bins: the per-bin probability is false_alarm / n (Bonferroni).
+    assert detection_threshold(dof, 10, 10 * false_alarm) * dof == pytest.approx(quantile, abs=5e-4)
+
+
+def test_detection_threshold_at_many_degrees_of_freedom():
+    # Reference: the Wilson-Hilferty cube-root approximation (Wilson and Hilferty 1931), whose
+    # error at a million degrees of freedom is far below 1e-8 relative; z from the standard library.
+    from statistics import NormalDist
+
+    nu, p = 1e6, 1e-9
+    z, h = NormalDist().inv_cdf(1 - p), 2 / (9 * nu)
+    assert detection_threshold(nu, 1, p) == pytest.approx((1 - h + z * np.sqrt(h)) ** 3, rel=1e-8)
+
+
+def test_chi_square_density():
+    # Closed forms: 2 dof is exp(-x/2)/2; 1 dof is exp(-x/2)/sqrt(2 pi x) (textbook densities).
+    assert chi2_density(1.0, 2.0) == pytest.approx(0.5 * np.exp(-0.5), rel=1e-12)
+    assert chi2_density(3.0, 1.0) == pytest.approx(np.exp(-1.5) / np.sqrt(6 * np.pi), rel=1e-12)
+    # Reference library at the dofs of long captures.
+    for nu in (38.0, 441.6, 1e5, 1e7):
+        x = stats.chi2.ppf(0.5, nu)
+        assert chi2_density(x, nu) == pytest.approx(stats.chi2.pdf(x, nu), rel=1e-7)
 
 
 def _noise(rng, n, power):

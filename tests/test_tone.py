@@ -8,7 +8,7 @@ from rxbench.recordings import memory_capture
 from rxbench.dsp import synth
 from rxbench.dsp.floor import noise_floor
 from rxbench.dsp.spectrum import band_power, psd
-from rxbench.dsp.tone import measure_tone
+from rxbench.dsp.tone import Tone, measure_tone
 from tests.conftest import TEST_DONGLE, noise_density_truth, tone_capture
 
 
@@ -41,6 +41,17 @@ def test_interval_covers_truth_about_95_percent():
         lo, hi = measure_tone(s, noise_floor(s)).ci95_dbfs
         hits += lo <= 0.0 <= hi
     assert 180 <= hits <= 198
+
+
+@pytest.mark.parametrize("dof, t975", [(4.0, 2.776), (10.0, 2.228), (60.0, 2.000), (np.inf, 1.960)])
+def test_interval_uses_student_t(dof, t975):
+    # 97.5 % points of Student's t from the usual t-table (from memory): 2.776 (4 dof), 2.228 (10),
+    # 2.000 (60), 1.960 (normal).
+    tone = Tone(offset_hz=0.0, power=1.0, u_power=0.01, dof_u=dof, noise_density=1e-9,
+                snr_bandwidth_hz=2500.0, peak_to_floor_db=40.0)
+    lo, hi = tone.ci95_dbfs
+    assert 10 ** (lo / 10) == pytest.approx(1.0 - 0.01 * t975, abs=1e-5)
+    assert 10 ** (hi / 10) == pytest.approx(1.0 + 0.01 * t975, abs=1e-5)
 
 
 def test_unbiased_as_the_tone_approaches_the_noise():
