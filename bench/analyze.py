@@ -16,6 +16,7 @@ from rxbench.recordings import Capture
 from rxbench.dsp.floor import NoiseFloor, noise_floor
 from rxbench.dsp.health import Health, HealthAccumulator
 from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
+from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, same_signal
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
 from rxbench.dsp.units import db_from_power
 
@@ -266,8 +267,72 @@ def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> l
     return warnings
 
 
-def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = None):
-    """Read the tone of every capture alike (one FFT length, the tone of the first capture).
+def add_drift_option(parser) -> None:
+    """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`signal_differences`)."""
+    parser.add_argument("--drift-ppm", type=float, default=DEFAULT_PPM, metavar="PPM",
+                        help="how far the tone may move between captures, ppm of the centre frequency, on top of "
+                             f"{DEFAULT_BINS:g} FFT bins (default %(default)g; widen for a dongle still warming up)")
+
+
+def _offset(hz: float) -> str:
+    return f"{hz:+.0f} Hz"
+
+
+def signal_differences(readings, *, drift_ppm: float = DEFAULT_PPM) -> tuple[SameSignal, list[str]]:
+    """Which readings are not of the same signal as the others (:func:`dsp.same_signal.same_signal`),
+    and one sentence per such capture naming it, the reference capture and both tone offsets.
+
+    The tolerance is 3 bins plus ``drift_ppm`` of the centre frequency (of the tone's own frequency
+    for real captures; left out where the centre is unknown).
+    """
+    if not (math.isfinite(drift_ppm) and drift_ppm >= 0):
+        raise UsageError(f"--drift-ppm must be a finite number >= 0, got {drift_ppm}")
+    readings = list(readings)
+    offsets = [None if r.tone is None else r.tone.offset_hz for r in readings]
+    first = readings[0]
+    bin_hz = max(r.psd.bin_width_hz for r in readings)
+    if first.capture.is_complex:
+        ref_hz = first.capture.center_hz
+    else:
+        ref_hz = max((abs(o) for o in offsets if o is not None), default=None)
+    check = same_signal(offsets, bin_hz, ref_hz, dc_halfwidth_hz=max(r.floor.dc_halfwidth_hz for r in readings),
+                        ppm=drift_ppm)
+    ref = None if check.reference is None else readings[check.reference]
+    named = "" if ref is None else f"the signal of {ref.capture.path.name} at {_offset(ref.tone.offset_hz)}"
+    problems = {}
+    for i in check.absent:
+        r = readings[i]
+        try:
+            strongest = f"; its strongest peak is at {_offset(measure_tone(r.psd, r.floor).offset_hz)}"
+        except ValueError:
+            strongest = ""
+        near = "" if ref is None else f" near {_offset(ref.tone.offset_hz)}, {named}"
+        problems[i] = f"{r.capture.path.name}: no tone{near}{strongest}"
+    for i in check.on_dc:
+        r = readings[i]
+        problems[i] = f"{r.capture.path.name}: its tone at {_offset(r.tone.offset_hz)} is the DC spike" + \
+            ("" if ref is None else f", not {named}")
+    for i, diff in check.disagree:
+        r = readings[i]
+        problems[i] = (f"{r.capture.path.name}: tone at {_offset(r.tone.offset_hz)} is not {named} "
+                       f"({abs(diff):.0f} Hz apart; tolerance {check.tolerance_hz:.0f} Hz = {DEFAULT_BINS:g} bins "
+                       f"+ {drift_ppm:g} ppm)")
+    return check, [problems[i] for i in sorted(problems)]
+
+
+def require_same_signal(readings, *, drift_ppm: float = DEFAULT_PPM) -> None:
+    """Refuse compared readings whose tones are not one signal (:func:`signal_differences`) with a
+    MeasurementError naming each such capture, the reference capture and their offsets."""
+    _, problems = signal_differences(readings, drift_ppm=drift_ppm)
+    if problems:
+        raise MeasurementError("; ".join(problems) + ": compared captures must hold the same signal "
+                               "(a dongle still warming up drifts more: widen with --drift-ppm)")
+
+
+def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = None,
+               drift_ppm: float = DEFAULT_PPM):
+    """Read the tone of every capture alike (one FFT length, the tone of the first capture), and
+    refuse captures that are not the same signal (:func:`require_same_signal`).
 
     Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
     """
@@ -288,6 +353,7 @@ def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = 
         raise MeasurementError(f"{captures[0].path}: no tone found above the noise{where}")
     near = first.tone.offset_hz
     readings = [first] + [read(cap, near) for cap in captures[1:]]
+    require_same_signal(readings, drift_ppm=drift_ppm)
     for r in readings:
         warnings.extend(r.warnings)
     return readings, warnings

@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.analyze import read_tones, tone_db
+from rxbench.analyze import add_drift_option, read_tones, tone_db
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, step_capture_from_args
@@ -34,6 +34,7 @@ def add_parser(sub) -> None:
                    help="reference the errors to this step instead of the median of the linear steps")
     p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
+    add_drift_option(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
@@ -59,7 +60,8 @@ def run(args: argparse.Namespace) -> int:
     dbs = [db for db, _ in steps]
     if len(set(dbs)) != len(dbs):
         raise UsageError(f"--step: each attenuator setting may appear once, got {dbs}")
-    readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg)
+    readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg,
+                                    drift_ppm=args.drift_ppm)
     values = [tone_db(r) for r in readings]
     try:
         c = check_ladder(dbs, [v[0] for v in values], [v[1] for v in values], tolerance_db=args.tolerance_db,

@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 
-from rxbench.analyze import SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
+from rxbench.analyze import add_drift_option, SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args, step_capture_from_args
@@ -58,6 +58,7 @@ def add_parser(sub) -> None:
     g.add_argument("--budget", action="store_true", help="print the uncertainty budget")
     p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
+    add_drift_option(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
@@ -248,7 +249,8 @@ def run(args: argparse.Namespace) -> int:
     method = _check_options(args)
     if method == "direct":
         captures = [capture_from_args(p, args) for p in (*args.thru, *args.dut, *args.thru_after)]
-        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg)
+        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
+                                        drift_ppm=args.drift_ppm)
         loss, detail, rows = _direct(args, readings, len(args.thru), len(args.dut), warnings)
     else:
         steps = [step_capture_from_args(s, args) for s in args.step]
@@ -258,7 +260,8 @@ def run(args: argparse.Namespace) -> int:
         order = np.argsort(dbs)
         dbs = [dbs[i] for i in order]
         captures = [steps[i][1] for i in order] + [capture_from_args(p, args) for p in args.dut]
-        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg)
+        readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
+                                        drift_ppm=args.drift_ppm)
         loss, detail, rows = _substitution(args, readings, dbs, len(args.dut), warnings)
 
     U = loss.expanded_uncertainty_db

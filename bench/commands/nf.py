@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_capture
+from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_capture, require_same_signal
 from rxbench.enr import read_enr_table
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import add_json_option, emit, fmt_db
@@ -314,6 +314,7 @@ def _gain_method(args, warnings: list[str]) -> dict:
     warnings.extend(r.warnings)
     if r.tone is None or not r.tone.power > 0:
         raise MeasurementError(f"{cap.path}: no tone found above the noise; the gain method needs one")
+    require_same_signal([r])  # one capture: its tone must not be the DC spike
     t = r.tone
     nf_db = float(nfm.nf_gain_method_db(args.level_dbm, t.cn0_dbhz))
     u_n0_db = 10.0 / np.log(10.0) * r.floor.u_density / r.floor.density
