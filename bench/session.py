@@ -35,12 +35,13 @@ import numpy as np
 
 from rxbench import keys
 from rxbench.analyze import (CENTER_TOLERANCE_HZ, SWR_FROM_PLAN, Reading, capture_start_s, mismatch_budget,
-                           pool_tones, read_capture, setup_difference, tone_dict)
+                           pool_tones, read_capture, setup_difference, signal_differences, tone_dict)
 from rxbench.errors import CaptureError, RxbenchError, UsageError
 from rxbench.recordings import META_SUFFIX, Capture, open_capture
 from rxbench.dsp import environment as env
 from rxbench.dsp import ladder as ladder_mod
 from rxbench.dsp import noisefig
+from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 
@@ -288,6 +289,18 @@ def _compatible(entries: list[Entry], ref: Entry, what: str, warnings: list[str]
     return keep
 
 
+def _same_signal(entries: list[Entry], readings, where: str, warnings: list[str], drift_ppm: float) -> list[Entry]:
+    """Leave out, with a warning, the entries whose tone is not the signal the others hold
+    (:func:`analyze.signal_differences`); entries without a tone are left to the caller."""
+    toned = [e for e in entries if readings[e].tone is not None]
+    if not toned:
+        return entries
+    check, problems = signal_differences([readings[e] for e in toned], drift_ppm=drift_ppm)
+    warnings.extend(f"{where}: left out {p}" for p in problems)
+    out = {toned[i] for i in check.rejected}
+    return [e for e in entries if e not in out]
+
+
 def _center_key(center_hz: float | None):
     return None if center_hz is None else round(center_hz / CENTER_TOLERANCE_HZ) * CENTER_TOLERANCE_HZ
 
@@ -513,9 +526,10 @@ def _linear_between(ladder: dict | None, low_dbfs: float, high_dbfs: float) -> b
     return min(lin) <= low_dbfs + 1.0 and high_dbfs - 1.0 <= max(lin)
 
 
-def _tone_losses(center, group: list[Entry], readings, analysis: Analysis) -> None:
+def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift_ppm: float) -> None:
     warnings = analysis.warnings
     where = f"loss at {_mhz(center)}"
+    group = _same_signal(group, readings, where, warnings, drift_ppm)
     steps = [e for e in group if e.role == "step"]
     ladder, pooled_ladder = _ladder(center, steps, readings, warnings) if steps else (None, {})
     if ladder is not None:
@@ -992,7 +1006,8 @@ def _capture_dict(e: Entry, r: Reading | None, error: str | None) -> dict:
     return out
 
 
-def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, progress=None) -> Analysis:
+def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_ppm: float = DEFAULT_PPM,
+                    progress=None) -> Analysis:
     """Read every capture of ``session`` once and run every method its roles support.
 
     Parameters
@@ -1000,6 +1015,9 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, progres
     session : Session
     n_sub_bands : int
         Sub-bands per tuning for the noise-source curves.
+    drift_ppm : float
+        How far the tone may move between captures of one loss or ladder, ppm of the centre frequency
+        on top of 3 bins; a capture whose tone lies farther off is left out with a warning.
     progress : callable, optional
         Called as ``progress(i, n, name)`` before each capture is read.
 
@@ -1029,7 +1047,7 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, progres
     readable = [e for e in session.entries if e in a.readings]
 
     for center, group in _groups(readable, TONE_ROLES).items():
-        _tone_losses(center, group, a.readings, a)
+        _tone_losses(center, group, a.readings, a, drift_ppm)
     for center, group in _groups(readable, ("hot", "cold")).items():
         res = _noise_source(center, group, a.readings, a, n_sub_bands)
         if res is not None:

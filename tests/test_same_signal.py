@@ -160,3 +160,36 @@ def test_gain_method_refuses_a_tone_on_the_dc_spike(tmp_path, capsys):
     code, out, err = _run(capsys, "nf", "--tone", path, "--level-dbm", "-100")
     assert code == 2 and out == "" and err.count("\n") == 1
     assert "tone.sigmf-meta" in err and "DC spike" in err
+
+
+# --------------------------------------------------------------------------------------------
+# The session leaves the odd capture out, with a warning, and measures with the rest
+
+
+def _session_capture(folder, name, rng, *, role, offset_hz, level_dbfs, time_s):
+    x = synth.thermal_noise(N, FS, 290.0, rng) + synth.tone(
+        N, FS, power_w=w_from_dbm(level_dbfs - DONGLE.gain_db), offset_hz=offset_hz,
+        phase_rad=rng.uniform(0, 2 * np.pi))
+    when = f"2026-03-01T10:00:{time_s:02d}Z"
+    write_sigmf(folder / name, DONGLE.receive_cu8(x, FS, rng), sample_rate_hz=FS, center_hz=CENTER_HZ,
+                datatype="cu8", extra={"role": role}, datetime=when)
+
+
+def test_session_leaves_out_a_capture_of_another_signal(tmp_path, capsys):
+    from rxbench import session as sess
+
+    rng = np.random.default_rng(1207)
+    _session_capture(tmp_path, "01-thru", rng, role="thru", offset_hz=25e3, level_dbfs=-25.0, time_s=0)
+    _session_capture(tmp_path, "02-dut", rng, role="dut", offset_hz=25e3, level_dbfs=-28.0, time_s=10)
+    _session_capture(tmp_path, "03-thru", rng, role="thru", offset_hz=31e3, level_dbfs=-25.0, time_s=20)
+    a = sess.analyze_session(sess.open_session(tmp_path))
+    left_out = [w for w in a.warnings if "left out 03-thru.sigmf-meta: tone at +31000 Hz is not the signal" in w]
+    assert len(left_out) == 1 and "01-thru.sigmf-meta at +25000 Hz" in left_out[0]
+    (loss,) = a.losses
+    assert loss["captures"]["thru"] == ["01-thru"] and not loss["captures"].get("thru_after")
+    assert loss["insertion_loss_db"] == pytest.approx(3.0, abs=0.3)
+    # widening the ppm term far enough (6 kHz of 144.3 MHz is 42 ppm) takes the capture back in
+    a = sess.analyze_session(sess.open_session(tmp_path), drift_ppm=50.0)
+    assert not any("not the signal" in w for w in a.warnings)
+    code = main(["analyze", str(tmp_path), "--drift-ppm", "-3"])
+    assert code == 2 and "--drift-ppm" in capsys.readouterr().err
