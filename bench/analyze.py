@@ -24,8 +24,8 @@ from rxbench.dsp.units import db_from_power
 DEFAULT_NPERSEG = 4096
 MIN_NPERSEG = 256
 MIN_SEGMENTS = 4 * N_BATCHES
-#: Clip fraction above which a capture is called clipped.
-CLIP_WARN_FRACTION = 1e-5
+#: Samples at a rail below this fraction are a note (a few spikes); from it up, clipping that compresses.
+CLIP_NOTE_BELOW = 1e-4
 #: Captures compared with each other must agree in sample rate to this fraction...
 RATE_TOLERANCE = 1e-6
 #: ...and in centre frequency to this many hertz.
@@ -78,7 +78,7 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
         raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
     acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex,
                          expected_samples=capture.n_samples)
-    health = HealthAccumulator(capture.clip_level)
+    health = HealthAccumulator(capture.clip_level, capture.float_samples)
     done = 0
     for block in capture.blocks():
         health.update(block)
@@ -110,11 +110,7 @@ def read_capture(
     psd, health = accumulate(capture, nperseg, progress=progress)
     warnings: list[str] = []
     name = capture.path.name
-    if health.clip_fraction > CLIP_WARN_FRACTION:
-        warnings.append(
-            f"{name}: {100 * health.clip_fraction:.3g} % of samples at the rails (clipping): "
-            "readings are compressed; add attenuation or lower the gain"
-        )
+    warnings.extend(health_warnings(name, health))
     try:
         floor = noise_floor(psd, dc_halfwidth_hz=None if capture.is_complex else 0.0)
     except ValueError as exc:
@@ -130,6 +126,27 @@ def read_capture(
         if tone is not None:
             warnings.extend(_tone_warnings(name, psd, floor, tone))
     return Reading(capture, psd, floor, tone, health, warnings)
+
+
+def health_warnings(name: str, health: Health,
+                    effect: str = "readings are compressed; add attenuation or lower the gain") -> list[str]:
+    """What a capture's health says about its readings: float data not normalised to full scale (with
+    its peak, and the full scale the dBFS figures take), and samples at a rail value: a note with the
+    count below :data:`CLIP_NOTE_BELOW` of the samples, else clipping with ``effect``."""
+    out = []
+    if not health.normalised:
+        out.append(f"{name}: float samples reach {health.peak_magnitude:.4g}, beyond +/-1: not normalised to "
+                   f"full scale (raw converter counts?); dBFS figures take 1.0 as full scale, "
+                   f"{health.peak_dbfs:.1f} dB below the peak")
+    if health.n_clipped:
+        at = "at the rails" if health.normalised else \
+            f"piled up at the peak magnitude {health.peak_magnitude:.4g} (a converter's rail)"
+        if health.clip_fraction < CLIP_NOTE_BELOW:
+            out.append(f"{name}: note: {health.n_clipped} of {health.n_samples} samples {at}: too few to "
+                       "compress the readings")
+        else:
+            out.append(f"{name}: {100 * health.clip_fraction:.3g} % of samples {at} (clipping): {effect}")
+    return out
 
 
 def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[str]:

@@ -66,6 +66,8 @@ ENCODINGS: dict[str, Encoding] = {
     "ri16_le": Encoding("<i2", False, 0.0, 32768.0, 32767 / 32768),
     "rf32_le": Encoding("<f4", False, 0.0, 1.0, 1.0),
 }
+#: Datatypes whose samples are floats (``audio-float``: a WAV/FLAC of float samples).
+FLOAT_DATATYPES = ("cf32_le", "rf32_le", "audio-float")
 #: Raw-file ``--format`` names and the SigMF datatype each stands for.
 RAW_FORMATS = {"cu8": "cu8", "cs8": "ci8", "cs16": "ci16_le", "cf32": "cf32_le"}
 
@@ -110,7 +112,8 @@ class Capture:
     n_samples : int
     is_complex : bool
     datatype : str
-        The SigMF datatype of the stored samples (``cu8``, ``ci16_le``, ...; ``audio`` for soundfile).
+        The SigMF datatype of the stored samples (``cu8``, ``ci16_le``, ...; ``audio`` for soundfile,
+        ``audio-float`` for float audio files).
     clip_level : float
         Per-rail magnitude at which a sample sits on a rail.
     datetime : str or None
@@ -130,6 +133,11 @@ class Capture:
     datetime: str | None = None
     extra: Mapping = field(default_factory=dict)
     _reader: Callable[[int], Iterator[np.ndarray]] | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def float_samples(self) -> bool:
+        """Stored as floats: no rails of their own, and possibly not normalised to +/-1."""
+        return self.datatype in FLOAT_DATATYPES
 
     @property
     def duration_s(self) -> float:
@@ -324,8 +332,9 @@ def open_audio(path: Path, center_hz: float | None = None) -> Capture:
                 else:
                     yield data[:, 0].copy()
 
+    datatype = "audio-float" if info.subtype in ("FLOAT", "DOUBLE") else "audio"
     return Capture(path, float(info.samplerate), center_hz, int(info.frames), is_complex,
-                   "audio", clip, None, {}, reader)
+                   datatype, clip, None, {}, reader)
 
 
 def open_capture(path, *, fmt: str | None = None, rate_hz: float | None = None,

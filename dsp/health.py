@@ -1,4 +1,18 @@
-"""Capture health: clip fraction, DC offset, mean power, and non-finite samples, in one streaming pass."""
+"""Capture health: samples at a rail value, the peak magnitude, DC offset, mean power and non-finite
+samples, in one streaming pass.
+
+Notes
+-----
+A rail is a value the samples cannot go beyond. Integer samples have theirs in the format (the
+extreme codes, e.g. 0 and 255 for cu8), given here as ``clip_level``. Float samples have none in the
+format: when normalised (peak magnitude at most 1) the rails are full scale, +/-1; when they go
+beyond +/-1 (raw converter counts written as float, say) the data is "not normalised to full scale",
+and the only rail there can be is the peak magnitude itself, counted as one when at least
+:data:`PILEUP_MIN_SAMPLES` samples sit exactly on it. Continuous-valued samples reach their largest
+magnitude once; quantised noise reaches its extreme code a few times; a rail collects the whole
+tail of the distribution beyond it (common practice: clipping shows as a pile-up at the extreme
+value of a histogram).
+"""
 
 from __future__ import annotations
 
@@ -8,29 +22,75 @@ import numpy as np
 
 from rxbench.dsp.parallel import InOrder
 
+#: Samples sitting exactly on the peak magnitude of un-normalised float data from which that peak
+#: counts as a rail (a pile-up), not as the largest of many different values.
+PILEUP_MIN_SAMPLES = 8
+#: Relative margin below a rail value within which a sample counts as on it.
+_RAIL_MARGIN = 1e-6
+
 
 @dataclass(frozen=True)
 class Health:
-    """Health of a capture. ``clip_fraction`` counts samples with either rail at full scale."""
+    """Health of a capture.
+
+    Attributes
+    ----------
+    n_samples : int
+    clip_fraction : float
+        Fraction of samples with either rail at a rail value (see the module notes).
+    dc_offset : complex
+        Mean of the samples, full-scale units.
+    power : float
+        Mean power, FS**2.
+    n_nonfinite : int
+        NaN or infinite samples (left out of everything else).
+    n_clipped : int
+        Samples with either rail at a rail value.
+    peak_magnitude : float
+        Largest magnitude of any rail, full-scale units (beyond 1: not normalised).
+    float_samples : bool
+        The samples were stored as floats (no rails of their own).
+    """
 
     n_samples: int
     clip_fraction: float
     dc_offset: complex
     power: float
     n_nonfinite: int
+    n_clipped: int = 0
+    peak_magnitude: float = 0.0
+    float_samples: bool = False
 
     @property
     def dc_offset_dbfs(self) -> float:
         m = abs(self.dc_offset) ** 2
         return float(10 * np.log10(m)) if m > 0 else float("-inf")
 
+    @property
+    def normalised(self) -> bool:
+        """False for float samples that go beyond +/-1 full scale."""
+        return not (self.float_samples and self.peak_magnitude > 1.0 + _RAIL_MARGIN)
+
+    @property
+    def peak_dbfs(self) -> float:
+        """Peak magnitude, dB relative to full scale (1.0) as an amplitude."""
+        return float(20 * np.log10(self.peak_magnitude)) if self.peak_magnitude > 0 else float("-inf")
+
 
 #: Blocks smaller than this are measured at once rather than handed to a worker thread.
 _INLINE_BELOW = 1 << 16
 
 
-def _block_statistics(x: np.ndarray, clip_level: float) -> tuple[int, int, complex, float, int]:
-    """(samples, clipped samples, sum, sum of |x|^2, non-finite samples) of one block."""
+def _count_at(rails: np.ndarray, level: float, complex_: bool) -> int:
+    """Samples with either rail at magnitude >= ``level``."""
+    at = np.abs(rails) >= level
+    return int(np.count_nonzero(at[0::2] | at[1::2] if complex_ else at))
+
+
+def _block_statistics(x: np.ndarray, clip_level: float, float_samples: bool):
+    """(samples, samples at the clip level, sum, sum of |x|^2, non-finite samples, peak magnitude,
+    samples at the peak magnitude) of one block; the last is counted only for float samples beyond
+    full scale (else 0)."""
     total = complex(x.sum())  # pairwise summation, in the block's own precision
     power = float(np.vdot(x, x).real)
     nonfinite = 0
@@ -41,12 +101,17 @@ def _block_statistics(x: np.ndarray, clip_level: float) -> tuple[int, int, compl
         x = x[finite]
         total = complex(x.sum(dtype=np.complex128 if np.iscomplexobj(x) else np.float64))
         power = float(np.vdot(x, x).real)
-    clipped = 0
-    rails = x.view(x.real.dtype) if np.iscomplexobj(x) else x
-    if rails.size and max(-rails.min(), rails.max()) >= clip_level:  # two fast reductions
-        at_rail = np.abs(rails) >= clip_level
-        clipped = int(np.count_nonzero(at_rail[0::2] | at_rail[1::2] if np.iscomplexobj(x) else at_rail))
-    return x.size, clipped, total, power, nonfinite
+    clipped = at_peak = 0
+    peak = 0.0
+    is_complex = np.iscomplexobj(x)
+    rails = x.view(x.real.dtype) if is_complex else x
+    if rails.size:
+        peak = float(max(-rails.min(), rails.max()))  # two fast reductions
+        if peak >= clip_level:
+            clipped = _count_at(rails, clip_level, is_complex)
+            if float_samples and peak > 1.0 + _RAIL_MARGIN:
+                at_peak = _count_at(rails, peak, is_complex)
+    return x.size, clipped, total, power, nonfinite, peak, at_peak
 
 
 class HealthAccumulator:
@@ -55,40 +120,59 @@ class HealthAccumulator:
     Parameters
     ----------
     clip_level : float
-        Smallest magnitude, per rail, at which a sample counts as clipped (e.g. 127/128 for cs8).
+        Smallest magnitude, per rail, at which a sample counts as clipped (e.g. 127/128 for cs8; 1.0,
+        full scale, for float samples).
+    float_samples : bool
+        The samples were stored as floats: beyond +/-1 they are un-normalised, and only a pile-up at
+        the peak magnitude counts as a rail (see the module notes).
     """
 
-    def __init__(self, clip_level: float = 1.0):
+    def __init__(self, clip_level: float = 1.0, float_samples: bool = False):
         if not clip_level > 0:
             raise ValueError(f"{clip_level=} must be positive")
-        self.clip_level = float(clip_level) * (1 - 1e-6)
+        self.clip_level = float(clip_level) * (1 - _RAIL_MARGIN)
+        self.float_samples = bool(float_samples)
         self._n = 0
         self._clipped = 0
         self._sum = 0j
         self._power = 0.0
         self._nonfinite = 0
+        self._peak = 0.0
+        self._at_peak = 0
         self._work = InOrder()
 
     def update(self, block) -> None:
         """Add a block (its statistics are taken on a worker thread when it is large)."""
         x = np.asarray(block)
-        self._work.submit(self._absorb, _block_statistics, x, self.clip_level, inline=x.size < _INLINE_BELOW)
+        self._work.submit(self._absorb, _block_statistics, x, self.clip_level, self.float_samples,
+                          inline=x.size < _INLINE_BELOW)
 
-    def _absorb(self, stats: tuple[int, int, complex, float, int]) -> None:
-        n, clipped, total, power, nonfinite = stats
+    def _absorb(self, stats) -> None:
+        n, clipped, total, power, nonfinite, peak, at_peak = stats
         self._n += n
         self._clipped += clipped
         self._sum += total
         self._power += power
         self._nonfinite += nonfinite
+        if peak > self._peak:
+            self._peak, self._at_peak = peak, at_peak
+        elif peak == self._peak:
+            self._at_peak += at_peak
 
     def result(self) -> Health:
         self._work.drain()
         n = max(self._n, 1)
+        clipped = self._clipped
+        if self.float_samples and self._peak > 1.0 + _RAIL_MARGIN:
+            # Un-normalised float data: no rail at full scale; the peak is one only if samples pile up there.
+            clipped = self._at_peak if self._at_peak >= PILEUP_MIN_SAMPLES else 0
         return Health(
             n_samples=self._n,
-            clip_fraction=self._clipped / n,
+            clip_fraction=clipped / n,
             dc_offset=self._sum / n,
             power=self._power / n,
             n_nonfinite=self._nonfinite,
+            n_clipped=clipped,
+            peak_magnitude=self._peak,
+            float_samples=self.float_samples,
         )

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, require_comparable
+from rxbench.analyze import accumulate, choose_nperseg, health_warnings, require_comparable
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, atomic_path, capture_from_args
@@ -437,9 +437,7 @@ def run(args: argparse.Namespace) -> int:
     for caps, psds in ((caps_a, psds_a), (caps_b, psds_b)):
         for cap in caps:
             spectrum, health = accumulate(cap, nperseg)
-            if health.clip_fraction > CLIP_WARN_FRACTION:
-                warnings.append(f"{cap.path.name}: {100 * health.clip_fraction:.3g} % of samples at the rails "
-                                "(clipping): readings are compressed; lower the gain")
+            warnings += health_warnings(cap.path.name, health, "readings are compressed; lower the gain")
             psds.append(spectrum)
 
     center = next((c.center_hz for c in caps_a + caps_b if c.center_hz is not None), None)

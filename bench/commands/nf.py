@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.analyze import CLIP_WARN_FRACTION, accumulate, choose_nperseg, read_capture, require_same_signal
+from rxbench.analyze import accumulate, choose_nperseg, health_warnings, read_capture, require_same_signal
 from rxbench.enr import read_enr_table
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import add_json_option, emit, fmt_db
@@ -176,12 +176,9 @@ def _enr_source(args, groups):
 def _group_warnings(g: _Group, healths) -> list[str]:
     out = []
     for role, cap in g.captures:
-        clip = healths[id(cap)].clip_fraction
-        if clip > CLIP_WARN_FRACTION:
-            effect = ("the hot reading, Y and the noise figure are wrong (NF reads high)" if role.startswith("hot")
-                      else "its reading is compressed")
-            out.append(f"{cap.path.name} ({role}) clips: {100 * clip:.3g} % of samples at the rails; {effect}; "
-                       "lower the dongle's gain")
+        effect = ("the hot reading, Y and the noise figure are wrong (NF reads high)" if role.startswith("hot")
+                  else "its reading is compressed")
+        out += health_warnings(f"{cap.path.name} ({role})", healths[id(cap)], f"{effect}; lower the dongle's gain")
     ra, a = "cold", g.cold[0]  # every other capture of the group is compared with this one
     for rb, b in g.captures[1:]:
         if a.sample_rate_hz != b.sample_rate_hz:

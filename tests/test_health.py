@@ -1,0 +1,141 @@
+"""Data the way it really arrives: float data not normalised to full scale, clipping only at rail values,
+a handful of rail samples as a note (dsp/health.py and its warnings).
+
+The generators are invented (closed-form truth): Gaussian noise and a tone written as float in raw
+converter counts (12-bit, values up to about two thousand), the same clipped at the converter's rails
+(+/-2047, the extreme codes of a 12-bit signed converter: a fact of the format), and a cu8 capture with
+exactly three samples forced to the codes 0 and 255 (cu8's rails: a fact of the format).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from rxbench.analyze import CLIP_NOTE_BELOW, health_warnings, read_capture
+from rxbench.cli import main
+from rxbench.recordings import memory_capture, write_sigmf
+from rxbench.dsp.health import PILEUP_MIN_SAMPLES, HealthAccumulator
+
+FS = 250e3
+N = 1 << 17  # 131 072 samples, as in the case that was overstated
+
+
+def _counts(rng, n=N, rms=600.0, tone=1500.0, offset_hz=21e3):
+    """Complex samples in converter counts: a tone of amplitude ``tone`` counts in Gaussian noise."""
+    t = np.arange(n) / FS
+    x = tone * np.exp(2j * np.pi * offset_hz * t + 1j * rng.uniform(0, 2 * np.pi))
+    x = x + rms / np.sqrt(2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    return x.astype(np.complex64)
+
+
+def _rails_clipped(x, rail):
+    return (np.clip(x.real, -rail, rail) + 1j * np.clip(x.imag, -rail, rail)).astype(np.complex64)
+
+
+def _health(x, clip_level=1.0, float_samples=True, blocks=4):
+    acc = HealthAccumulator(clip_level, float_samples)
+    for part in np.array_split(x, blocks):
+        acc.update(part)
+    return acc.result()
+
+
+# --------------------------------------------------------------------------------------------
+# The numerics
+
+
+def test_unnormalised_float_is_not_clipping(rng):
+    x = _counts(rng)
+    h = _health(x)
+    assert not h.normalised and h.n_clipped == 0 and h.clip_fraction == 0.0
+    # the peak is the largest rail magnitude, exactly
+    assert h.peak_magnitude == pytest.approx(float(np.max(np.abs(x.view(np.float32)))), rel=0)
+    # the old rule (|rail| >= 1 is clipping) called nearly every sample clipped
+    assert np.mean(np.abs(x.view(np.float32)) >= 1.0) > 0.99
+
+
+def test_unnormalised_float_clipped_at_a_rail_is_clipping(rng):
+    x = _rails_clipped(_counts(rng, rms=900.0), 2047.0)
+    expected = int(np.count_nonzero((np.abs(x.real) >= 2047) | (np.abs(x.imag) >= 2047)))
+    assert expected > 100 * PILEUP_MIN_SAMPLES
+    h = _health(x, blocks=7)  # the pile-up is counted across blocks
+    assert not h.normalised and h.peak_magnitude == 2047.0 and h.n_clipped == expected
+
+
+def test_normalised_float_and_integer_rails_unchanged(rng):
+    x = _counts(rng) / np.float32(4096)
+    h = _health(x)
+    assert h.normalised and h.n_clipped == 0 and h.peak_magnitude < 1
+    y = _rails_clipped(x * np.float32(3), 1.0)  # clipped at full scale, as a float pipeline would
+    h = _health(y)
+    assert h.normalised and h.n_clipped == int(np.count_nonzero((np.abs(y.real) >= 1) | (np.abs(y.imag) >= 1)))
+    # integer data (float_samples False) keeps its rails at the format's extreme codes
+    h = _health(y, clip_level=127 / 128, float_samples=False)
+    assert h.n_clipped > 0 and h.normalised
+
+
+# --------------------------------------------------------------------------------------------
+# The warnings and the commands
+
+
+def test_warnings_name_the_peak_and_the_full_scale_taken(rng):
+    r = read_capture(memory_capture(_counts(rng), FS, name="counts.cf32"))
+    text = " | ".join(r.warnings)
+    assert "not normalised to full scale" in text and "clipping" not in text and "at the rails" not in text
+    peak = r.health.peak_magnitude
+    assert f"{peak:.4g}" in text and "dBFS figures take 1.0 as full scale" in text
+    assert f"{20 * np.log10(peak):.1f} dB below the peak" in text
+    # a tone of 1500 counts reads 20 log10(1500) dBFS with 1.0 taken as full scale
+    assert r.tone.power_dbfs == pytest.approx(20 * np.log10(1500.0), abs=0.1)
+    clipped = read_capture(memory_capture(_rails_clipped(_counts(rng, rms=900.0), 2047.0), FS, name="c.cf32"))
+    text = " | ".join(clipped.warnings)
+    assert "not normalised" in text and "piled up at the peak magnitude 2047" in text and "(clipping)" in text
+
+
+def _cu8_with_rail_samples(tmp_path, rng, n_rail):
+    """A cu8 capture (noise about 20 codes rms around 127.5, a tone) with exactly ``n_rail`` samples at codes
+    0 or 255."""
+    x = _counts(rng, rms=20.0, tone=30.0) + np.complex64(127.5 + 127.5j)
+    codes = np.clip(np.rint(x.view(np.float32)), 1, 254).astype(np.uint8)
+    where = rng.choice(N, size=n_rail, replace=False)
+    codes[2 * where] = rng.choice([0, 255], size=n_rail).astype(np.uint8)
+    return str(write_sigmf(tmp_path / f"rails{n_rail}", codes, sample_rate_hz=FS, center_hz=50.2e6, datatype="cu8"))
+
+
+def test_a_handful_of_rail_samples_is_a_note(tmp_path, rng, capsys):
+    path = _cu8_with_rail_samples(tmp_path, rng, 3)
+    assert main(["inspect", path, "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["clip_fraction"] == pytest.approx(3 / N)
+    notes = [w for w in out["warnings"] if "at the rails" in w]
+    assert len(notes) == 1 and "note: 3 of 131072 samples at the rails" in notes[0]
+    assert "compressed" not in notes[0]
+
+
+def test_many_rail_samples_are_clipping(tmp_path, rng, capsys):
+    n = int(3 * CLIP_NOTE_BELOW * N)
+    path = _cu8_with_rail_samples(tmp_path, rng, n)
+    assert main(["inspect", path, "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["clip_fraction"] == pytest.approx(n / N)
+    assert any("(clipping): readings are compressed" in w for w in out["warnings"])
+
+
+def test_unnormalised_float_file_through_inspect(tmp_path, rng, capsys):
+    x = _counts(rng)
+    path = write_sigmf(tmp_path / "counts", x, sample_rate_hz=FS, center_hz=7.1e6, datatype="cf32_le")
+    assert main(["inspect", str(path), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["clip_fraction"] == 0.0
+    assert any("not normalised to full scale" in w for w in out["warnings"])
+
+
+def test_health_warnings_effect_text():
+    from rxbench.dsp.health import Health
+
+    h = Health(n_samples=1000, clip_fraction=0.01, dc_offset=0j, power=0.1, n_nonfinite=0, n_clipped=10,
+               peak_magnitude=1.0)
+    (w,) = health_warnings("x", h, "the hot reading is wrong")
+    assert w == "x: 1 % of samples at the rails (clipping): the hot reading is wrong"
