@@ -23,6 +23,7 @@ import datetime as _dt
 import math
 import os
 import sys
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Sequence, TextIO
@@ -87,6 +88,49 @@ def check_levels(plan: Plan, *, force: bool = False) -> list[str]:
     return warnings
 
 
+def check_bias_tee(plan: Plan, *, force: bool = False) -> list[str]:
+    """The bias-tee guard: with ``[dongle] bias_tee`` on, DC (about 4.5-5 V, from memory, common
+    practice) sits on the dongle's input. A generator's output, a noise source, a 50-ohm load or a
+    DUT (a transformer shorts it, a filter may not like it) is refused unless ``force``; only an
+    antenna step (an active antenna or a masthead amplifier that wants the DC) is let through."""
+    if not plan.dongle.bias_tee:
+        return []
+    exposed = [s.name for s in plan.steps if s.role != "antenna" or s.with_dut]
+    if not exposed:
+        return []
+    msg = (f"bias tee ON with a generator, noise source, load or DUT on the input (steps "
+           f"{', '.join(exposed)}): its DC would flow into them (a transformer DUT shorts it; a generator "
+           "output can be damaged)")
+    if not force:
+        raise UsageError(f"{plan.source}: {msg}. Set [dongle] bias_tee = false, or add a DC block and use "
+                         "--force")
+    return [msg + " (forced: put a DC block in front of them)"]
+
+
+def drift_partners(plan: Plan) -> dict[str, list[str]]:
+    """For each step a drift correction depends on, the steps that must be captured with it.
+
+    A ladder step re-read after the DUT (the same attenuation and centre frequency, later in the
+    plan) bounds the generator's drift between the ladder and the DUT only when it really is
+    captured after the DUT: capturing the DUT (or the earlier reading) again puts it after its
+    re-read, so the re-read must be captured again too.
+    """
+    steps = plan.steps
+    out: dict[str, list[str]] = {}
+    for i, dut in enumerate(steps):
+        if dut.role != "dut":
+            continue
+        before = {(s.attenuation_db, s.center_hz): s.name for s in steps[:i] if s.role == "step"}
+        for later in steps[i + 1:]:
+            key = (later.attenuation_db, later.center_hz)
+            if later.role == "step" and key in before:
+                for name in (dut.name, before[key]):
+                    out.setdefault(name, [])
+                    if later.name not in out[name]:
+                        out[name].append(later.name)
+    return out
+
+
 def stdin_prompt(message: str) -> str:
     """Show ``message`` on stderr and read one line from stdin (EOF -> UsageError)."""
     sys.stderr.write(message)
@@ -112,6 +156,7 @@ class SessionRun:
     partial: Path | None = None
     stopped: bool = False
     warnings: list[str] = field(default_factory=list)
+    checks: list = field(default_factory=list)  # bench.check.CaptureCheck of each capture written
 
 
 class _Log:
@@ -218,6 +263,7 @@ def run_session(
     redo: Sequence[str] = (),
     progress: TextIO | None = None,
     prompt: Callable[[str], str] | None = None,
+    check: bool = True,
 ) -> SessionRun:
     """Run ``plan`` into the session folder ``session_dir``: what was written, kept, skipped, replaced.
 
@@ -241,6 +287,10 @@ def run_session(
         Where progress goes (stderr from the command line); None for silence.
     prompt : callable, optional
         Asks the operator (message -> reply); default reads stdin, prompting on stderr.
+    check : bool
+        Read every capture once it is written and check it against the plan (:mod:`bench.check`);
+        a failed check is warned about, offered for capturing again, and with ``[check]
+        stop_on_failure`` stops an unattended run.
 
     Raises
     ------
@@ -251,20 +301,65 @@ def run_session(
     """
     for name in redo:
         plan.step_named(name)  # PlanError naming the plan for an unknown step
-    warnings = list(plan.warnings) + check_levels(plan, force=force)
+    warnings = list(plan.warnings) + check_levels(plan, force=force) + check_bias_tee(plan, force=force)
+    redo = _with_drift_partners(plan, redo, yes=yes, ask=prompt or stdin_prompt, warnings=warnings)
     device.open()
     try:
         session = prepare_session(plan, session_dir)
         run = SessionRun(session, warnings=warnings)
         _run_captures(plan, session, device, run, yes=yes, redo=redo, show=Progress(progress),
-                      ask=prompt or stdin_prompt)
+                      ask=prompt or stdin_prompt, check=check)
     finally:
         device.close()
     return run
 
 
+def _with_drift_partners(plan: Plan, redo: Sequence[str], *, yes: bool, ask: Callable[[str], str],
+                         warnings: list[str]) -> tuple[str, ...]:
+    """``redo`` with the re-reads a drift correction needs, as the operator chooses (warned either way)."""
+    redo = tuple(redo)
+    partners = drift_partners(plan)
+    for name in list(redo):
+        missing = [p for p in partners.get(name, ()) if p not in redo]
+        if not missing:
+            continue
+        names = ", ".join(repr(m) for m in missing)
+        msg = (f"--redo {name}: the generator's drift is judged from {names} captured after it; captured "
+               f"again alone, {name!r} comes after that re-read and the drift is 'not assessed'")
+        if yes:
+            warnings.append(msg + f" (add --redo {' --redo '.join(missing)} to keep it assessed)")
+            continue
+        answer = ask(f"{msg}.\n  Capture {names} again too? [Y/n] > ").lower()
+        if answer in ("", "y", "yes"):
+            redo += tuple(missing)
+        else:
+            warnings.append(msg)
+    return redo
+
+
+@dataclass
+class _Clock:
+    """Elapsed and remaining time of a run (remaining from the capture time still to go, at the
+    pace the source has delivered so far; the operator's time at the prompts is not in it)."""
+
+    left_s: float  # capture time (samples / rate) still to take
+    started: float = field(default_factory=time.monotonic)
+    taken_s: float = 0.0  # capture time taken so far
+    busy_s: float = 0.0  # wall time spent capturing so far
+
+    def text(self, now_left_s: float) -> str:
+        elapsed = time.monotonic() - self.started
+        pace = self.busy_s / self.taken_s if self.taken_s > 0 else 1.0
+        return f"{_mmss(elapsed)} elapsed, about {_mmss(now_left_s * pace)} left"
+
+
+def _mmss(seconds: float) -> str:
+    seconds = max(0, int(round(seconds)))
+    return f"{seconds // 60}:{seconds % 60:02d}"
+
+
 def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, *, yes: bool,
-                  redo: Sequence[str], show: Progress, ask: Callable[[str], str]) -> None:
+                  redo: Sequence[str], show: Progress, ask: Callable[[str], str], check: bool = True) -> None:
     log = _Log(session / LOG_NAME)
     log(f"run of {plan.source} with device {device.name}"
         + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
@@ -286,6 +381,20 @@ def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: Session
     if not todo:
         log("nothing to capture: every capture of the plan is in the session")
         return
+    try:
+        _capture_todo(plan, session, device, run, todo, yes=yes, show=show, ask=ask, log=log, check=check)
+    except KeyboardInterrupt:
+        log("run interrupted by the operator (Ctrl-C); the same command resumes it")
+        raise
+    log("run finished" + (" (stopped)" if run.stopped else ""))
+
+
+def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, todo, *, yes: bool,
+                  show: Progress, ask: Callable[[str], str], log: _Log, check: bool) -> None:
+    from rxbench.check import Checker  # here: the reading's numerics load only when a capture is checked
+
+    checker = Checker(plan.dongle.full_scale_dbm, plan.check_tolerance_db) if check else None
+    clock = _Clock(left_s=sum(cap.duration_s for cap, _ in todo))
     n_steps = len(plan.steps)
     skipping: str | None = None
     announced: set[str] = set()
@@ -303,21 +412,60 @@ def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: Session
                 if answer in ("q", "quit", "stop"):
                     log(f"operator stopped before {cap.base_name}")
                     run.stopped = True
-                    break
+                    return
                 if answer in ("s", "skip"):
                     log(f"operator skipped step {name}")
                     run.skipped.append(name)
                     skipping = name
+                    clock.left_s -= sum(c.duration_s for c, _ in todo if c.step.name == name)
                     continue
         if move:  # --redo: the earlier recording goes aside only now, just before its replacement
             run.replaced.extend(_move_aside(session, session / (cap.base_name + META_SUFFIX)))
             log(f"moved the earlier {cap.base_name} to {REPLACED_DIR}/ to capture it again")
-        run.written.append(_capture_one(plan, cap, session, device, show, log, run))
-    log("run finished" + (" (stopped by the operator)" if run.stopped else ""))
+        while True:
+            meta = _capture_one(plan, cap, session, device, show, log, run, clock)
+            run.written.append(meta)
+            if checker is None:
+                break
+            result = _check_one(checker, cap, meta)
+            run.checks.append(result)
+            show.line("  " + result.line())
+            log(result.line())
+            if result.passed:
+                break
+            if yes:
+                run.warnings.append(result.line())
+                if plan.stop_on_failed_check:
+                    log(f"stopped after the failed check of {cap.base_name} ([check] stop_on_failure)")
+                    show.line(f"stopped: the check of {cap.base_name} failed and the plan says stop_on_failure; "
+                              f"fix the set-up and run with --redo {name}")
+                    run.stopped = True
+                    return
+                break
+            answer = ask("  r: capture it again   Enter: keep it and go on   q: stop here > ").lower()
+            if answer in ("r", "redo", "again"):
+                run.written.remove(meta)
+                run.replaced.extend(_move_aside(session, meta))
+                log(f"operator captures {cap.base_name} again after the failed check; the first one is in "
+                    f"{REPLACED_DIR}/")
+                clock.left_s += cap.duration_s
+                continue
+            run.warnings.append(result.line() + " (kept by the operator)")
+            if answer in ("q", "quit", "stop"):
+                log(f"operator stopped after the failed check of {cap.base_name}")
+                run.stopped = True
+                return
+            break
+
+
+def _check_one(checker, cap: PlannedCapture, meta: Path):
+    from rxbench.recordings import open_sigmf
+
+    return checker.check(cap, open_sigmf(meta))
 
 
 def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
-                 show: Progress, log: _Log, run: SessionRun) -> Path:
+                 show: Progress, log: _Log, run: SessionRun, clock: _Clock | None = None) -> Path:
     settings = plan.dongle
     device.arrange(cap)
     applied = device.configure(settings, cap.center_hz)
@@ -364,12 +512,15 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     writer = SigmfWriter(session / cap.base_name, sample_rate_hz=rate, datatype="cu8", center_hz=applied.center_hz,
                          description=cap.step.instruction, extra=extra)
     done = 0
+    t0 = time.monotonic()
     try:
         while done < total:
             n = min(chunk, total - done)
             writer.write(device.read_bytes(n))
             done += n
-            show.update(label, done, total)
+            if show.tty:
+                timing = clock.text(clock.left_s - done / 2 / rate) if clock else ""
+                show.update(label, done, total, timing)
         dropped = (device.dropped_bytes - dropped_before) // 2
         meta = writer.commit({keys.DROPPED_SAMPLES: dropped})
     except BaseException as exc:
@@ -389,7 +540,13 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         run.warnings.append(w)
         log(f"warning: {w}")
     log(f"{cap.base_name}: written ({msg}, {dropped} dropped)")
-    show.finish(label, f"written {meta.name} ({n_samples / rate:.2f} s)")
+    timing = ""
+    if clock is not None:
+        clock.taken_s += n_samples / rate
+        clock.busy_s += time.monotonic() - t0
+        clock.left_s -= n_samples / rate
+        timing = f"; {clock.text(clock.left_s)}"
+    show.finish(label, f"written {meta.name} ({n_samples / rate:.2f} s{timing})")
     return meta
 
 

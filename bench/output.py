@@ -77,10 +77,11 @@ class Progress:
             self.stream.write(text + "\n")
             self.stream.flush()
 
-    def update(self, label: str, done: float, total: float) -> None:
-        """Show ``done`` of ``total`` as a percentage (terminals only)."""
+    def update(self, label: str, done: float, total: float, note: str = "") -> None:
+        """Show ``done`` of ``total`` as a percentage, then ``note`` (terminals only)."""
         if self.tty and total:
-            self.stream.write(f"\r{label}: {100 * done / total:5.1f} %\x1b[K")
+            tail = f"  {note}" if note else ""
+            self.stream.write(f"\r{label}: {100 * done / total:5.1f} %{tail}\x1b[K")
             self.stream.flush()
 
     def clear(self) -> None:

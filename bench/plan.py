@@ -35,6 +35,10 @@ Schema (every quantity carries its unit in its name)::
     # enr_table = [[26e6, 15.3], [30e6, 15.1]]     # [frequency_hz, enr_db] rows, ascending
     u_enr_db = 0.2           # standard uncertainty of the ENR, dB (from its calibration)
 
+    [check]                  # optional: the check after every capture
+    level_tolerance_db = 3.0 # a tone level this far off the plan's estimate fails the check
+    stop_on_failure = false  # unattended (--yes) runs stop at a failed check instead of going on
+
     [defaults]               # optional: values every step takes unless it gives its own
     center_hz = 28.4e6
     duration_s = 0.5
@@ -187,6 +191,8 @@ class Plan:
     attenuator_tolerance_db: float | None = None
     swr: tuple[tuple[str, float], ...] = ()  # [match]: (source_swr/load_swr/dut_swr, value) given
     warnings: tuple[str, ...] = field(default=())
+    check_tolerance_db: float = 3.0  # [check] level_tolerance_db
+    stop_on_failed_check: bool = False  # [check] stop_on_failure
 
     def step_named(self, name: str) -> Step:
         for s in self.steps:
@@ -336,12 +342,14 @@ class _Checker:
         return value
 
 
-_TOP = ("title", "description", "dongle", "generator", "attenuator", "match", "noise_source", "defaults", "step")
+_TOP = ("title", "description", "dongle", "generator", "attenuator", "match", "noise_source", "check", "defaults",
+        "step")
 _DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_hz", "bias_tee",
            "settle_s", "full_scale_dbm")
 _GENERATOR = ("level_dbm", "offset_hz")
 _NOISE = ("enr_db", "enr_table", "u_enr_db")
 _ATTENUATOR = ("tolerance_db",)
+_CHECK = ("level_tolerance_db", "stop_on_failure")
 _MATCH = keys.SWRS
 _STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
 _STEP = ("name", "role", "instruction", "devices") + _STEP_COMMON
@@ -419,6 +427,11 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     at = c.table(data, "attenuator")
     c.known("attenuator", at, _ATTENUATOR)
     tolerance = c.number("attenuator", at, "tolerance_db", default=None, low=0, high=20)
+
+    ck = c.table(data, "check")
+    c.known("check", ck, _CHECK)
+    check_tol = c.number("check", ck, "level_tolerance_db", default=3.0, low=0.1, high=60)
+    check_stop = c.boolean("check", ck, "stop_on_failure")
 
     match = c.table(data, "match")
     c.known("match", match, _MATCH)
@@ -538,6 +551,8 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         attenuator_tolerance_db=tolerance,
         swr=tuple(swr.items()),
         warnings=tuple(warnings),
+        check_tolerance_db=check_tol,
+        stop_on_failed_check=check_stop,
     )
 
 

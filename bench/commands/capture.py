@@ -4,6 +4,7 @@ bench) into a session folder, prompting the operator at each step."""
 from __future__ import annotations
 
 import argparse
+import shlex
 import sys
 
 from rxbench.capture import run_session
@@ -40,6 +41,20 @@ def add_parser(sub) -> None:
     p.set_defaults(func=run)
 
 
+def resume_command(args: argparse.Namespace) -> str:
+    """The command that resumes this run (the same plan, folder and device; no --redo)."""
+    words = ["rxbench", "capture", args.plan, "--out", args.out]
+    if args.device != "rtlsdr":
+        words += ["--device", args.device]
+    if args.device_index:
+        words += ["--device-index", str(args.device_index)]
+    if args.yes:
+        words.append("--yes")
+    if args.force:
+        words.append("--force")
+    return shlex.join(words)
+
+
 def run(args: argparse.Namespace) -> int:
     if args.device_index < 0:
         raise UsageError(f"--device-index must be >= 0, got {args.device_index}")
@@ -48,8 +63,12 @@ def run(args: argparse.Namespace) -> int:
     sys.stderr.write(CAUTIONS + "\n")
     if plan.title:
         sys.stderr.write(f"Plan: {plan.title}\n")
-    result = run_session(plan, args.out, device, yes=args.yes, force=args.force, redo=tuple(args.redo),
-                         progress=sys.stderr)
+    try:
+        result = run_session(plan, args.out, device, yes=args.yes, force=args.force, redo=tuple(args.redo),
+                             progress=sys.stderr)
+    except KeyboardInterrupt:
+        sys.stderr.write(f"\ninterrupted: what was captured is kept; to resume, run\n  {resume_command(args)}\n")
+        raise
     out = {
         "session": str(result.session_dir),
         "plan": str(plan.source),
@@ -60,6 +79,8 @@ def run(args: argparse.Namespace) -> int:
         "skipped_steps": list(result.skipped),
         "stopped": result.stopped,
         "complete": not result.stopped and not result.skipped,
+        "checks": [c.to_dict() for c in result.checks],
+        "checks_failed": sum(not c.passed for c in result.checks),
         "warnings": list(result.warnings),
         "cautions": CAUTIONS,
     }
@@ -69,8 +90,12 @@ def run(args: argparse.Namespace) -> int:
         lines.append(f"  earlier recordings of the redone steps are in {result.session_dir}/.replaced/")
     if result.skipped:
         lines.append(f"  skipped steps: {', '.join(result.skipped)} (run again to capture them)")
+    failed = [c for c in result.checks if not c.passed]
+    if failed:
+        lines.append(f"  {len(failed)} capture(s) failed the check: "
+                     + ", ".join(c.name for c in failed) + " (see the warnings; --redo STEP captures a step again)")
     if result.stopped:
-        lines.append("  stopped before the end: run the same command again to resume")
+        lines.append(f"  stopped before the end: to resume, run {resume_command(args)}")
     if out["complete"]:
         lines.append(f"  next: rxbench analyze {result.session_dir}")
     lines.append(CAUTIONS)

@@ -1,0 +1,180 @@
+"""The check after every capture, and the level reading the live readout shares with it.
+
+Right after a capture is written, while the set-up is still on the bench, it is read once (the same
+reading ``inspect`` and ``analyze`` take) and set against what the plan expects:
+
+- tone roles (``thru``/``step``/``dut``): the tone's level in dBFS and, with ``[dongle]
+  full_scale_dbm``, in dBm at the dongle's input; its SNR; the clip fraction; and the level against
+  the plan's estimate (generator minus attenuation; with the DUT in the path only an upper bound);
+- the other roles: the noise density and the clip fraction.
+
+A check fails (a *problem*) when no tone stands above the noise (generator off, wrong frequency),
+when the level is more than ``[check] level_tolerance_db`` off the estimate (wrong attenuator
+setting, wrong generator level), or when the capture clips. Without ``full_scale_dbm`` the dBFS
+reading is set against the earlier tone captures of the same run instead: the first clean one fixes
+the dongle's conversion, and every later one must agree with it within the tolerance.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from rxbench.analyze import CLIP_WARN_FRACTION, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
+from rxbench.plan import TONE_ROLES, PlannedCapture
+
+#: Default allowed difference between the level read and the level the plan expects, dB.
+LEVEL_TOLERANCE_DB = 3.0
+
+
+@dataclass(frozen=True)
+class Level:
+    """The numbers an operator looks at: one reading of a capture or of a stretch of live samples."""
+
+    tone_dbfs: float | None  # None: no tone stands above the noise
+    snr_db: float | None
+    snr_bandwidth_hz: float | None
+    tone_offset_hz: float | None
+    noise_dbfs_per_hz: float
+    clip_fraction: float
+    full_scale_dbm: float | None = None
+
+    @property
+    def tone_dbm(self) -> float | None:
+        """The tone's level at the dongle's input, dBm (needs ``full_scale_dbm``)."""
+        if self.tone_dbfs is None or self.full_scale_dbm is None:
+            return None
+        return self.tone_dbfs + self.full_scale_dbm
+
+    @property
+    def clipped(self) -> bool:
+        return self.clip_fraction > CLIP_WARN_FRACTION
+
+    def to_dict(self) -> dict:
+        return {"tone_dbfs": self.tone_dbfs, "tone_dbm": self.tone_dbm, "snr_db": self.snr_db,
+                "snr_bandwidth_hz": self.snr_bandwidth_hz, "tone_offset_hz": self.tone_offset_hz,
+                "noise_density_dbfs_per_hz": self.noise_dbfs_per_hz, "clip_fraction": self.clip_fraction,
+                "clipped": self.clipped}
+
+
+def level_of(reading: Reading, full_scale_dbm: float | None = None) -> Level:
+    """The :class:`Level` of a reading (a tone only when it stands above the noise)."""
+    t = reading.tone
+    has_tone = t is not None and t.power > 0
+    return Level(
+        tone_dbfs=t.power_dbfs if has_tone else None,
+        snr_db=t.snr_db if has_tone else None,
+        snr_bandwidth_hz=t.snr_bandwidth_hz if has_tone else None,
+        tone_offset_hz=t.offset_hz if has_tone else None,
+        noise_dbfs_per_hz=noise_density_dbfs_per_hz(reading),
+        clip_fraction=reading.clip_fraction,
+        full_scale_dbm=full_scale_dbm,
+    )
+
+
+def level_text(level: Level) -> str:
+    """``tone -32.1 dBFS (-112.1 dBm), SNR 41.0 dB in 1 kHz, clip 0 %`` (or the noise for no tone)."""
+    parts = []
+    if level.tone_dbfs is not None:
+        dbm = f" ({level.tone_dbm:+.1f} dBm)" if level.tone_dbm is not None else ""
+        bw = level.snr_bandwidth_hz or 0.0
+        bw_text = f"{bw / 1e3:g} kHz" if bw >= 1e3 else f"{bw:g} Hz"
+        parts.append(f"tone {level.tone_dbfs:+.1f} dBFS{dbm}, SNR {level.snr_db:.1f} dB in {bw_text}")
+    else:
+        parts.append("no tone")
+    parts.append(f"noise {level.noise_dbfs_per_hz:.1f} dBFS/Hz")
+    parts.append(f"clip {100 * level.clip_fraction:.3g} %")
+    return ", ".join(parts)
+
+
+@dataclass(frozen=True)
+class CaptureCheck:
+    """What the check after one capture found."""
+
+    name: str  # the capture's base name
+    level: Level
+    expected_dbm: float | None  # the plan's estimate at the dongle's input (tone roles)
+    expected_is_upper_bound: bool  # the DUT's loss is not in the estimate
+    problems: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+
+    @property
+    def passed(self) -> bool:
+        return not self.problems
+
+    def line(self) -> str:
+        """One line for the operator and the log."""
+        text = f"check {self.name}: {level_text(self.level)}"
+        if self.expected_dbm is not None:
+            read = self.level.tone_dbm
+            what = "at most" if self.expected_is_upper_bound else "about"
+            text += f"; expected {what} {self.expected_dbm:+.1f} dBm at the dongle"
+            if read is not None:
+                text += f", read {read:+.1f}"
+        text += " -- " + ("OK" if self.passed else "CHECK FAILED: " + "; ".join(self.problems))
+        return text
+
+    def to_dict(self) -> dict:
+        return {"capture": self.name, **self.level.to_dict(), "expected_dbm": self.expected_dbm,
+                "expected_is_upper_bound": self.expected_is_upper_bound, "passed": self.passed,
+                "problems": list(self.problems), "notes": list(self.notes)}
+
+
+@dataclass
+class Checker:
+    """Checks the captures of one run in order (it remembers the dongle's conversion, dBFS minus dBm,
+    from the first clean tone capture when the plan gives no ``full_scale_dbm``)."""
+
+    full_scale_dbm: float | None = None
+    tolerance_db: float = LEVEL_TOLERANCE_DB
+    conversion_db: float | None = field(default=None, init=False)  # dBFS minus the estimated dBm
+
+    def check(self, cap: PlannedCapture, capture) -> CaptureCheck:
+        """Read ``capture`` (a :class:`bench.recordings.Capture`, just written for ``cap``) and check it."""
+        tone_role = cap.role in TONE_ROLES
+        reading = read_capture(capture, near_hz=cap.tone_offset_hz if tone_role else None, want_tone=tone_role)
+        level = level_of(reading, self.full_scale_dbm)
+        problems: list[str] = []
+        notes: list[str] = []
+        if level.clipped:
+            problems.append(f"{100 * level.clip_fraction:.3g} % of samples clip: add attenuation or lower the gain")
+        expected = cap.input_dbm if tone_role else None
+        upper = bool(tone_role and cap.with_dut)
+        if tone_role:
+            if level.tone_dbfs is None:
+                where = (f" near {cap.tone_offset_hz / 1e3:+g} kHz from the centre"
+                         if cap.tone_offset_hz is not None else "")
+                problems.append(f"no tone{where}: is the generator on, at the right frequency, and connected?")
+            else:
+                if level.snr_db is not None and reading.tone.peak_to_floor_db < LOW_SNR_DB:
+                    notes.append("the tone is close to the noise: its level is uncertain")
+                problems += self._level_problems(level, expected, upper)
+        return CaptureCheck(cap.base_name, level, expected, upper, tuple(problems), tuple(notes))
+
+    def _level_problems(self, level: Level, expected: float | None, upper: bool) -> list[str]:
+        if expected is None:
+            return []
+        tol = self.tolerance_db
+        if level.tone_dbm is not None:
+            diff = level.tone_dbm - expected
+            against = "the plan's estimate"
+        elif self.conversion_db is None:
+            if not upper and not level.clipped:
+                self.conversion_db = level.tone_dbfs - expected
+            return []
+        else:
+            diff = level.tone_dbfs - self.conversion_db - expected
+            against = "the earlier captures of this run"
+        if diff > tol:
+            return [f"{diff:+.1f} dB stronger than {against}: check the attenuator setting and the generator level"]
+        if diff < -tol and not upper:
+            return [f"{diff:+.1f} dB weaker than {against}: check the attenuator setting, the generator level "
+                    "and the cables"]
+        return []
+
+
+def dbm_text(value: float | None) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:+.1f} dBm"
+
+
+__all__ = ["Level", "level_of", "level_text", "CaptureCheck", "Checker", "LEVEL_TOLERANCE_DB"]
