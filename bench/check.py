@@ -6,7 +6,8 @@ reading ``inspect`` and ``analyze`` take) and set against what the plan expects:
 - tone roles (``thru``/``step``/``dut``): the tone's level in dBFS and, with ``[dongle]
   full_scale_dbm``, in dBm at the dongle's input; its SNR; the clip fraction; and the level against
   the plan's estimate (generator minus attenuation; with the DUT in the path only an upper bound);
-- the other roles: the noise density and the clip fraction.
+- the other roles: the noise density and the clip fraction; a ``hot`` capture must read at least
+  :data:`MIN_Y_DB` above the ``cold`` one of the same set-up (a noise source left off or unpowered).
 
 A check fails (a *problem*) when no tone stands above the noise (generator off, wrong frequency),
 when the level is more than ``[check] level_tolerance_db`` off the estimate (wrong attenuator
@@ -17,14 +18,16 @@ the dongle's conversion, and every later one must agree with it within the toler
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 from rxbench.analyze import CLIP_WARN_FRACTION, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
-from rxbench.plan import TONE_ROLES, PlannedCapture
+from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
 
 #: Default allowed difference between the level read and the level the plan expects, dB.
 LEVEL_TOLERANCE_DB = 3.0
+#: A hot capture must read at least this much above its cold one (Y-factor, dB): a 5 dB-ENR source
+#: into a 10 dB-NF receiver still gives about 1.2 dB (Y = (ENR + F) / F), so 0.5 dB means "off".
+MIN_Y_DB = 0.5
 
 
 @dataclass(frozen=True)
@@ -38,6 +41,7 @@ class Level:
     noise_dbfs_per_hz: float
     clip_fraction: float
     full_scale_dbm: float | None = None
+    tone_sought: bool = True  # False for noise captures (hot, cold, antenna, load)
 
     @property
     def tone_dbm(self) -> float | None:
@@ -57,7 +61,7 @@ class Level:
                 "clipped": self.clipped}
 
 
-def level_of(reading: Reading, full_scale_dbm: float | None = None) -> Level:
+def level_of(reading: Reading, full_scale_dbm: float | None = None, want_tone: bool = True) -> Level:
     """The :class:`Level` of a reading (a tone only when it stands above the noise)."""
     t = reading.tone
     has_tone = t is not None and t.power > 0
@@ -69,13 +73,16 @@ def level_of(reading: Reading, full_scale_dbm: float | None = None) -> Level:
         noise_dbfs_per_hz=noise_density_dbfs_per_hz(reading),
         clip_fraction=reading.clip_fraction,
         full_scale_dbm=full_scale_dbm,
+        tone_sought=want_tone,
     )
 
 
 def level_text(level: Level) -> str:
     """``tone -32.1 dBFS (-112.1 dBm), SNR 41.0 dB in 1 kHz, clip 0 %`` (or the noise for no tone)."""
     parts = []
-    if level.tone_dbfs is not None:
+    if not level.tone_sought:
+        pass
+    elif level.tone_dbfs is not None:
         dbm = f" ({level.tone_dbm:+.1f} dBm)" if level.tone_dbm is not None else ""
         bw = level.snr_bandwidth_hz or 0.0
         bw_text = f"{bw / 1e3:g} kHz" if bw >= 1e3 else f"{bw:g} Hz"
@@ -128,12 +135,13 @@ class Checker:
     full_scale_dbm: float | None = None
     tolerance_db: float = LEVEL_TOLERANCE_DB
     conversion_db: float | None = field(default=None, init=False)  # dBFS minus the estimated dBm
+    _noise: dict = field(default_factory=dict, init=False)  # (centre, DUT, attenuation) -> {role: dBFS/Hz}
 
     def check(self, cap: PlannedCapture, capture) -> CaptureCheck:
         """Read ``capture`` (a :class:`bench.recordings.Capture`, just written for ``cap``) and check it."""
         tone_role = cap.role in TONE_ROLES
         reading = read_capture(capture, near_hz=cap.tone_offset_hz if tone_role else None, want_tone=tone_role)
-        level = level_of(reading, self.full_scale_dbm)
+        level = level_of(reading, self.full_scale_dbm, want_tone=tone_role)
         problems: list[str] = []
         notes: list[str] = []
         if level.clipped:
@@ -149,7 +157,22 @@ class Checker:
                 if level.snr_db is not None and reading.tone.peak_to_floor_db < LOW_SNR_DB:
                     notes.append("the tone is close to the noise: its level is uncertain")
                 problems += self._level_problems(level, expected, upper)
+        elif cap.role in NOISE_SOURCE_ROLES:
+            problems += self._noise_source_problems(cap, level)
         return CaptureCheck(cap.base_name, level, expected, upper, tuple(problems), tuple(notes))
+
+    def _noise_source_problems(self, cap: PlannedCapture, level: Level) -> list[str]:
+        """A hot capture must read clearly above the cold one of the same set-up (either order)."""
+        key = (cap.center_hz, cap.with_dut, cap.attenuation_db)
+        seen = self._noise.setdefault(key, {})
+        seen[cap.role] = level.noise_dbfs_per_hz
+        if len(seen) < 2:
+            return []
+        y_db = seen["hot"] - seen["cold"]
+        if y_db < MIN_Y_DB:
+            return [f"hot reads only {y_db:+.2f} dB against cold: is the noise source powered (and off for "
+                    "cold), and connected?"]
+        return []
 
     def _level_problems(self, level: Level, expected: float | None, upper: bool) -> list[str]:
         if expected is None:
@@ -171,10 +194,6 @@ class Checker:
             return [f"{diff:+.1f} dB weaker than {against}: check the attenuator setting, the generator level "
                     "and the cables"]
         return []
-
-
-def dbm_text(value: float | None) -> str:
-    return "n/a" if value is None or not math.isfinite(value) else f"{value:+.1f} dBm"
 
 
 __all__ = ["Level", "level_of", "level_text", "CaptureCheck", "Checker", "LEVEL_TOLERANCE_DB"]

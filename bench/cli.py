@@ -24,6 +24,7 @@ COMMANDS = (
     "excess",
     "swr",
     "compare",
+    "level",
     "capture",
     "analyze",
     "synth",
@@ -72,6 +73,9 @@ def main(argv: list[str] | None = None) -> int:
     """Run one rxbench command; return its exit code (0 ok, 1 a measurement failed, 2 bad input)."""
     argv = sys.argv[1:] if argv is None else list(argv)
     parser = build_parser(argv)
+    if not argv:  # ``rxbench`` alone: the command list
+        parser.print_help()
+        return 0
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # --help, --version and usage errors

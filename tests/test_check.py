@@ -212,3 +212,28 @@ def test_interrupt_is_logged_and_the_resume_command_printed(tmp_path, monkeypatc
     err = capsys.readouterr().err
     assert f"rxbench capture {plan_file} --out {tmp_path / 's'} --device simulated --yes" in err
     assert "interrupted by the operator" in (tmp_path / "s" / LOG_NAME).read_text()
+
+
+NOISE_STEPS = """
+[[step]]
+name = "cold"
+role = "cold"
+
+[[step]]
+name = "hot"
+role = "hot"
+"""
+
+
+@pytest.mark.parametrize("enr_db, passed", [(15.0, True), (-60.0, False)])
+def test_noise_source_left_off_is_caught(tmp_path, enr_db, passed):
+    # Y = (ENR + F) / F (linear; the Y-factor method, Pozar, Microwave Engineering, from memory): with the
+    # simulated 6.5 dB-NF dongle a 15 dB ENR gives about 9 dB; a source left off gives 0 dB.
+    plan = parse_plan(HEAD.format(full_scale="", check="") + "[noise_source]\nenr_db = 15.0\n" + NOISE_STEPS,
+                      "noise.toml")
+    result = run(tmp_path, BenchTruth(enr_db=enr_db), plan=plan)
+    hot = by_name(result)["02-hot"]
+    assert hot.passed is passed
+    assert "no tone" not in hot.line()
+    if not passed:
+        assert "noise source powered" in hot.line()
