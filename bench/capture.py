@@ -34,6 +34,7 @@ from rxbench.errors import CaptureError, UsageError
 from rxbench.output import Progress
 from rxbench.plan import TONE_ROLES, Plan, PlannedCapture
 from rxbench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
+from rxbench.style import fmt_hz, fmt_hz_band
 
 PLAN_NAME = "plan.toml"
 LOG_NAME = "log.txt"
@@ -241,15 +242,15 @@ def _move_aside(session: Path, meta: Path) -> list[Path]:
 def _instruction_text(plan: Plan, cap: PlannedCapture, total_steps: int) -> str:
     s = cap.step
     lines = [f"Step {s.index}/{total_steps} {s.name!r} ({s.role}, attenuator {s.attenuation_db:g} dB, "
-             f"{s.center_hz / 1e6:.6g} MHz, {s.duration_s:g} s x {s.repeats}):",
+             f"{fmt_hz_band(s.center_hz, 1.0)}, {s.duration_s:g} s x {s.repeats}):",
              f"  {s.instruction}"]
     if cap.role in TONE_ROLES:
-        tone_mhz = (s.center_hz + (cap.tone_offset_hz or 0.0)) / 1e6
+        tone = fmt_hz(s.center_hz + (cap.tone_offset_hz or 0.0), 1.0)  # to the hertz: the generator's dial
         if cap.generator_dbm is not None:
-            lines.append(f"  Generator: {cap.generator_dbm:+.1f} dBm at {tone_mhz:.6f} MHz -> about "
+            lines.append(f"  Generator: {cap.generator_dbm:+.1f} dBm at {tone} -> about "
                          f"{cap.input_dbm:+.1f} dBm at the dongle")
         else:
-            lines.append(f"  Generator at {tone_mhz:.6f} MHz (level not in the plan: check it is safe)")
+            lines.append(f"  Generator at {tone} (level not in the plan: check it is safe)")
     return "\n".join(lines)
 
 
@@ -459,9 +460,18 @@ def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: Session
 
 
 def _check_one(checker, cap: PlannedCapture, meta: Path):
-    from rxbench.recordings import open_sigmf
+    """Check a recording just written here: its samples are read as the raw cu8 they are, with the
+    rate and frequency from its metadata (a schema validation of our own fresh file would cost more
+    than the check itself)."""
+    import json
 
-    return checker.check(cap, open_sigmf(meta))
+    from rxbench.recordings import open_raw
+
+    with open(meta, encoding="utf-8") as f:
+        doc = json.load(f)
+    rate = doc["global"][keys.SAMPLE_RATE]
+    center = doc["captures"][0].get(keys.FREQUENCY)
+    return checker.check(cap, open_raw(sigmf_paths(meta)[1], "cu8", rate, center))
 
 
 def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
@@ -510,7 +520,8 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     if settings.upconverter_hz:
         extra[keys.UPCONVERTER_HZ] = settings.upconverter_hz
     writer = SigmfWriter(session / cap.base_name, sample_rate_hz=rate, datatype="cu8", center_hz=applied.center_hz,
-                         description=cap.step.instruction, extra=extra)
+                         description=cap.step.instruction, extra=extra,
+                         durable=not getattr(device, "repeatable", False))
     done = 0
     t0 = time.monotonic()
     try:
@@ -533,7 +544,7 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         show.finish(label, what + where)
         raise
     n_samples = total // 2
-    msg = f"{n_samples} samples at {rate:g} Hz, {applied.center_hz / 1e6:.6g} MHz, gain {applied.gain_db:g} dB"
+    msg = f"{n_samples} samples at {fmt_hz(rate, 1.0)}, {fmt_hz(applied.center_hz, 1.0)}, gain {applied.gain_db:g} dB"
     if dropped:
         w = (f"{cap.base_name}: {dropped} samples were dropped during the capture (USB too slow?); the "
              "recording has gaps: lower the sample rate or capture again with --redo")

@@ -18,10 +18,13 @@ the dongle's conversion, and every later one must agree with it within the toler
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
+from rxbench.errors import RxbenchError
 from rxbench.analyze import CLIP_WARN_FRACTION, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
 from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
+from rxbench.style import fmt_hz
 
 #: Default allowed difference between the level read and the level the plan expects, dB.
 LEVEL_TOLERANCE_DB = 3.0
@@ -52,7 +55,7 @@ class Level:
 
     @property
     def clipped(self) -> bool:
-        return self.clip_fraction > CLIP_WARN_FRACTION
+        return bool(self.clip_fraction > CLIP_WARN_FRACTION)
 
     def to_dict(self) -> dict:
         return {"tone_dbfs": self.tone_dbfs, "tone_dbm": self.tone_dbm, "snr_db": self.snr_db,
@@ -84,14 +87,15 @@ def level_text(level: Level) -> str:
         pass
     elif level.tone_dbfs is not None:
         dbm = f" ({level.tone_dbm:+.1f} dBm)" if level.tone_dbm is not None else ""
-        bw = level.snr_bandwidth_hz or 0.0
-        bw_text = f"{bw / 1e3:g} kHz" if bw >= 1e3 else f"{bw:g} Hz"
-        parts.append(f"tone {level.tone_dbfs:+.1f} dBFS{dbm}, SNR {level.snr_db:.1f} dB in {bw_text}")
+        parts.append(f"tone {level.tone_dbfs:+.1f} dBFS{dbm}, SNR {level.snr_db:.1f} dB in "
+                     f"{fmt_hz(level.snr_bandwidth_hz)}")
     else:
         parts.append("no tone")
-    parts.append(f"noise {level.noise_dbfs_per_hz:.1f} dBFS/Hz")
-    parts.append(f"clip {100 * level.clip_fraction:.3g} %")
-    return ", ".join(parts)
+    if math.isfinite(level.noise_dbfs_per_hz):
+        parts.append(f"noise {level.noise_dbfs_per_hz:.1f} dBFS/Hz")
+    if math.isfinite(level.clip_fraction):
+        parts.append(f"clip {100 * level.clip_fraction:.3g} %")
+    return ", ".join(parts) or "not read"
 
 
 @dataclass(frozen=True)
@@ -140,17 +144,21 @@ class Checker:
     def check(self, cap: PlannedCapture, capture) -> CaptureCheck:
         """Read ``capture`` (a :class:`bench.recordings.Capture`, just written for ``cap``) and check it."""
         tone_role = cap.role in TONE_ROLES
-        reading = read_capture(capture, near_hz=cap.tone_offset_hz if tone_role else None, want_tone=tone_role)
+        expected = cap.input_dbm if tone_role else None
+        upper = bool(tone_role and cap.with_dut)
+        try:
+            reading = read_capture(capture, near_hz=cap.tone_offset_hz if tone_role else None, want_tone=tone_role)
+        except (RxbenchError, ValueError) as exc:  # the recording stays; the check says why it failed
+            blank = Level(None, None, None, None, math.nan, math.nan, self.full_scale_dbm, tone_sought=False)
+            return CaptureCheck(cap.base_name, blank, expected, upper, (f"could not be read: {exc}",))
         level = level_of(reading, self.full_scale_dbm, want_tone=tone_role)
         problems: list[str] = []
         notes: list[str] = []
         if level.clipped:
             problems.append(f"{100 * level.clip_fraction:.3g} % of samples clip: add attenuation or lower the gain")
-        expected = cap.input_dbm if tone_role else None
-        upper = bool(tone_role and cap.with_dut)
         if tone_role:
             if level.tone_dbfs is None:
-                where = (f" near {cap.tone_offset_hz / 1e3:+g} kHz from the centre"
+                where = (f" near {fmt_hz(cap.tone_offset_hz)} from the centre"
                          if cap.tone_offset_hz is not None else "")
                 problems.append(f"no tone{where}: is the generator on, at the right frequency, and connected?")
             else:

@@ -151,6 +151,8 @@ class SimulatedBench:
     """
 
     name = "simulated"
+    #: Its recordings can be made again at will (the capture skips the fsyncs a real dongle's need).
+    repeatable = True
     #: Bytes per read the capture loop asks for (smaller reads: smoother progress, more overhead).
     chunk_bytes = 65536
 

@@ -40,8 +40,9 @@ def _run_json(capsys, *argv):
 def test_table_matches_formula_all_environments_and_bands(capsys, environment, galactic):
     # Whole HF table against ITU-R P.372 and the SNR-cost formula, within 0.05 dB.
     argv = ["--loss-db", "4", "--rx-nf-db", "9", "--environment", environment]
-    rows = _run_json(capsys, *argv, *(["--galactic"] if galactic else []))
-    assert isinstance(rows, list) and len(rows) == len(HF_MHZ)
+    doc = _run_json(capsys, *argv, *(["--galactic"] if galactic else []))
+    rows = doc["rows"]
+    assert isinstance(doc["warnings"], list) and len(rows) == len(HF_MHZ)
     for row, f_mhz in zip(rows, HF_MHZ):
         fa, cost = _expected(environment, f_mhz, 4.0, 9.0, galactic)
         assert row["frequency_hz"] == pytest.approx(f_mhz * 1e6)
@@ -65,16 +66,20 @@ def test_single_frequency_is_one_object(capsys, environment, f_hz, loss_db, nf_d
     r = _run_json(capsys, "--loss-db", str(loss_db), "--frequency", str(f_hz),
                   "--environment", environment, "--rx-nf-db", str(nf_db))
     assert isinstance(r, dict)
+    assert r["rows"] == [{k: v for k, v in r.items() if k != "rows"}]  # today's keys at the top, and the row
     assert r["fa_db"] == pytest.approx(fa_db, abs=0.006)
     if cost_db is not None:
         assert r["snr_degradation_db"] == pytest.approx(cost_db, abs=0.006)
     assert r["galactic"] is False and r["fa_galactic_db"] is None
 
 
-def test_several_frequencies_give_a_list(capsys):
-    rows = _run_json(capsys, "--loss-db", "3", "--rx-nf-db", "8", "--environment", "quiet-rural",
-                     "--frequency", "3.5e6", "--frequency", "28e6")
-    assert [type(r) for r in rows] == [dict, dict]
+def test_several_frequencies_give_rows_with_band_names(capsys):
+    doc = _run_json(capsys, "--loss-db", "3", "--rx-nf-db", "8", "--environment", "quiet-rural",
+                    "--frequency", "3.5e6", "--frequency", "28e6", "--frequency", "27e6")
+    assert doc["warnings"] == [] and "fa_db" not in doc
+    rows = doc["rows"][:2]
+    # band edges: IARU band plans (common practice); 27 MHz lies in no amateur band
+    assert [r["band"] for r in doc["rows"]] == ["80 m", "10 m", ""]
     assert all("fa_db" in r and "snr_degradation_db" in r for r in rows)
     # REFERENCES.md [calc]: quiet rural 3.5 MHz 38.04 dB, 28 MHz 12.21 dB (ITU-R P.372).
     assert [r["fa_db"] for r in rows] == pytest.approx([38.04, 12.21], abs=0.006)

@@ -188,6 +188,7 @@ def readout(device, plan, cap, *, interval_s: float, updates: int, on_update, ne
 
 def run(args: argparse.Namespace) -> int:
     from rxbench.device import open_source
+    from rxbench.style import fmt_hz_band
 
     if not 0.02 <= args.interval <= 10:
         raise UsageError(f"--interval must be between 0.02 and 10 s, got {args.interval!r}")
@@ -203,7 +204,7 @@ def run(args: argparse.Namespace) -> int:
     expected = cap.input_dbm
     tty = not args.json and sys.stdout.isatty()
     what = f"step {cap.step.name!r} of {plan.source}" if args.plan else "the options"
-    sys.stderr.write(f"level readout at {cap.center_hz / 1e6:.4f} MHz ({what}); Enter or Ctrl-C stops\n")
+    sys.stderr.write(f"level readout at {fmt_hz_band(cap.center_hz, 1.0)} ({what}); Enter or Ctrl-C stops\n")
     start = time.monotonic()
 
     def on_update(i, level, reading):

@@ -7,6 +7,7 @@ import argparse
 
 from rxbench.errors import UsageError
 from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.style import band_of
 from rxbench.dsp import environment as env
 from rxbench.dsp.units import noise_temperature_from_nf_db
 
@@ -151,10 +152,10 @@ def _human(rows: list[dict], args, caveats: list[str]) -> str:
     lines.append(f"{'band':>6} {'MHz':>8} {'Fa dB':>7} {'Ta K':>10} {'cost dB':>8} "
                  f"{'loss for 0.5 dB':>16} {'loss for 1 dB':>14}")
     for r in rows:
-        mhz = "-" if r["frequency_hz"] is None else f"{r['frequency_hz'] / 1e6:.3f}"
+        mhz = "-" if r["frequency_hz"] is None else f"{r['frequency_hz'] / 1e6:g}"
         b = r["loss_budget_db"]
         lines.append(
-            f"{r.get('band', ''):>6} {mhz:>8} {fmt_db(r['fa_db'], 1):>7} "
+            f"{r.get('band') or '':>6} {mhz:>8} {fmt_db(r['fa_db'], 1):>7} "
             f"{r['antenna_temperature_k']:>10.3g} {fmt_db(r['snr_degradation_db']):>8} "
             f"{fmt_db(b['snr_cost_0.5_db'], 1):>16} {fmt_db(b['snr_cost_1_db'], 1):>14}"
         )
@@ -193,7 +194,8 @@ def run(args: argparse.Namespace) -> int:
     else:
         environment = args.environment or "residential"
         if args.frequency:
-            rows = [predict_model(f, environment, args.galactic, args.rx_nf_db, args.loss_db)
+            rows = [{"band": band_of(f) or "",
+                     **predict_model(f, environment, args.galactic, args.rx_nf_db, args.loss_db)}
                     for f in args.frequency]
         else:
             rows = []
@@ -201,9 +203,13 @@ def run(args: argparse.Namespace) -> int:
                 row = {"band": band}
                 row.update(predict_model(f, environment, args.galactic, args.rx_nf_db, args.loss_db))
                 rows.append(row)
+    if args.antenna_excess_db is not None and rows[0]["frequency_hz"] is not None:
+        rows[0]["band"] = band_of(rows[0]["frequency_hz"]) or ""
     for r in rows:
         r["caveats"] = caveats
         r["warnings"] = warnings
-    result = rows[0] if len(rows) == 1 else rows
+    # One shape whatever the number of frequencies: an object with the rows and the warnings; for a
+    # single frequency the row's own keys stay at the top level too (as before the rows list).
+    result = {**(rows[0] if len(rows) == 1 else {}), "rows": rows, "warnings": warnings, "caveats": caveats}
     emit(args, result, _human(rows, args, caveats), warnings)
     return 0
