@@ -154,7 +154,7 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[s
     if tone.peak_to_floor_db < LOW_SNR_DB:
         out.append(
             f"{name}: tone only {tone.peak_to_floor_db:.1f} dB above the noise in one bin; "
-            f"its power is uncertain by +/-{tone.u_power_db * 2:.2f} dB (95 %)"
+            f"its power is uncertain by ±{tone.u_power_db * 2:.2f} dB (95 %)"
         )
     if tone.power <= 0 or tone.ci95_dbfs[0] == -np.inf:
         out.append(f"{name}: tone power not distinguishable from the noise")

@@ -419,7 +419,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     level = c.number("generator", g, "level_dbm", default=None, low=-200, high=60)
     offset = c.number("generator", g, "offset_hz", default=10_000.0)
     if abs(offset) >= rate / 2:
-        c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (+/-{rate / 2:g} Hz)")
+        c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (±{rate / 2:g} Hz)")
     if abs(offset) < 1000.0:
         warnings.append(f"{name}, line {c.lines.line('generator', 'offset_hz')}: a tone {offset:g} Hz from the "
                         "centre sits on the dongle's DC spike; put it a few kHz away")

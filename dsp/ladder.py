@@ -439,7 +439,7 @@ def direct_loss(thru_dbfs, u_thru_db, dut_dbfs, u_dut_db, *, thru_after_dbfs=Non
                              f"(t = {t_before} and {t_after}); drift would be extrapolated")
         if not np.isfinite([thru_after_dbfs, u_thru_after_db]).all() or u_thru_after_db < 0:
             raise ValueError(f"thru-after reading must be finite, got {thru_after_dbfs!r} "
-                             f"+/- {u_thru_after_db!r}")
+                             f"± {u_thru_after_db!r}")
         reference = (1.0 - w) * thru_dbfs + w * thru_after_dbfs
         drift = float(thru_after_dbfs - thru_dbfs)
         components.append(Component.normal("thru reading (before)", u_thru_db,
@@ -507,7 +507,7 @@ def substitution_loss(nominal_db, reading_dbfs, u_reading_db, dut_dbfs, u_dut_db
         raise ValueError(f"substitution needs at least 2 ladder steps, got {nominal.size}")
     nu = np.full(nominal.size, np.inf) if dof_steps is None else _as_1d("dof_steps", dof_steps)[order]
     if not (np.isfinite(dut_dbfs) and np.isfinite(u_dut_db) and u_dut_db >= 0):
-        raise ValueError(f"the DUT reading must be finite, got {dut_dbfs!r} +/- {u_dut_db!r}")
+        raise ValueError(f"the DUT reading must be finite, got {dut_dbfs!r} ± {u_dut_db!r}")
     rising = np.flatnonzero(np.diff(reading) >= 0)
     if rising.size:
         i = rising[0]

@@ -118,7 +118,7 @@ class OnAirBand:
             raise ValueError(f"loss_b_db={self.loss_b_db!r} must be >= 0 (a passive loss)")
         for c in self.carriers:
             if abs(c.offset_hz) >= self.sample_rate_hz / 2:
-                raise ValueError(f"carrier at {c.offset_hz!r} Hz lies outside +/-{self.sample_rate_hz / 2:g} Hz")
+                raise ValueError(f"carrier at {c.offset_hz!r} Hz lies outside ±{self.sample_rate_hz / 2:g} Hz")
 
     @property
     def antenna_temperature_k(self) -> float:

@@ -77,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
                         "about the attenuator")
     if noisy:
         warnings.append(f"step(s) {_steps_text(noisy)}: too close to the noise to check to "
-                        f"+/-{c.tolerance_db:g} dB")
+                        f"±{c.tolerance_db:g} dB")
     steps_out = []
     for i, r in enumerate(readings):
         snr = None if r.tone is None else r.tone.snr_db
@@ -103,7 +103,7 @@ def run(args: argparse.Namespace) -> int:
     }
     ref = "median of the linear steps" if c.reference == "median" else c.reference
     lines = [f"ladder check: {len(steps_out)} steps, reference {ref} "
-             f"({c.offset_dbfs:.2f} dBFS at 0 dB), tolerance +/-{c.tolerance_db:g} dB",
+             f"({c.offset_dbfs:.2f} dBFS at 0 dB), tolerance ±{c.tolerance_db:g} dB",
              f"  {'nominal':>8} {'reading':>10} {'measured':>9} {'error':>7} {'u':>6} {'SNR':>6}",
              f"  {'dB':>8} {'dBFS':>10} {'dB':>9} {'dB':>7} {'dB':>6} {'dB':>6}"]
     for s in steps_out:
@@ -118,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
                  f"{c.usable_bottom_db:g} dB (top: {limits[c.top_limited_by]}, bottom: "
                  f"{limits[c.bottom_limited_by]})")
     n = result["n_flagged"]
-    lines.append(f"{n} step{'s' if n != 1 else ''} outside +/-{c.tolerance_db:g} dB" if n else
-                 f"all linear-range steps within +/-{c.tolerance_db:g} dB")
+    lines.append(f"{n} step{'s' if n != 1 else ''} outside ±{c.tolerance_db:g} dB" if n else
+                 f"all linear-range steps within ±{c.tolerance_db:g} dB")
     emit(args, result, "\n".join(lines), warnings)
     return 0

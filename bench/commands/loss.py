@@ -51,7 +51,7 @@ def add_parser(sub) -> None:
                    help="the DUT is two identical devices back to back: per-device loss = pair loss / 2")
     g = p.add_argument_group("uncertainty")
     g.add_argument("--atten-tolerance-db", type=float, metavar="DB",
-                   help="attenuator setting tolerance, +/- dB (rectangular)")
+                   help="attenuator setting tolerance, ± dB (rectangular)")
     g.add_argument("--source-swr", type=float, metavar="SWR", help="SWR of the source (generator and pads)")
     g.add_argument("--load-swr", type=float, metavar="SWR", help="SWR of the dongle's input")
     g.add_argument("--dut-swr", type=float, metavar="SWR", help="SWR of the DUT's ports")
@@ -297,10 +297,10 @@ def run(args: argparse.Namespace) -> int:
         lines.append(f"  {label:<18} {fmt_db(p, 3):>9} dBFS{unc}{count}")
     if method == "substitution":
         lines.append(f"  {'ladder setting':<18} {loss.attenuation_db:9.3f} dB  (DUT at {detail['dut_step_db']:g} dB)")
-    lines.append(f"  {'loss':<18} {loss.loss_db:9.{digits}f} dB  +/- {U:.{digits}f} dB  (k = {loss.budget.k:g}, "
+    lines.append(f"  {'loss':<18} {loss.loss_db:9.{digits}f} dB  ± {U:.{digits}f} dB  (U, k = {loss.budget.k:g}, "
                  "about 95 %)")
     if args.pair:
-        lines.append(f"  {'per device':<18} {per_device:9.{digits}f} dB  +/- {per_device_u:.{digits}f} dB  "
+        lines.append(f"  {'per device':<18} {per_device:9.{digits}f} dB  ± {per_device_u:.{digits}f} dB  "
                      "(pair / 2)")
     if args.budget:
         lines += ["", budget_table(loss.budget)]

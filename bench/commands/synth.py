@@ -71,7 +71,7 @@ def run(args: argparse.Namespace) -> int:
     if args.loss_db < 0:
         raise UsageError(f"--loss-db must be >= 0 for a passive device, got {args.loss_db}")
     if not args.no_tone and abs(args.offset) >= args.rate / 2:
-        raise UsageError(f"--offset {args.offset:g} Hz lies outside the +/-{args.rate / 2:g} Hz band")
+        raise UsageError(f"--offset {args.offset:g} Hz lies outside the ±{args.rate / 2:g} Hz band")
     n_total = int(round(args.rate * args.duration))
     rng = np.random.default_rng(args.seed)
     out = args.out
