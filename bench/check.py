@@ -22,7 +22,7 @@ import math
 from dataclasses import dataclass, field
 
 from rxbench.errors import RxbenchError
-from rxbench.analyze import CLIP_WARN_FRACTION, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
+from rxbench.analyze import CLIP_NOTE_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
 from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
 from rxbench.style import fmt_hz
 
@@ -55,7 +55,7 @@ class Level:
 
     @property
     def clipped(self) -> bool:
-        return bool(self.clip_fraction > CLIP_WARN_FRACTION)
+        return bool(self.clip_fraction >= CLIP_NOTE_BELOW)
 
     def to_dict(self) -> dict:
         return {"tone_dbfs": self.tone_dbfs, "tone_dbm": self.tone_dbm, "snr_db": self.snr_db,
