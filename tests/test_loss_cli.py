@@ -287,7 +287,7 @@ def test_human_output_is_a_small_table(tmp_path, capsys):
     assert code == 0
     lines = out.splitlines()
     assert lines[0] == "insertion loss, direct method"
-    assert any(line.strip().startswith("loss") and "+/-" in line and "k = 2" in line for line in lines)
+    assert any(line.strip().startswith("loss") and "±" in line and "U, k = 2" in line for line in lines)
     assert "uncertainty budget" not in out
     assert len(lines) <= 6
 
