@@ -32,7 +32,8 @@ from rxbench import keys
 from rxbench.device import CHUNK_BYTES, CaptureSource
 from rxbench.errors import CaptureError, UsageError
 from rxbench.output import Progress
-from rxbench.plan import TONE_ROLES, Plan, PlannedCapture
+from rxbench.files import read_text_input
+from rxbench.plan import PLAN_LIMIT_BYTES, TONE_ROLES, Plan, PlannedCapture
 from rxbench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
 from rxbench.style import fmt_hz, fmt_hz_band
 
@@ -191,7 +192,7 @@ def _same_plan_data(text_a: str, text_b: str) -> bool:
 
     try:
         return tomllib.loads(text_a) == tomllib.loads(text_b)
-    except tomllib.TOMLDecodeError:
+    except (tomllib.TOMLDecodeError, RecursionError):
         return False
 
 
@@ -205,9 +206,9 @@ def prepare_session(plan: Plan, session_dir) -> Path:
     plan_copy = session / PLAN_NAME
     if plan_copy.exists():
         try:
-            old = plan_copy.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise UsageError(f"{plan_copy}: cannot read the session's plan: {exc}") from None
+            old = read_text_input(plan_copy, "plan file", limit=PLAN_LIMIT_BYTES)
+        except CaptureError as exc:
+            raise UsageError(f"cannot read the session's plan: {exc}") from None
         if old != plan.text and not _same_plan_data(old, plan.text):
             raise UsageError(f"{plan_copy}: the session was made with a different plan than {plan.source}; "
                              "a session holds one plan: choose a new --out folder")

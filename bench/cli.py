@@ -10,9 +10,11 @@ import argparse
 import gc
 import importlib
 import sys
+import warnings
 
-from rxbench import __version__
-from rxbench.errors import RxbenchError
+from rxbench import __version__, interrupts
+from rxbench.errors import RxbenchError, describe_foreign
+from rxbench import files
 
 #: Command modules, in the order ``rxbench --help`` lists them.
 COMMANDS = (
@@ -80,25 +82,47 @@ def main(argv: list[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # --help, --version and usage errors
         return int(exc.code or 0)
+    files.begin_run()
     try:
-        return int(args.func(args) or 0)
-    except RxbenchError as exc:
-        print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
-        return 2
-    except ValueError as exc:  # a value the numerics refuse (dsp/ validates its inputs)
-        print(f"rxbench {args.command}: error: {exc}", file=sys.stderr)
-        return 2
-    except OSError as exc:  # disk full, permission denied, device gone: no traceback
+        with warnings.catch_warnings():
+            # numpy's floating-point RuntimeWarnings are not for the user: the numerics turn the
+            # cases that matter into warnings of their own, on the number concerned.
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return int(args.func(args) or 0)
+    except BaseException as exc:
+        code, line = _one_line(exc)
+        if line is None:
+            raise
+        print(f"rxbench {args.command}: {line}", file=sys.stderr)
+        return code
+    finally:
+        files.end_run()
+
+
+def _one_line(exc: BaseException) -> tuple[int, str | None]:
+    """(exit code, the one stderr line) for an exception that ends a command; (0, None) for one
+    that must keep its traceback (a defect)."""
+    if isinstance(exc, KeyboardInterrupt) or (interrupts.received() is not None and isinstance(exc, Exception)):
+        word, status = interrupts.describe(exc)  # a signal, perhaps surfaced as another exception
+        return status, word
+    if isinstance(exc, (RxbenchError, ValueError)):  # ValueError: a value the numerics refuse
+        return 2, f"error: {exc}"
+    if isinstance(exc, OSError):  # disk full, permission denied, device gone: no traceback
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"rxbench {args.command}: error: {where}{exc.strerror or exc}", file=sys.stderr)
-        return 2
-    except KeyboardInterrupt:
-        print(f"rxbench {args.command}: interrupted", file=sys.stderr)
-        return 130
+        return 2, f"error: {where}{exc.strerror or exc}"
+    text = describe_foreign(exc) if isinstance(exc, Exception) else None
+    return (2, f"error: {text}") if text is not None else (0, None)
 
 
 def run_console() -> None:
-    code = main(sys.argv[1:])
+    interrupts.install()  # first: a signal from here on is one line and its own exit status
+    try:
+        code = main(sys.argv[1:])
+    except BaseException as exc:  # a signal during start-up (imports) or while parsing
+        if interrupts.received() is None and not isinstance(exc, KeyboardInterrupt):
+            raise
+        word, code = interrupts.describe(exc)
+        print(f"rxbench: {word}", file=sys.stderr)
     # The process ends here: spare the garbage collector its sweeps over every object numpy and
     # friends created (10 ms of each run). Files are closed by their own ``with`` blocks.
     gc.freeze()

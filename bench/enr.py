@@ -24,11 +24,14 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.errors import RxbenchError
+from rxbench.errors import CaptureError, RxbenchError
+from rxbench.files import read_text_input
 
 COLUMNS = ("frequency_hz", "enr_db")
 #: ENR outside this range (dB) is taken for a typing error rather than a noise source.
 ENR_RANGE_DB = (-10.0, 50.0)
+#: Largest ENR table read, bytes (a calibration table of a thousand points is about 20 kB).
+ENR_LIMIT_BYTES = 1024 * 1024
 
 
 class EnrTableError(RxbenchError):
@@ -120,13 +123,7 @@ def read_enr_table(path: str | Path) -> EnrTable:
     """Read an ENR table CSV file (see the module docstring for the format)."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise EnrTableError(path, None, "no such file") from None
-    except IsADirectoryError:
-        raise EnrTableError(path, None, "is a folder, not an ENR table") from None
-    except UnicodeDecodeError:
-        raise EnrTableError(path, None, "is not a text (CSV) file") from None
-    except OSError as exc:
-        raise EnrTableError(path, None, f"cannot be read ({exc.strerror})") from None
+        text = read_text_input(path, "ENR table", encoding="utf-8-sig", limit=ENR_LIMIT_BYTES)
+    except CaptureError as exc:
+        raise EnrTableError(path, None, exc.problem) from None
     return parse_enr_table(text, path)

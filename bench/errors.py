@@ -35,3 +35,35 @@ class DeviceError(RxbenchError):
 
 class MeasurementError(RxbenchError):
     """The captures do not support the requested measurement (e.g. DUT outside the ladder)."""
+
+
+def _library_errors() -> tuple[type, ...]:
+    """The audio and schema libraries' own exception classes, of those already imported (the
+    command line never imports a library just to name its errors)."""
+    import sys
+
+    found: list[type] = []
+    for module, names in (("soundfile", ("SoundFileError",)), ("sigmf.error", ("SigMFError",)),
+                          ("jsonschema.exceptions", ("ValidationError", "SchemaError"))):
+        mod = sys.modules.get(module)
+        for name in names:
+            cls = getattr(mod, name, None) if mod is not None else None
+            if isinstance(cls, type) and issubclass(cls, BaseException):
+                found.append(cls)
+    return tuple(found)
+
+
+def describe_foreign(exc: BaseException) -> str | None:
+    """One line for an exception that is not an :class:`RxbenchError` but still the input's or the
+    machine's fault (a number out of range, nesting too deep, memory, a library's refusal); None for
+    anything else (a defect, which keeps its traceback)."""
+    if isinstance(exc, RecursionError):
+        return "the input is nested too deeply"
+    if isinstance(exc, MemoryError):
+        return "out of memory (is an input far larger than a capture, plan or table should be?)"
+    if isinstance(exc, (OverflowError, FloatingPointError)):
+        return f"a number is out of range ({exc or type(exc).__name__})"
+    if isinstance(exc, _library_errors()):
+        text = (getattr(exc, "message", None) or str(exc)).strip().splitlines()
+        return f"{type(exc).__name__}: {text[0] if text else 'refused'}"
+    return None

@@ -67,7 +67,8 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from rxbench.errors import PlanError
+from rxbench.errors import CaptureError, PlanError
+from rxbench.files import read_text_input
 from rxbench import keys
 from rxbench.keys import ROLES
 
@@ -84,6 +85,9 @@ NOISE_SOURCE_ROLES = ("hot", "cold")
 TUNER_LOW_HZ = 24e6
 #: Highest useful frequency in direct sampling: the Nyquist frequency of the 28.8 MHz ADC clock.
 DIRECT_SAMPLING_HIGH_HZ = 14.4e6
+
+#: Largest plan file read, bytes (a plan of a hundred steps is about 10 kB).
+PLAN_LIMIT_BYTES = 1024 * 1024
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -370,6 +374,8 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     """
     try:
         data = tomllib.loads(text)
+    except RecursionError:
+        raise PlanError(f"{name}: nested too deeply to be a plan") from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
@@ -560,13 +566,9 @@ def load_plan(path) -> Plan:
     """Read and validate a plan file; errors name the file (and the line and field)."""
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise PlanError(f"{p}: no such plan file") from None
-    except IsADirectoryError:
-        raise PlanError(f"{p}: is a folder, not a plan file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise PlanError(f"{p}: cannot read the plan: {exc}") from None
+        text = read_text_input(p, "plan file", limit=PLAN_LIMIT_BYTES)
+    except CaptureError as exc:
+        raise PlanError(str(exc)) from None
     return parse_plan(text, str(p))
 
 

@@ -30,6 +30,7 @@ import numpy as np
 
 from rxbench import keys
 from rxbench.errors import CaptureError, UsageError
+from rxbench.files import check_output, check_regular, note_input, read_text_input
 
 #: Samples per block handed to the estimators (2**19 complex64 = 4 MiB: numpy backs arrays this
 #: large with huge pages, which saves most of the page faults of a fresh block).
@@ -208,10 +209,8 @@ def _file_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
     return reader
 
 def _check_size(path: Path, encoding: Encoding, offset: int = 0) -> int:
-    try:
-        size = path.stat().st_size - offset
-    except OSError as exc:
-        raise CaptureError(path, f"cannot read: {exc.strerror or exc}") from None
+    size = check_regular(path, "capture").st_size - offset
+    note_input(path)
     if size <= 0:
         raise CaptureError(path, "the file is empty")
     bps = encoding.bytes_per_sample
@@ -259,20 +258,21 @@ def open_sigmf(path: Path) -> Capture:
     from sigmf import SigMFFile
 
     meta_path, data_path = sigmf_paths(path)
-    try:
-        text = meta_path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise CaptureError(meta_path, "no such file (a SigMF recording needs its .sigmf-meta)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise CaptureError(meta_path, f"cannot read the metadata: {exc}") from None
+    if not meta_path.exists() and not meta_path.is_symlink():
+        raise CaptureError(meta_path, "no such file (a SigMF recording needs its .sigmf-meta)")
+    text = read_text_input(meta_path, "SigMF metadata file")
     try:
         meta = json.loads(text)
     except json.JSONDecodeError as exc:
         raise CaptureError(meta_path, f"metadata is not valid JSON (line {exc.lineno}: {exc.msg})") from None
+    except RecursionError:
+        raise CaptureError(meta_path, "metadata is nested too deeply to be SigMF") from None
     if not isinstance(meta, dict) or not isinstance(meta.get("global"), dict):
         raise CaptureError(meta_path, "metadata has no 'global' object")
     try:
         SigMFFile(metadata=meta).validate()
+    except RecursionError:
+        raise CaptureError(meta_path, "metadata is nested too deeply to be SigMF") from None
     except Exception as exc:  # SigMFError, or the schema validator's own ValidationError
         where = "/".join(str(p) for p in getattr(exc, "path", ()) or ())
         text = getattr(exc, "message", None) or (str(exc).strip().splitlines() or [type(exc).__name__])[0]
@@ -293,7 +293,9 @@ def open_sigmf(path: Path) -> Capture:
     if not data_path.exists():
         raise CaptureError(data_path, "no such file (the recording's samples are missing)")
     enc = ENCODINGS[datatype]
-    offset = int(g.get("core:header_bytes", 0))
+    offset = g.get("core:header_bytes", 0)
+    if isinstance(offset, bool) or not isinstance(offset, int) or offset < 0:
+        raise CaptureError(meta_path, f"core:header_bytes {offset!r} must be a whole number of bytes >= 0")
     n = _check_size(data_path, enc, offset)
     captures = meta.get("captures") or [{}]
     first = captures[0] if isinstance(captures[0], dict) else {}
@@ -309,6 +311,8 @@ def open_audio(path: Path, center_hz: float | None = None) -> Capture:
     """A WAV/RF64/FLAC file: two channels are I and Q, one is real audio."""
     import soundfile as sf
 
+    check_regular(path, "capture")
+    note_input(path)
     try:
         info = sf.info(str(path))
     except (RuntimeError, sf.LibsndfileError) as exc:
@@ -353,10 +357,7 @@ def open_capture(path, *, fmt: str | None = None, rate_hz: float | None = None,
         if center_hz is not None and cap.center_hz is None:
             cap = _replace(cap, center_hz=center_hz)
         return cap
-    if not path.exists():
-        raise CaptureError(path, "no such file")
-    if path.is_dir():
-        raise CaptureError(path, "is a folder, not a capture")
+    check_regular(path, "capture")
     if name.endswith(AUDIO_SUFFIXES) and fmt is None:
         return open_audio(path, center_hz)
     if fmt is None:
@@ -446,8 +447,7 @@ def atomic_path(final, overwrite: bool = False):
     final = Path(final)
     if not final.parent.is_dir():
         raise CaptureError(final.parent, "no such folder")
-    if final.exists() and not overwrite:
-        raise CaptureError(final, "already exists; not overwriting it")
+    check_output(final, overwrite=overwrite)
     tmp = final.parent / f".{final.name}.{os.urandom(4).hex()}.tmp{final.suffix}"
     try:
         yield tmp
@@ -493,10 +493,8 @@ class SigmfWriter:
         self.folder = self.meta_path.parent
         if not self.folder.is_dir():
             raise CaptureError(self.folder, "no such folder")
-        if not overwrite:
-            for p in (self.meta_path, self.data_path):
-                if p.exists():
-                    raise CaptureError(p, "already exists; not overwriting it")
+        for p in (self.meta_path, self.data_path):
+            check_output(p, overwrite=overwrite)
         self.encoding = ENCODINGS[datatype]
         self.datatype = datatype
         self.sample_rate_hz = float(sample_rate_hz)
@@ -510,9 +508,19 @@ class SigmfWriter:
         base = self.meta_path.name[: -len(META_SUFFIX)]
         self._tmp_data = self.folder / f".{base}.{token}.tmp{DATA_SUFFIX}"
         self._tmp_meta = self.folder / f".{base}.{token}.tmp{META_SUFFIX}"
-        self._file = open(self._tmp_data, "xb")
+        # The metadata of a partial is written first, while there is room: an interrupted or
+        # failed capture (a full disk included) is then kept as a complete pair by renames alone.
+        self._tmp_partial = self.folder / f".{base}.{token}.tmp.partial{META_SUFFIX}"
         self.n_samples = 0
         self.done = False
+        try:
+            with open(self._tmp_partial, "x", encoding="utf-8") as f:
+                json.dump(self._metadata(True, None), f, indent=2)
+                f.write("\n")
+            self._file = open(self._tmp_data, "xb")
+        except BaseException:
+            self._tmp_partial.unlink(missing_ok=True)
+            raise
 
     def write(self, data) -> None:
         """Append raw codes (an integer/float array of the datatype's rail type, or bytes) or
@@ -579,6 +587,7 @@ class SigmfWriter:
             _link_into_place(self._tmp_data, self.data_path, self.overwrite)
             data_linked = True
             _link_into_place(self._tmp_meta, self.meta_path, self.overwrite)
+            self._tmp_partial.unlink(missing_ok=True)
         except BaseException:
             if data_linked:  # move the samples back so the partial keeps them
                 os.rename(self.data_path, self._tmp_data)
@@ -593,8 +602,8 @@ class SigmfWriter:
         """Stop writing. With samples written and ``keep_partial``, keep them as a ``.partial``
         recording marked incomplete and return its metadata path; otherwise remove the temporaries.
 
-        Works on a full disk too: the samples already on disk are renamed (which needs no space)
-        before the small metadata file is attempted.
+        Works on a full disk too: the samples already on disk and the partial's metadata (written
+        when the recording began) are only renamed, which needs no space.
         """
         if self.done:
             return None
@@ -619,15 +628,12 @@ class SigmfWriter:
                         break
                 os.rename(self._tmp_data, data)
                 kept = data
-                with open(self._tmp_meta, "x", encoding="utf-8") as f:
-                    json.dump(self._metadata(True, None), f, indent=2)
-                    f.write("\n")
-                os.rename(self._tmp_meta, meta)
+                os.rename(self._tmp_partial, meta)
                 kept = meta
         except OSError:
-            pass  # the samples stay under the .partial data name even if the metadata cannot be written
+            pass  # the samples stay under the .partial data name even if the metadata cannot be moved
         finally:
-            for p in (self._tmp_data, self._tmp_meta):
+            for p in (self._tmp_data, self._tmp_meta, self._tmp_partial):
                 if p.exists():
                     p.unlink()
         return kept

@@ -28,6 +28,7 @@ from pathlib import Path
 
 import numpy as np
 
+from rxbench.files import is_recording
 from rxbench.errors import UsageError
 from rxbench.output import CAUTIONS, json_safe, fmt_db
 from rxbench.session import QUIET_GALACTIC, Analysis
@@ -74,6 +75,8 @@ def _install(tmp: Path, final: Path, overwrite: bool) -> Path:
             raise UsageError(f"{final}: already exists; not overwriting it")
         if not final.is_dir():
             raise UsageError(f"{final}: exists and is not a folder; not replacing it")
+        if any(is_recording(p) for p in final.rglob("*")):
+            raise UsageError(f"{final}: holds a recording; --overwrite never replaces one (move it out first)")
         old = final.parent / f".{final.name}.old-{os.urandom(4).hex()}"
         os.rename(final, old)
         os.rename(tmp, final)
@@ -109,7 +112,7 @@ def plan_title(analysis: Analysis) -> str:
         return ""
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+    except (OSError, UnicodeDecodeError, RecursionError, tomllib.TOMLDecodeError):
         return ""
     title = data.get("title")
     return title if isinstance(title, str) else ""

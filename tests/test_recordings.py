@@ -138,19 +138,24 @@ def test_unreadable_metadata_and_missing_files(tmp_path):
 
 
 def test_writer_never_overwrites_and_leaves_nothing_half_done(tmp_path):
-    write_sigmf(tmp_path / "r", np.zeros(100, np.uint8), sample_rate_hz=1e6)
+    write_sigmf(tmp_path / "r", np.zeros(100, np.uint8), sample_rate_hz=1e6, extra={"simulated": True})
     with pytest.raises(CaptureError, match="already exists"):
         write_sigmf(tmp_path / "r", np.zeros(10, np.uint8), sample_rate_hz=1e6)
     assert open_capture(tmp_path / "r.sigmf-meta").n_samples == 50
-    write_sigmf(tmp_path / "r", np.zeros(10, np.uint8), sample_rate_hz=1e6, overwrite=True)
+    write_sigmf(tmp_path / "r", np.zeros(10, np.uint8), sample_rate_hz=1e6, overwrite=True)  # synthetic: may go
     assert open_capture(tmp_path / "r.sigmf-meta").n_samples == 5
+    # A recording not marked synthetic is never replaced, overwrite or not.
+    write_sigmf(tmp_path / "real", np.zeros(100, np.uint8), sample_rate_hz=1e6)
+    with pytest.raises(CaptureError, match="is a recording"):
+        write_sigmf(tmp_path / "real", np.zeros(10, np.uint8), sample_rate_hz=1e6, overwrite=True)
+    assert open_capture(tmp_path / "real.sigmf-meta").n_samples == 50
     # Nothing under the final name until commit; temporaries are hidden and cleaned up.
     w = SigmfWriter(tmp_path / "s", sample_rate_hz=1e6)
     w.write(np.zeros(20, np.uint8))
     assert not (tmp_path / "s.sigmf-data").exists() and not (tmp_path / "s.sigmf-meta").exists()
     w.commit()
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.sigmf-data", "r.sigmf-meta", "s.sigmf-data",
-                                                          "s.sigmf-meta"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.sigmf-data", "r.sigmf-meta", "real.sigmf-data",
+                                                          "real.sigmf-meta", "s.sigmf-data", "s.sigmf-meta"]
 
 
 def test_interrupted_recording_is_kept_as_partial(tmp_path):

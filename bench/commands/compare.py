@@ -18,6 +18,7 @@ import numpy as np
 from rxbench.analyze import accumulate, choose_nperseg, health_warnings, require_comparable
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import add_json_option, emit, fmt_db
+from rxbench.files import check_output
 from rxbench.recordings import add_capture_options, atomic_path, capture_from_args
 from rxbench.dsp import compare as cmp
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
@@ -98,8 +99,7 @@ def _check_args(args) -> None:
             raise UsageError(f"--plot {plot}: the plot is written as PNG; give a name ending in .png")
         if not plot.parent.is_dir():
             raise UsageError(f"--plot {plot}: folder {plot.parent} does not exist")
-        if plot.exists() and not args.overwrite:
-            raise UsageError(f"--plot {plot}: already exists; not overwriting it (add --overwrite to replace it)")
+        check_output(plot, overwrite=args.overwrite)  # never an input or a recording
         inputs = {Path(p).resolve() for p in args.a + args.b}
         if plot.resolve() in inputs:
             raise UsageError(f"--plot {plot}: is one of the captures; choose another name")

@@ -16,6 +16,7 @@ import numpy as np
 
 from rxbench.analyze import accumulate, choose_nperseg, health_warnings, read_capture, require_same_signal
 from rxbench.enr import read_enr_table
+from rxbench.files import check_output
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
@@ -119,8 +120,8 @@ def _validate(args) -> None:
         raise UsageError(f"--level-dbm must be a finite number, got {args.level_dbm}")
     if args.csv and not Path(args.csv).resolve().parent.is_dir():
         raise UsageError(f"{args.csv}: the folder does not exist")
-    if args.csv and Path(args.csv).exists() and not args.overwrite:
-        raise UsageError(f"{args.csv}: already exists; not overwriting it (give --overwrite to replace it)")
+    if args.csv:
+        check_output(args.csv, overwrite=args.overwrite)  # never an input or a recording
 
 
 def _groups(args) -> list[_Group]:
