@@ -28,13 +28,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Sequence, TextIO
 
-from rxbench import keys
+from rxbench import interrupts, keys
 from rxbench.device import CHUNK_BYTES, CaptureSource
-from rxbench.errors import CaptureError, UsageError
+from rxbench.errors import CaptureError, RxbenchError, UsageError
 from rxbench.output import Progress
-from rxbench.files import read_text_input
+from rxbench.files import check_free_space, read_text_input
 from rxbench.plan import PLAN_LIMIT_BYTES, TONE_ROLES, Plan, PlannedCapture
-from rxbench.recordings import META_SUFFIX, SigmfWriter, sigmf_paths
+from rxbench.recordings import META_SUFFIX, SigmfWriter, open_capture, salvage_temporaries, sigmf_paths
 from rxbench.style import fmt_hz, fmt_hz_band
 
 PLAN_NAME = "plan.toml"
@@ -266,6 +266,7 @@ def run_session(
     progress: TextIO | None = None,
     prompt: Callable[[str], str] | None = None,
     check: bool = True,
+    preamble: str | None = None,
 ) -> SessionRun:
     """Run ``plan`` into the session folder ``session_dir``: what was written, kept, skipped, replaced.
 
@@ -293,6 +294,9 @@ def run_session(
         Read every capture once it is written and check it against the plan (:mod:`bench.check`);
         a failed check is warned about, offered for capturing again, and with ``[check]
         stop_on_failure`` stops an unattended run.
+    preamble : str, optional
+        Shown on ``progress`` once every check has passed, just before the first capture (the
+        cautions, so that they never stand in front of an error).
 
     Raises
     ------
@@ -305,12 +309,16 @@ def run_session(
         plan.step_named(name)  # PlanError naming the plan for an unknown step
     warnings = list(plan.warnings) + check_levels(plan, force=force) + check_bias_tee(plan, force=force)
     redo = _with_drift_partners(plan, redo, yes=yes, ask=prompt or stdin_prompt, warnings=warnings)
+    space = check_free_space(session_dir, plan_bytes(plan, session_dir, redo), what="the plan's captures",
+                             force=force)
+    if space:
+        warnings.append(space)
     device.open()
     try:
         session = prepare_session(plan, session_dir)
         run = SessionRun(session, warnings=warnings)
         _run_captures(plan, session, device, run, yes=yes, redo=redo, show=Progress(progress),
-                      ask=prompt or stdin_prompt, check=check)
+                      ask=prompt or stdin_prompt, check=check, preamble=preamble)
     finally:
         device.close()
     return run
@@ -360,33 +368,84 @@ def _mmss(seconds: float) -> str:
     return f"{seconds // 60}:{seconds % 60:02d}"
 
 
+def plan_bytes(plan: Plan, session_dir, redo: Sequence[str] = ()) -> int:
+    """Bytes the plan's captures still to be made will take in ``session_dir`` (cu8: 2 a sample)."""
+    session = Path(session_dir)
+    rate = plan.dongle.sample_rate_hz
+    total = 0
+    for cap in plan.expand():
+        if cap.step.name not in redo and (session / (cap.base_name + META_SUFFIX)).exists():
+            continue
+        total += round_up_512(math.ceil(cap.duration_s * rate) * 2)
+    return total
+
+
+def verify_kept(meta: Path, cap: PlannedCapture) -> str | None:
+    """Why a recording found in the session is not the complete capture ``cap`` (None when it is):
+    both files there, the metadata readable and of this step, the length the plan asks for."""
+    meta_path, data_path = sigmf_paths(meta)
+    if not meta_path.exists():
+        return "its data has no metadata beside it"
+    if not data_path.exists():
+        return "its data file is missing"
+    try:
+        rec = open_capture(meta_path)
+    except RxbenchError as exc:
+        return str(exc.problem if isinstance(exc, CaptureError) else exc)
+    if rec.extra.get(keys.INCOMPLETE):
+        return "it is marked incomplete"
+    if rec.extra.get(keys.STEP) not in (None, cap.step.name):
+        return f"it is of step {rec.extra.get(keys.STEP)!r}, not {cap.step.name!r}"
+    expected = round_up_512(math.ceil(cap.duration_s * rec.sample_rate_hz) * 2) // 2
+    if rec.n_samples != expected:
+        return f"it holds {rec.n_samples} samples, the plan's capture {expected}"
+    return None
+
+
 def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, *, yes: bool,
-                  redo: Sequence[str], show: Progress, ask: Callable[[str], str], check: bool = True) -> None:
+                  redo: Sequence[str], show: Progress, ask: Callable[[str], str], check: bool = True,
+                  preamble: str | None = None) -> None:
     log = _Log(session / LOG_NAME)
     log(f"run of {plan.source} with device {device.name}"
         + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
     for w in run.warnings:
         log(f"warning: {w}")
+    salvaged, removed = salvage_temporaries(session)
+    for p in salvaged:
+        w = f"{p.name}: kept what a capture that was killed outright had left (marked incomplete)"
+        run.warnings.append(w)
+        log(f"warning: {w}")
+    if removed:
+        w = (f"removed {len(removed)} temporary file(s) an earlier run left behind: "
+             + ", ".join(p.name for p in removed[:5]) + (" ..." if len(removed) > 5 else ""))
+        run.warnings.append(w)
+        log(w)
     todo: list[tuple[PlannedCapture, bool]] = []  # (capture, an earlier recording must move aside)
     for cap in plan.expand():
         meta = session / (cap.base_name + META_SUFFIX)
         there = meta.exists() or sigmf_paths(meta)[1].exists()
         if there and cap.step.name not in redo:
-            if not meta.exists():
-                raise CaptureError(sigmf_paths(meta)[1], "a recording's data has no metadata beside it: "
-                                                         "move it away before resuming")
-            run.kept.append(meta)
-            continue
+            why = verify_kept(meta, cap)
+            if why is None:
+                run.kept.append(meta)
+                continue
+            w = f"{cap.base_name}: not kept ({why}): it goes to {REPLACED_DIR}/ and is captured again"
+            run.warnings.append(w)
+            log(f"warning: {w}")
         todo.append((cap, there))
     if run.kept:
         show.line(f"resuming {session}: {len(run.kept)} capture(s) already there are kept")
     if not todo:
         log("nothing to capture: every capture of the plan is in the session")
         return
+    if preamble:
+        show.line(preamble)
     try:
         _capture_todo(plan, session, device, run, todo, yes=yes, show=show, ask=ask, log=log, check=check)
-    except KeyboardInterrupt:
-        log("run interrupted by the operator (Ctrl-C); the same command resumes it")
+    except KeyboardInterrupt as exc:
+        word = interrupts.describe(exc)[0]
+        log(f"run {'interrupted by the operator (Ctrl-C)' if word == 'interrupted' else word}; "
+            "the same command resumes it")
         raise
     log("run finished" + (" (stopped)" if run.stopped else ""))
 
@@ -562,4 +621,4 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     return meta
 
 
-__all__ = ["run_session", "check_levels", "prepare_session", "SessionRun"]
+__all__ = ["run_session", "check_levels", "prepare_session", "plan_bytes", "verify_kept", "SessionRun"]

@@ -26,6 +26,7 @@ import numpy as np
 
 from rxbench.errors import CaptureError, RxbenchError
 from rxbench.files import read_text_input
+from rxbench.quantities import QuantityError, check as check_quantity
 
 COLUMNS = ("frequency_hz", "enr_db")
 #: ENR outside this range (dB) is taken for a typing error rather than a noise source.
@@ -96,8 +97,10 @@ def parse_enr_table(text: str, path: str | Path = "<text>") -> EnrTable:
             continue
         f = _number(path, line_no, cells[0], "frequency_hz")
         e = _number(path, line_no, cells[1], "enr_db")
-        if f <= 0:
-            raise EnrTableError(path, line_no, f"frequency_hz must be > 0, got {cells[0]}")
+        try:
+            check_quantity(f, "positive_frequency", "frequency_hz")
+        except QuantityError as exc:
+            raise EnrTableError(path, line_no, str(exc)) from None
         if not ENR_RANGE_DB[0] <= e <= ENR_RANGE_DB[1]:
             raise EnrTableError(path, line_no,
                                 f"enr_db {cells[1]} is outside {ENR_RANGE_DB[0]:g}..{ENR_RANGE_DB[1]:g} dB")

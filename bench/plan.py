@@ -69,6 +69,7 @@ from pathlib import Path
 
 from rxbench.errors import CaptureError, PlanError
 from rxbench.files import read_text_input
+from rxbench.quantities import QuantityError, check as check_quantity
 from rxbench import keys
 from rxbench.keys import ROLES
 
@@ -300,7 +301,7 @@ class _Checker:
                 self.fail(table, key, f"unknown field (known fields: {', '.join(allowed)})", number, label)
 
     def number(self, table, data, key, *, default=None, required=False, low=None, high=None,
-               low_open=False, integer=False, number=0, label=None):
+               low_open=False, integer=False, number=0, label=None, quantity=None):
         if key not in data:
             if required:
                 self.fail(table, None, f"missing required field {key!r}", number, label)
@@ -315,6 +316,11 @@ class _Checker:
             self.fail(table, key, f"must be {'>' if low_open else '>='} {low:g}, got {value!r}", number, label)
         if high is not None and value > high:
             self.fail(table, key, f"must be <= {high:g}, got {value!r}", number, label)
+        if quantity is not None:  # the range every source of this quantity shares
+            try:
+                check_quantity(value, quantity, key)
+            except QuantityError as exc:
+                self.fail(table, key, str(exc).split(": ", 1)[1], number, label)
         return int(value) if integer else float(value)
 
     def string(self, table, data, key, *, default=None, choices=None, number=0, label=None):
@@ -391,7 +397,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
 
     d = c.table(data, "dongle", required=True)
     c.known("dongle", d, _DONGLE)
-    rate = c.number("dongle", d, "sample_rate_hz", required=True, low=0, low_open=True)
+    rate = c.number("dongle", d, "sample_rate_hz", required=True, quantity="sample_rate", low=0, low_open=True)
     if not _valid_rate(rate):
         c.fail("dongle", "sample_rate_hz",
                f"{rate:g} Hz is not a rate the dongle accepts (225001-300000 Hz or 900001-3200000 Hz)")
@@ -403,7 +409,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     gain = c.number("dongle", d, "gain_db", required=True, low=0, high=60)
     ppm = c.number("dongle", d, "ppm", default=0, integer=True, low=-500, high=500)
     ds = c.string("dongle", d, "direct_sampling", default="off", choices=("off", "i", "q"))
-    up = c.number("dongle", d, "upconverter_hz", default=0.0, low=0)
+    up = c.number("dongle", d, "upconverter_hz", default=0.0, low=0, quantity="frequency")
     if ds != "off" and up:
         c.fail("dongle", "upconverter_hz", "direct sampling and an upconverter exclude each other")
     dongle = DongleSettings(
@@ -414,7 +420,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         upconverter_hz=up,
         bias_tee=c.boolean("dongle", d, "bias_tee"),
         settle_s=c.number("dongle", d, "settle_s", default=0.1, low=0, high=10),
-        full_scale_dbm=c.number("dongle", d, "full_scale_dbm", default=None, low=-150, high=20),
+        full_scale_dbm=c.number("dongle", d, "full_scale_dbm", default=None, low=-150, high=20, quantity="level_dbm"),
     )
     if dongle.bias_tee:
         warnings.append(f"{name}: bias tee ON: DC is put on the antenna input; make sure what is "
@@ -422,8 +428,8 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
 
     g = c.table(data, "generator")
     c.known("generator", g, _GENERATOR)
-    level = c.number("generator", g, "level_dbm", default=None, low=-200, high=60)
-    offset = c.number("generator", g, "offset_hz", default=10_000.0)
+    level = c.number("generator", g, "level_dbm", default=None, low=-200, high=60, quantity="level_dbm")
+    offset = c.number("generator", g, "offset_hz", default=10_000.0, quantity="offset")
     if abs(offset) >= rate / 2:
         c.fail("generator", "offset_hz", f"{offset:g} Hz lies outside the captured band (±{rate / 2:g} Hz)")
     if abs(offset) < 1000.0:
@@ -432,7 +438,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
 
     at = c.table(data, "attenuator")
     c.known("attenuator", at, _ATTENUATOR)
-    tolerance = c.number("attenuator", at, "tolerance_db", default=None, low=0, high=20)
+    tolerance = c.number("attenuator", at, "tolerance_db", default=None, low=0, high=20, quantity="tolerance_db")
 
     ck = c.table(data, "check")
     c.known("check", ck, _CHECK)
@@ -441,7 +447,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
 
     match = c.table(data, "match")
     c.known("match", match, _MATCH)
-    swr = {key: c.number("match", match, key, default=None, low=1, high=100) for key in _MATCH}
+    swr = {key: c.number("match", match, key, default=None, low=1, high=100, quantity="swr") for key in _MATCH}
     swr = {key: value for key, value in swr.items() if value is not None}
     if swr and not {keys.SOURCE_SWR, keys.LOAD_SWR} <= swr.keys():
         warnings.append(f"{name}: [match] needs both source_swr and load_swr for a mismatch term; "
@@ -449,8 +455,8 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
 
     ns = c.table(data, "noise_source")
     c.known("noise_source", ns, _NOISE)
-    enr = c.number("noise_source", ns, "enr_db", default=None, low=-10, high=60)
-    u_enr = c.number("noise_source", ns, "u_enr_db", default=None, low=0, high=10)
+    enr = c.number("noise_source", ns, "enr_db", default=None, low=-10, high=60, quantity="enr_db")
+    u_enr = c.number("noise_source", ns, "u_enr_db", default=None, low=0, high=10, quantity="tolerance_db")
     enr_table: list[tuple[float, float]] = []
     if "enr_table" in ns:
         rows = ns["enr_table"]
@@ -463,6 +469,12 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
             enr_table.append((float(row[0]), float(row[1])))
         if bad:
             c.fail("noise_source", "enr_table", "must be a list of [frequency_hz, enr_db] pairs of numbers")
+        for k, (f_hz, e_db) in enumerate(enr_table, start=1):
+            try:
+                check_quantity(f_hz, "positive_frequency", f"row {k} frequency_hz")
+                check_quantity(e_db, "enr_db", f"row {k} enr_db")
+            except QuantityError as exc:
+                c.fail("noise_source", "enr_table", str(exc))
         if any(b[0] <= a[0] for a, b in zip(enr_table, enr_table[1:])):
             c.fail("noise_source", "enr_table", "frequencies must be strictly ascending")
         if enr is not None:
@@ -502,11 +514,11 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
             tbl, num, lab = ("step", i, label) if key in s else ("defaults", 0, None)
             return c.number(tbl, src, key, number=num, label=lab, **opts)
 
-        att = field_("attenuation_db", default=0.0, low=0, high=200)
-        center = field_("center_hz", default=None, low=0, low_open=True, high=6e9)
+        att = field_("attenuation_db", default=0.0, low=0, high=200, quantity="attenuation_db")
+        center = field_("center_hz", default=None, low=0, low_open=True, high=6e9, quantity="positive_frequency")
         if center is None:
             c.fail("step", None, "missing required field 'center_hz' (in the step or in [defaults])", **kw)
-        duration = field_("duration_s", default=1.0, low=0, low_open=True, high=3600)
+        duration = field_("duration_s", default=1.0, low=0, low_open=True, high=3600, quantity="duration_s")
         repeats = int(field_("repeats", default=1, integer=True, low=1, high=100))
         with_dut_src = s if "with_dut" in s else defaults
         with_dut = c.boolean("step" if "with_dut" in s else "defaults", with_dut_src, "with_dut",

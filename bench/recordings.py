@@ -20,8 +20,8 @@ import argparse
 import contextlib
 import datetime as _dt
 import json
-import math
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterator, Mapping
@@ -31,6 +31,7 @@ import numpy as np
 from rxbench import keys
 from rxbench.errors import CaptureError, UsageError
 from rxbench.files import check_output, check_regular, note_input, read_text_input
+from rxbench.quantities import QuantityError, arg as quantity_arg, check as check_quantity
 
 #: Samples per block handed to the estimators (2**19 complex64 = 4 MiB: numpy backs arrays this
 #: large with huge pages, which saves most of the page faults of a fresh block).
@@ -221,14 +222,11 @@ def _check_size(path: Path, encoding: Encoding, offset: int = 0) -> int:
     return size // bps
 
 
-def _positive_rate(path, rate) -> float:
+def _positive_rate(path, rate, name: str = "sample rate") -> float:
     try:
-        rate = float(rate)
-    except (TypeError, ValueError):
-        raise CaptureError(path, f"sample rate {rate!r} is not a number") from None
-    if not np.isfinite(rate) or rate <= 0:
-        raise CaptureError(path, f"sample rate {rate!r} must be a positive number of Hz")
-    return rate
+        return check_quantity(rate, "sample_rate", name)
+    except QuantityError as exc:
+        raise CaptureError(path, str(exc)) from None
 
 
 def open_raw(path: Path, fmt: str, rate_hz, center_hz: float | None = None) -> Capture:
@@ -289,7 +287,7 @@ def open_sigmf(path: Path) -> Capture:
         raise CaptureError(meta_path, f"{g[keys.NUM_CHANNELS]} channels: rxbench reads single-channel recordings")
     if keys.SAMPLE_RATE not in g:
         raise CaptureError(meta_path, f"metadata has no sample rate ({keys.SAMPLE_RATE})")
-    rate = _positive_rate(meta_path, g[keys.SAMPLE_RATE])
+    rate = _positive_rate(meta_path, g[keys.SAMPLE_RATE], keys.SAMPLE_RATE)
     if not data_path.exists():
         raise CaptureError(data_path, "no such file (the recording's samples are missing)")
     enc = ENCODINGS[datatype]
@@ -300,6 +298,11 @@ def open_sigmf(path: Path) -> Capture:
     captures = meta.get("captures") or [{}]
     first = captures[0] if isinstance(captures[0], dict) else {}
     center = first.get(keys.FREQUENCY)
+    if center is not None:
+        try:
+            center = check_quantity(center, "frequency", keys.FREQUENCY)
+        except QuantityError as exc:
+            raise CaptureError(meta_path, str(exc)) from None
     prefix = keys.NAMESPACE + ":"
     extra = {k[len(prefix):]: v for k, v in {**g, **first}.items() if k.startswith(prefix)}
     return Capture(meta_path, rate, float(center) if center is not None else None, n, enc.is_complex,
@@ -377,8 +380,8 @@ def add_capture_options(parser: argparse.ArgumentParser) -> None:
     """``--format``, ``--rate`` and ``--center`` for raw IQ (and audio) captures."""
     g = parser.add_argument_group("raw IQ captures")
     g.add_argument("--format", choices=sorted(RAW_FORMATS), help="sample format of raw IQ files")
-    g.add_argument("--rate", type=float, metavar="HZ", help="sample rate of raw IQ files, Hz")
-    g.add_argument("--center", type=float, metavar="HZ", help="centre frequency where the file gives none, Hz")
+    g.add_argument("--rate", type=quantity_arg("sample_rate"), metavar="HZ", help="sample rate of raw IQ files, Hz")
+    g.add_argument("--center", type=quantity_arg("frequency"), metavar="HZ", help="centre frequency where the file gives none, Hz")
 
 
 def capture_from_args(path, args: argparse.Namespace) -> Capture:
@@ -405,11 +408,14 @@ def step_capture_from_args(text: str, args: argparse.Namespace, option: str = "-
             raise UsageError(f"{option} {text}: give the attenuator setting as DB=CAPTURE "
                              "(the capture's metadata has no attenuation)")
         try:
-            db = float(meta_db)
-        except (TypeError, ValueError):
-            raise UsageError(f"{cap.path}: metadata attenuation {meta_db!r} is not a number") from None
-    if not math.isfinite(db) or db < 0:
-        raise UsageError(f"{option} {text}: the attenuator setting must be a finite number >= 0 dB")
+            db = check_quantity(meta_db, "attenuation_db", f"{keys.NAMESPACE}:{keys.ATTENUATION_DB}")
+        except QuantityError as exc:
+            raise UsageError(f"{cap.path}: {exc}") from None
+    else:
+        try:
+            db = check_quantity(db, "attenuation_db", f"{option} {text}")
+        except QuantityError as exc:
+            raise UsageError(str(exc)) from None
     return db, cap
 
 
@@ -515,7 +521,7 @@ class SigmfWriter:
         self.done = False
         try:
             with open(self._tmp_partial, "x", encoding="utf-8") as f:
-                json.dump(self._metadata(True, None), f, indent=2)
+                json.dump(self._metadata(True, None), f, indent=2, allow_nan=False)
                 f.write("\n")
             self._file = open(self._tmp_data, "xb")
         except BaseException:
@@ -567,7 +573,7 @@ class SigmfWriter:
             os.fsync(self._file.fileno())
         self._file.close()
         with open(self._tmp_meta, "x", encoding="utf-8") as f:
-            json.dump(meta, f, indent=2)
+            json.dump(meta, f, indent=2, allow_nan=False)
             f.write("\n")
             f.flush()
             if self.durable:
@@ -620,12 +626,7 @@ class SigmfWriter:
                 if size % self.encoding.bytes_per_sample:
                     with open(self._tmp_data, "r+b") as f:  # drop a half-written last sample
                         f.truncate(self.n_samples * self.encoding.bytes_per_sample)
-                base = self.meta_path.name[: -len(META_SUFFIX)]
-                for i in range(1000):
-                    stem = f"{base}.partial" + (f"{i}" if i else "")
-                    meta, data = self.folder / (stem + META_SUFFIX), self.folder / (stem + DATA_SUFFIX)
-                    if not meta.exists() and not data.exists():
-                        break
+                meta, data = _free_partial_name(self.folder, self.meta_path.name[: -len(META_SUFFIX)])
                 os.rename(self._tmp_data, data)
                 kept = data
                 os.rename(self._tmp_partial, meta)
@@ -648,6 +649,58 @@ class SigmfWriter:
         else:
             self.abandon(keep_partial=True)
         return False
+
+
+def _free_partial_name(folder: Path, base: str) -> tuple[Path, Path]:
+    """(meta, data) paths of the first free ``<base>.partial[N]`` recording name in ``folder``."""
+    for i in range(1000):
+        stem = f"{base}.partial" + (f"{i}" if i else "")
+        meta, data = folder / (stem + META_SUFFIX), folder / (stem + DATA_SUFFIX)
+        if not meta.exists() and not data.exists():
+            return meta, data
+    raise CaptureError(folder / base, "a thousand partial recordings of this name already")
+
+
+#: Hidden temporaries of an interrupted writer: ``.<name>.<8 hex>.tmp...`` (SigmfWriter, atomic_path).
+_TEMP_RE = re.compile(r"^\.(?P<base>.+)\.(?P<token>[0-9a-f]{8})\.tmp(?P<rest>.*)$")
+
+
+def salvage_temporaries(folder) -> tuple[list[Path], list[Path]]:
+    """Tidy what a writer killed outright (SIGKILL, power loss) left in ``folder``: samples whose
+    partial metadata is beside them become a ``.partial`` recording; every other temporary is
+    removed. Returns (partials kept, temporaries removed). Call only while no writer is at work in
+    ``folder``."""
+    folder = Path(folder)
+    kept: list[Path] = []
+    removed: list[Path] = []
+    temps = sorted(p for p in folder.iterdir() if p.name.startswith(".") and _TEMP_RE.match(p.name)
+                   and not p.is_dir())
+    temps.sort(key=lambda p: not p.name.endswith(".tmp" + DATA_SUFFIX))  # samples first: they keep their metadata
+    for p in temps:
+        if not p.exists():
+            continue
+        m = _TEMP_RE.match(p.name)
+        partial_meta = folder / f".{m['base']}.{m['token']}.tmp.partial{META_SUFFIX}"
+        if m["rest"] == DATA_SUFFIX and partial_meta.exists() and p.stat().st_size:
+            meta, data = _free_partial_name(folder, m["base"])
+            enc = None
+            try:
+                enc = ENCODINGS.get(json.loads(partial_meta.read_text(encoding="utf-8"))["global"][keys.DATATYPE])
+            except (OSError, ValueError, KeyError, TypeError, RecursionError):
+                pass
+            if enc is not None:
+                size = p.stat().st_size
+                if size % enc.bytes_per_sample:  # drop a half-written last sample
+                    with open(p, "r+b") as f:
+                        f.truncate(size - size % enc.bytes_per_sample)
+                if p.stat().st_size:
+                    os.rename(p, data)
+                    os.rename(partial_meta, meta)
+                    kept.append(meta)
+                    continue
+        p.unlink()
+        removed.append(p)
+    return kept, removed
 
 
 def write_sigmf(base_path, samples, *, sample_rate_hz: float, center_hz: float | None = None,

@@ -203,14 +203,16 @@ def test_never_overwrites_or_mixes_sessions(tmp_path):
     with pytest.raises(UsageError, match="not an rxbench session"):
         run_session(plan(one), foreign, SimulatedBench(seed=1), yes=True)
     assert sorted(p.name for p in foreign.iterdir()) == ["x.sigmf-meta"]
-    # samples without metadata under a capture's name are not replaced
+    # samples without metadata under a capture's name are named, kept aside unchanged, captured again
     stray = tmp_path / "stray"
     stray.mkdir()
     (stray / PLAN_NAME).write_text(one)
     (stray / "01-thru.sigmf-data").write_bytes(b"\x01" * 512)
-    with pytest.raises(CaptureError, match="no metadata"):
-        run_session(plan(one), stray, SimulatedBench(seed=1), yes=True)
-    assert (stray / "01-thru.sigmf-data").read_bytes() == b"\x01" * 512
+    run = run_session(plan(one), stray, SimulatedBench(seed=1), yes=True)
+    assert any("01-thru: not kept (its data has no metadata beside it)" in w for w in run.warnings)
+    [aside] = (stray / ".replaced").iterdir()
+    assert aside.read_bytes() == b"\x01" * 512
+    assert [p.name for p in run.written] == ["01-thru.sigmf-meta"]
 
 
 def test_settling_discard_removes_the_retune_transient(tmp_path):

@@ -34,7 +34,8 @@ def add_parser(sub) -> None:
     p.add_argument("--yes", action="store_true",
                    help="unattended: do not wait for the operator at each step (nothing needs moving)")
     p.add_argument("--force", action="store_true",
-                   help="capture even where the plan's levels would put more than 0 dBm into the dongle")
+                   help="capture even where the plan's levels would put more than 0 dBm into the dongle, "
+                        "or its captures would not fit in the free disk space")
     p.add_argument("--redo", action="append", default=[], metavar="STEP",
                    help="capture this step again (repeatable); its earlier recordings are kept aside")
     add_json_option(p)
@@ -60,12 +61,12 @@ def run(args: argparse.Namespace) -> int:
         raise UsageError(f"--device-index must be >= 0, got {args.device_index}")
     plan = load_plan(args.plan)
     device = open_source(args.device, device_index=args.device_index, seed=args.seed)
-    sys.stderr.write(CAUTIONS + "\n")
-    if plan.title:
-        sys.stderr.write(f"Plan: {plan.title}\n")
+    # The cautions come once every check has passed, just before the first capture: never in front
+    # of an error.
+    preamble = CAUTIONS + (f"\nPlan: {plan.title}" if plan.title else "")
     try:
         result = run_session(plan, args.out, device, yes=args.yes, force=args.force, redo=tuple(args.redo),
-                             progress=sys.stderr)
+                             progress=sys.stderr, preamble=preamble)
     except KeyboardInterrupt:
         sys.stderr.write(f"\ninterrupted: what was captured is kept; to resume, run\n  {resume_command(args)}\n")
         raise

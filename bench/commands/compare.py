@@ -22,6 +22,7 @@ from rxbench.files import check_output
 from rxbench.recordings import add_capture_options, atomic_path, capture_from_args
 from rxbench.dsp import compare as cmp
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
+from rxbench.quantities import arg as quantity_arg
 
 #: Default limit on the two dongles' relative tuning error searched for, ppm of the centre frequency.
 DEFAULT_MAX_PPM = 100.0
@@ -53,19 +54,19 @@ def add_parser(subparsers) -> None:
     )
     p.add_argument("--a", nargs="+", required=True, metavar="C", dest="a", help="captures of path A")
     p.add_argument("--b", nargs="+", required=True, metavar="C", dest="b", help="captures of path B")
-    p.add_argument("--alpha", type=float, default=0.05,
+    p.add_argument("--alpha", type=quantity_arg("probability"), default=0.05,
                    help="1 - confidence of the intervals (default %(default)g: 95 %% intervals)")
     p.add_argument("--method", choices=cmp.METHODS, default="hodges-lehmann",
                    help="headline estimate (both are reported; default %(default)s)")
-    p.add_argument("--false-alarm", type=float, default=cmp.DEFAULT_FALSE_ALARM, metavar="P",
+    p.add_argument("--false-alarm", type=quantity_arg("probability"), default=cmp.DEFAULT_FALSE_ALARM, metavar="P",
                    help="probability that noise alone is called a signal in a path's mean spectrum "
                         "(default %(default)g)")
-    p.add_argument("--max-offset", type=float, metavar="HZ",
+    p.add_argument("--max-offset", type=quantity_arg("bandwidth"), metavar="HZ",
                    help=f"largest frequency offset between the paths searched, Hz (default "
                         f"{DEFAULT_MAX_PPM:g} ppm of the centre, or 1/20 of the sample rate)")
-    p.add_argument("--tolerance", type=float, metavar="HZ",
+    p.add_argument("--tolerance", type=quantity_arg("bandwidth"), metavar="HZ",
                    help="frequency matching tolerance once the offset is removed, Hz (default 2 bins)")
-    p.add_argument("--snr-bandwidth", type=float, default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
+    p.add_argument("--snr-bandwidth", type=quantity_arg("bandwidth"), default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
                    help="noise bandwidth of the SNRs shown, Hz (default %(default)g; differences do not depend on it)")
     p.add_argument("--nperseg", type=int, metavar="N",
                    help="FFT segment length (default 4096, shorter for short captures)")

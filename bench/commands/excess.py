@@ -19,6 +19,7 @@ from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, capture_from_args, step_capture_from_args
 from rxbench.dsp import environment as env
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
+from rxbench.quantities import arg as quantity_arg
 
 #: SNR costs (dB) for which the affordable loss is reported.
 BUDGET_COSTS_DB = (0.5, 1.0)
@@ -56,7 +57,7 @@ def add_parser(subparsers) -> None:
     p.add_argument("--antenna-step", action="append", default=[], metavar="DB=C",
                    help="antenna capture through DB dB of attenuation (repeat; C alone if its metadata "
                         "gives the attenuation)")
-    p.add_argument("--rx-nf-db", type=float, metavar="DB",
+    p.add_argument("--rx-nf-db", type=quantity_arg("noise_figure_db"), metavar="DB",
                    help="the receiver's noise figure, dB: gives the antenna temperature and Fa")
     add_capture_options(p)
     add_json_option(p)

@@ -10,14 +10,15 @@ from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 from rxbench.dsp.units import db_from_power
+from rxbench.quantities import arg as quantity_arg
 
 
 def add_parser(sub) -> None:
     p = sub.add_parser("inspect", help="read a tone and the noise from one capture",
                        description="Read the tone and the noise floor of one capture.")
     p.add_argument("capture", metavar="CAPTURE", help="SigMF (.sigmf-meta/.sigmf-data), raw IQ, or WAV/FLAC file")
-    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
-    p.add_argument("--snr-bandwidth", type=float, default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
+    p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--snr-bandwidth", type=quantity_arg("bandwidth"), default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
                    help="noise bandwidth for the SNR, Hz (default %(default)g)")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
     add_capture_options(p)

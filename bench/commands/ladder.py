@@ -14,6 +14,7 @@ from rxbench.errors import MeasurementError, UsageError
 from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, step_capture_from_args
 from rxbench.dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
+from rxbench.quantities import arg as quantity_arg
 
 
 def add_parser(sub) -> None:
@@ -26,13 +27,13 @@ def add_parser(sub) -> None:
         epilog=CAUTIONS)
     p.add_argument("--step", action="append", default=[], metavar="DB=CAPTURE",
                    help="thru capture with the attenuator at DB (repeat; at least 3 steps)")
-    p.add_argument("--tolerance-db", type=float, default=DEFAULT_TOLERANCE_DB, metavar="DB",
+    p.add_argument("--tolerance-db", type=quantity_arg("tolerance_db"), default=DEFAULT_TOLERANCE_DB, metavar="DB",
                    help="flag a step whose error exceeds this, dB (default %(default)g)")
-    p.add_argument("--linearity-db", type=float, default=DEFAULT_LINEARITY_DB, metavar="DB",
+    p.add_argument("--linearity-db", type=quantity_arg("tolerance_db"), default=DEFAULT_LINEARITY_DB, metavar="DB",
                    help="shortfall at the top that counts as compression, dB (default %(default)g)")
-    p.add_argument("--reference-step", type=float, metavar="DB",
+    p.add_argument("--reference-step", type=quantity_arg("attenuation_db"), metavar="DB",
                    help="reference the errors to this step instead of the median of the linear steps")
-    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
     add_drift_option(p)
     add_capture_options(p)

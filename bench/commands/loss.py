@@ -19,6 +19,7 @@ from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args, step_capture_from_args
 from rxbench.dsp.ladder import direct_loss, substitution_loss
 from rxbench.dsp.uncertainty import coverage_factor
+from rxbench.quantities import arg as quantity_arg
 
 
 
@@ -36,27 +37,27 @@ def add_parser(sub) -> None:
                    help="thru capture before the DUT (repeat for several)")
     g.add_argument("--thru-after", action="append", default=[], metavar="CAPTURE",
                    help="thru captured again after the DUT: drift is interpolated to the DUT's time")
-    g.add_argument("--linearity-db", type=float, metavar="DB",
+    g.add_argument("--linearity-db", type=quantity_arg("tolerance_db"), metavar="DB",
                    help="half-width of the dongle's linearity error between the two levels, dB "
                         "(rectangular; from a ladder check)")
     g = p.add_argument_group("substitution method")
     g.add_argument("--step", action="append", default=[], metavar="DB=CAPTURE",
                    help="thru capture with the attenuator at DB (repeat for each step; DB may come from "
                         "the capture's metadata when only CAPTURE is given)")
-    g.add_argument("--dut-step", type=float, metavar="DB",
+    g.add_argument("--dut-step", type=quantity_arg("attenuation_db"), metavar="DB",
                    help="attenuator setting while the DUT was captured, dB (default 0)")
     p.add_argument("--dut", action="append", default=[], metavar="CAPTURE",
                    help="capture through the DUT (repeat for several)")
     p.add_argument("--pair", action="store_true",
                    help="the DUT is two identical devices back to back: per-device loss = pair loss / 2")
     g = p.add_argument_group("uncertainty")
-    g.add_argument("--atten-tolerance-db", type=float, metavar="DB",
+    g.add_argument("--atten-tolerance-db", type=quantity_arg("tolerance_db"), metavar="DB",
                    help="attenuator setting tolerance, ± dB (rectangular)")
-    g.add_argument("--source-swr", type=float, metavar="SWR", help="SWR of the source (generator and pads)")
-    g.add_argument("--load-swr", type=float, metavar="SWR", help="SWR of the dongle's input")
-    g.add_argument("--dut-swr", type=float, metavar="SWR", help="SWR of the DUT's ports")
+    g.add_argument("--source-swr", type=quantity_arg("swr"), metavar="SWR", help="SWR of the source (generator and pads)")
+    g.add_argument("--load-swr", type=quantity_arg("swr"), metavar="SWR", help="SWR of the dongle's input")
+    g.add_argument("--dut-swr", type=quantity_arg("swr"), metavar="SWR", help="SWR of the DUT's ports")
     g.add_argument("--budget", action="store_true", help="print the uncertainty budget")
-    p.add_argument("--near", type=float, metavar="HZ", help="measure the tone near this offset from centre, Hz")
+    p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
     add_drift_option(p)
     add_capture_options(p)

@@ -22,6 +22,7 @@ from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
 from rxbench.dsp import noisefig as nfm
 from rxbench.dsp.units import T0_K, db_from_power
+from rxbench.quantities import arg as quantity_arg
 
 #: Coverage factor of the expanded uncertainties printed (about 95 %).
 K_EXPANDED = 2.0
@@ -55,14 +56,14 @@ def add_parser(subparsers) -> None:
     p.add_argument("--cold-dut", action="append", default=[], metavar="CAPTURE",
                    help="source off, DUT between source and dongle")
     enr = p.add_mutually_exclusive_group()
-    enr.add_argument("--enr-db", type=float, metavar="DB", help="ENR of the noise source, dB")
+    enr.add_argument("--enr-db", type=quantity_arg("enr_db"), metavar="DB", help="ENR of the noise source, dB")
     enr.add_argument("--enr-table", metavar="CSV", help="ENR table: lines of frequency_hz,enr_db")
-    p.add_argument("--enr-u-db", type=float, default=0.0, metavar="DB",
+    p.add_argument("--enr-u-db", type=quantity_arg("tolerance_db"), default=0.0, metavar="DB",
                    help="standard uncertainty of the ENR, dB (default 0: not included)")
-    p.add_argument("--cold-k", type=float, default=T0_K, metavar="K",
+    p.add_argument("--cold-k", type=quantity_arg("temperature_k"), default=T0_K, metavar="K",
                    help="physical temperature of the source when off, K (default %(default)g)")
     p.add_argument("--tone", metavar="CAPTURE", help="capture of a tone of known level (gain method)")
-    p.add_argument("--level-dbm", type=float, metavar="DBM", help="level of that tone at the dongle's input, dBm")
+    p.add_argument("--level-dbm", type=quantity_arg("level_dbm"), metavar="DBM", help="level of that tone at the dongle's input, dBm")
     p.add_argument("--sub-bands", type=int, default=16, metavar="N",
                    help="sub-bands across each capture's usable band (default %(default)d)")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")

@@ -10,6 +10,7 @@ from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.style import band_of
 from rxbench.dsp import environment as env
 from rxbench.dsp.units import noise_temperature_from_nf_db
+from rxbench.quantities import arg as quantity_arg
 
 #: The usual HF amateur bands, at their lower edges (Hz), for the table printed without --frequency.
 HF_BANDS = (
@@ -63,16 +64,16 @@ def add_parser(subparsers) -> None:
             "Without --frequency, prints a table for the usual HF bands."
         ),
     )
-    p.add_argument("--loss-db", type=float, required=True, metavar="DB",
+    p.add_argument("--loss-db", type=quantity_arg("loss_db"), required=True, metavar="DB",
                    help="loss between antenna and receiver, dB (>= 0)")
-    p.add_argument("--frequency", type=float, action="append", metavar="HZ",
+    p.add_argument("--frequency", type=quantity_arg("frequency"), action="append", metavar="HZ",
                    help="frequency in Hz, 0.3-250 MHz (repeat for several)")
     p.add_argument("--environment", choices=tuple(env.MAN_MADE_NOISE), default=None,
                    help="ITU-R P.372 man-made noise category (default residential)")
-    p.add_argument("--rx-nf-db", type=float, required=True, metavar="DB",
+    p.add_argument("--rx-nf-db", type=quantity_arg("noise_figure_db"), required=True, metavar="DB",
                    help="receiver noise figure, dB")
     p.add_argument("--galactic", action="store_true", help="power-add the P.372 galactic noise")
-    p.add_argument("--antenna-excess-db", type=float, default=None, metavar="DB",
+    p.add_argument("--antenna-excess-db", type=quantity_arg("excess_db"), default=None, metavar="DB",
                    help="measured excess of antenna noise over a 50-ohm load (rxbench excess); "
                         "replaces the model")
     add_json_option(p)

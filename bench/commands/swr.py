@@ -8,6 +8,7 @@ import math
 from rxbench.errors import UsageError
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.dsp import mismatch
+from rxbench.quantities import arg as quantity_arg
 
 #: Meter error (in SWR) used to show how sensitive the load figure is to the reading.
 METER_ERROR_SWR = 0.05
@@ -46,7 +47,7 @@ def add_parser(subparsers) -> None:
     which = p.add_mutually_exclusive_group(required=True)
     which.add_argument("--measured", type=_swr, metavar="SWR", help="SWR read at the meter (e.g. 1.5 or 1.5:1)")
     which.add_argument("--at-load", type=_swr, metavar="SWR", help="SWR at the load; gives what the meter reads")
-    p.add_argument("--loss-db", type=float, required=True, metavar="DB",
+    p.add_argument("--loss-db", type=quantity_arg("loss_db"), required=True, metavar="DB",
                    help="one-way loss between the meter and the load, dB (>= 0)")
     add_json_option(p)
     p.set_defaults(func=run)
