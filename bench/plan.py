@@ -499,7 +499,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         nm = c.string("step", s, "name", **kw)
         if nm is None:
             c.fail("step", None, "missing required field 'name'", **kw)
-        if not _NAME_RE.match(nm) or len(nm) > 64:
+        if not _NAME_RE.fullmatch(nm) or len(nm) > 64:
             c.fail("step", "name", f"must be 1-64 letters, digits, '-', '_' or '.', starting with a letter "
                                    f"or digit; got {nm!r}", **kw)
         if nm in seen:

@@ -4,7 +4,10 @@ be given, the number with a warning."""
 
 from __future__ import annotations
 
+import hashlib
 import json
+import os
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -65,7 +68,65 @@ def files(tmp_path_factory):
                                      'name = "a"\ncenter_hz = 28e6\nduration_s = -1\n')
     f["plan_bad"] = str(d / "plan_bad.toml")
     f["dir"] = str(d)
+    _hostile_files(d, f)
     return f
+
+
+PLAN_HEAD = '[dongle]\nsample_rate_hz = 2.4e6\ngain_db = 30\n\n'
+STEP = '[[step]]\nrole = "thru"\nname = "a"\ncenter_hz = 28e6\nduration_s = 0.1\n'
+
+
+def _hostile_files(d: Path, f: dict) -> None:
+    """Files a hostile user (or a bad day) hands over: pipes, devices, huge or deeply nested text,
+    absurd numbers in metadata and plans."""
+    for key, name in (("fifo_wav", "fifo.wav"), ("fifo_toml", "fifo.toml"), ("fifo_csv", "fifo.csv"),
+                      ("fifo_meta", "fifo_meta.sigmf-meta")):
+        os.mkfifo(d / name)
+        f[key] = str(d / name)
+    (d / "fifo_meta.sigmf-data").write_bytes(b"\x80" * 64)
+    (d / "zero.sigmf-meta").symlink_to("/dev/zero")
+    (d / "zero.sigmf-data").write_bytes(b"\x80" * 64)
+    f["zero_meta"] = str(d / "zero.sigmf-meta")
+    (d / "big.toml").write_text(PLAN_HEAD + STEP + ("# padding\n" * 200_000))
+    f["big_toml"] = str(d / "big.toml")
+    (d / "nested.sigmf-meta").write_text('{"global": ' + "[" * 100_000 + "]" * 100_000 + "}")
+    (d / "nested.sigmf-data").write_bytes(b"\x80" * 64)
+    f["deep_meta"] = str(d / "nested.sigmf-meta")
+    (d / "nested.toml").write_text("a = " + "[" * 100_000 + "]" * 100_000 + "\n")
+    f["deep_toml"] = str(d / "nested.toml")
+    good = json.loads(Path(f["thru"]).read_text())
+    for name, change in {
+        "tiny_rate": lambda m: m["global"].__setitem__("core:sample_rate", 1e-300),
+        "neg_header": lambda m: m["global"].__setitem__("core:header_bytes", -4),
+        "str_header": lambda m: m["global"].__setitem__("core:header_bytes", "abc"),
+        "huge_centre": lambda m: m["captures"][0].__setitem__("core:frequency", 1e300),
+    }.items():
+        meta = json.loads(json.dumps(good))
+        change(meta)
+        (d / f"{name}.sigmf-meta").write_text(json.dumps(meta))
+        (d / f"{name}.sigmf-data").write_bytes(Path(f["thru"][: -len("meta")] + "data").read_bytes())
+        f[name] = str(d / f"{name}.sigmf-meta")
+    plans = {
+        "plan_huge": PLAN_HEAD.replace("2.4e6", "3.2e6") + "".join(
+            f'[[step]]\nrole = "thru"\nname = "s{i}"\ncenter_hz = 28e6\nduration_s = 3600\nrepeats = 100\n\n'
+            for i in range(10)),
+        "plan_enr_huge": PLAN_HEAD + '[noise_source]\nenr_table = [[1e6, 15.0], [1e300, 15.0]]\n\n' + STEP,
+        "plan_enr_neg": PLAN_HEAD + '[noise_source]\nenr_table = [[-1e6, 15.0], [1e6, 15.0]]\n\n' + STEP,
+        "plan_name_nl": PLAN_HEAD + STEP.replace('name = "a"', 'name = "a\\n"'),
+    }
+    for name, text in plans.items():
+        (d / f"{name}.toml").write_text(text)
+        f[name] = str(d / f"{name}.toml")
+    (d / "enr_huge.csv").write_text("frequency_hz,enr_db\n1e6,15\n1e300,15\n")
+    f["enr_huge"] = str(d / "enr_huge.csv")
+    (d / "enr_ok.csv").write_text("frequency_hz,enr_db\n1e6,15\n1e9,15\n")
+    f["enr_ok"] = str(d / "enr_ok.csv")
+    f["thru_data"] = f["thru"][: -len("meta")] + "data"
+    f["thru_base"] = f["thru"][: -len(".sigmf-meta")]
+    assert main(["synth", str(d / "hot"), "--no-tone", "--enr-db", "15", "--rate", "250e3", "--duration", "0.2"]) == 0
+    assert main(["synth", str(d / "cold"), "--no-tone", "--rate", "250e3", "--duration", "0.2", "--seed", "2"]) == 0
+    f["hot"], f["cold"] = str(d / "hot.sigmf-meta"), str(d / "cold.sigmf-meta")
+    f["hot_data"] = str(d / "hot.sigmf-data")
 
 
 RAW = ["--format", "cf32", "--rate", "1e6"]
@@ -110,13 +171,94 @@ ERRORS = [
     ("analyze: not a session", ["analyze", "{missing}"], "no such"),
     ("synth: FLAC at dongle rate", ["synth", "{dir}/x.flac", "--rate", "2.4e6"], "FLAC"),
     ("unknown option", ["inspect", "{thru}", "--frobnicate"], "unrecognized"),
+    # Not a regular file: a FIFO would block for ever, a device fill memory.
+    ("inspect: WAV a FIFO", ["inspect", "{fifo_wav}"], "not a regular file"),
+    ("inspect: metadata a FIFO", ["inspect", "{fifo_meta}"], "not a regular file"),
+    ("inspect: metadata a device", ["inspect", "{zero_meta}"], "not a regular file"),
+    ("capture: plan a FIFO", ["capture", "{fifo_toml}", "--out", "{dir}/s", "--device", "simulated", "--yes"],
+     "not a regular file"),
+    ("capture: plan a device", ["capture", "/dev/zero", "--out", "{dir}/s", "--device", "simulated", "--yes"],
+     "not a regular file"),
+    ("nf: ENR table a FIFO", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-table", "{fifo_csv}"],
+     "not a regular file"),
+    ("nf: ENR table a device", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-table", "/dev/zero"],
+     "not a regular file"),
+    ("analyze: a device", ["analyze", "/dev/zero"], "is a file"),
+    # Size and nesting of text inputs.
+    ("capture: plan too large", ["capture", "{big_toml}", "--out", "{dir}/s", "--device", "simulated", "--yes"],
+     "too large"),
+    ("inspect: metadata nested too deeply", ["inspect", "{deep_meta}"], "nested too deeply"),
+    ("loss: metadata nested too deeply", ["loss", "--thru", "{deep_meta}", "--dut", "{dut}"], "nested too deeply"),
+    ("capture: plan nested too deeply", ["capture", "{deep_toml}", "--out", "{dir}/s", "--device", "simulated",
+                                         "--yes"], "nested too deeply"),
+    # Numbers that overflow or make no physical sense, from flags.
+    ("nf: level 3500 dBm", ["nf", "--tone", "{thru}", "--level-dbm", "3500"], "--level-dbm"),
+    ("inspect: NaN centre", ["inspect", "{thru}", "--center", "nan"], "--center"),
+    ("inspect: infinite SNR bandwidth", ["inspect", "{thru}", "--snr-bandwidth", "inf"], "--snr-bandwidth"),
+    ("inspect: tone near 1e300 Hz", ["inspect", "{thru}", "--near", "1e300"], "--near"),
+    ("inspect: raw rate 1e-300", ["inspect", "{odd}", "--format", "cu8", "--rate", "1e-300"], "--rate"),
+    ("loss: NaN near", ["loss", "--thru", "{thru}", "--dut", "{dut}", "--near", "nan"], "--near"),
+    ("compare: zero SNR bandwidth", ["compare", "--a", "{thru}", "--b", "{dut}", "--snr-bandwidth", "0"],
+     "--snr-bandwidth"),
+    ("predict: infinite frequency", ["predict", "--loss-db", "1", "--frequency", "inf", "--rx-nf-db", "8"],
+     "--frequency"),
+    ("synth: infinite rate", ["synth", "{dir}/o", "--rate", "inf"], "--rate"),
+    ("synth: rate 1e300", ["synth", "{dir}/o", "--rate", "1e300"], "--rate"),
+    ("synth: duration 1e9 s", ["synth", "{dir}/o", "--duration", "1e9"], "--duration"),
+    ("synth: NaN attenuation", ["synth", "{dir}/o", "--attenuation-db", "nan"], "--attenuation-db"),
+    ("synth: ENR 1e300", ["synth", "{dir}/o", "--enr-db", "1e300"], "--enr-db"),
+    ("synth: infinite gain", ["synth", "{dir}/o", "--gain-db", "-inf"], "--gain-db"),
+    ("synth: zero samples", ["synth", "{dir}/o", "--rate", "1", "--duration", "0.1", "--offset", "0"], "one sample"),
+    ("synth: empty name", ["synth", ""], "give the output a name"),
+    ("synth: hidden name", ["synth", "{dir}/.sigmf-meta"], "give the output a name"),
+    ("synth: unknown role", ["synth", "{dir}/o", "--role", "boss"], "--role"),
+    ("synth: larger than the disk", ["synth", "{dir}/o", "--rate", "1e9", "--duration", "86400"], "free"),
+    # ... from metadata.
+    ("inspect: metadata rate 1e-300", ["inspect", "{tiny_rate}"], "core:sample_rate"),
+    ("inspect: negative header_bytes", ["inspect", "{neg_header}"], "header_bytes"),
+    ("inspect: header_bytes not a number", ["inspect", "{str_header}"], "header_bytes"),
+    ("inspect: centre 1e300 Hz in metadata", ["inspect", "{huge_centre}"], "core:frequency"),
+    # ... from plans and ENR tables.
+    ("capture: plan larger than the disk", ["capture", "{plan_huge}", "--out", "{dir}/s", "--device", "simulated",
+                                            "--yes"], "free"),
+    ("capture: ENR table to 1e300 Hz", ["capture", "{plan_enr_huge}", "--out", "{dir}/s", "--device", "simulated",
+                                        "--yes"], "enr_table"),
+    ("capture: ENR table at a negative frequency", ["capture", "{plan_enr_neg}", "--out", "{dir}/s", "--device",
+                                                    "simulated", "--yes"], "enr_table"),
+    ("capture: step name ending in a newline", ["capture", "{plan_name_nl}", "--out", "{dir}/s", "--device",
+                                                "simulated", "--yes"], "name"),
+    ("nf: ENR table to 1e300 Hz", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-table", "{enr_huge}"],
+     "frequency_hz"),
+    ("excess: the same antenna step twice", ["excess", "--antenna-step", "10={thru}", "--antenna-step", "10={dut}"],
+     "more than once"),
+    # Outputs never replace an input of the run or a recording, --overwrite or not.
+    ("nf: --csv onto a recording, --overwrite", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-db", "15",
+                                                 "--csv", "{thru_data}", "--overwrite"], "never replaces"),
+    ("nf: --csv onto its own input, --overwrite", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-db", "15",
+                                                   "--csv", "{hot_data}", "--overwrite"], "never replaces"),
+    ("nf: --csv onto its ENR table, --overwrite", ["nf", "--hot", "{hot}", "--cold", "{cold}", "--enr-table",
+                                                   "{enr_ok}", "--csv", "{enr_ok}", "--overwrite"], "input of this run"),
+    ("synth: --overwrite onto a recording", ["synth", "{thru_base}", "--overwrite"], "is a recording"),
 ]
+
+
+def _hashes(folder: Path) -> dict[str, str]:
+    """SHA-256 of every regular file under ``folder`` (pipes and device links are not read)."""
+    out = {}
+    for p in sorted(folder.rglob("*")):
+        if p.is_file() and not p.is_symlink():
+            out[str(p)] = hashlib.sha256(p.read_bytes()).hexdigest()
+        elif p.is_symlink() or not p.is_dir():
+            out[str(p)] = "special"
+    return out
 
 
 @pytest.mark.parametrize("argv, needle", [pytest.param(a, n, id=i) for i, a, n in ERRORS])
 def test_bad_input_is_one_line_and_exit_2(files, capsys, argv, needle):
+    before = _hashes(Path(files["dir"]))
     code = main([a.format(**files) for a in argv])
     io = capsys.readouterr()
+    assert _hashes(Path(files["dir"])) == before  # nothing changed, nothing added or left behind
     assert code == 2, io.err
     assert io.out == ""
     assert io.err.count("\n") == 1 and "Traceback" not in io.err

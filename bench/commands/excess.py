@@ -92,6 +92,11 @@ def run(args: argparse.Namespace) -> int:
     antenna = capture_from_args(args.antenna, args) if args.antenna is not None else None
     load = capture_from_args(args.load, args) if args.load is not None else None
     points = ([(0.0, antenna)] if antenna is not None else []) + steps
+    settings = [db for db, _ in points]
+    for db in sorted(set(settings)):
+        if settings.count(db) > 1:
+            raise UsageError(f"the antenna through {db:g} dB is given more than once (--antenna counts as 0 dB): "
+                             "give each attenuator setting once")
     all_caps = [c for _, c in points] + ([load] if load is not None else [])
     warnings = require_comparable(all_caps)
 
