@@ -64,6 +64,8 @@ def check_regular(path, what: str = "file") -> os.stat_result:
         raise CaptureError(path, f"is a folder, not a {what}")
     if not stat.S_ISREG(st.st_mode):
         raise CaptureError(path, "is not a regular file (a pipe or a device?): give a file on disk")
+    if not os.access(path, os.R_OK):
+        raise CaptureError(path, "cannot read: permission denied")
     return st
 
 

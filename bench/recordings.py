@@ -198,14 +198,17 @@ def _file_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
         # One read buffer for the whole pass (decode always returns a new array): a fresh one per
         # block would cost a page fault per 4 kB.
         buf = np.empty(min(block, n_samples) * rails, dtype=encoding.component)
-        with open(path, "rb") as f:
-            f.seek(offset)
-            for i in range(0, n_samples, block):
-                count = min(block, n_samples - i) * rails
-                raw = buf[:count]
-                if f.readinto(memoryview(raw).cast("B")) != raw.nbytes:
-                    raise CaptureError(path, f"file shrank while being read (at sample {i})")
-                yield decode(raw, encoding)
+        try:
+            with open(path, "rb") as f:
+                f.seek(offset)
+                for i in range(0, n_samples, block):
+                    count = min(block, n_samples - i) * rails
+                    raw = buf[:count]
+                    if f.readinto(memoryview(raw).cast("B")) != raw.nbytes:
+                        raise CaptureError(path, f"file shrank while being read (at sample {i})")
+                    yield decode(raw, encoding)
+        except OSError as exc:  # unreadable, or the disk failed: a capture error naming the file
+            raise CaptureError(path, f"cannot read: {exc.strerror or exc}") from None
 
     return reader
 
@@ -294,7 +297,10 @@ def open_sigmf(path: Path) -> Capture:
     offset = g.get("core:header_bytes", 0)
     if isinstance(offset, bool) or not isinstance(offset, int) or offset < 0:
         raise CaptureError(meta_path, f"core:header_bytes {offset!r} must be a whole number of bytes >= 0")
-    n = _check_size(data_path, enc, offset)
+    try:
+        n = _check_size(data_path, enc, offset)
+    except CaptureError as exc:  # say which of the pair is at fault (a session lists the metadata)
+        raise CaptureError(data_path, f"the recording's data file {exc.problem}") from None
     captures = meta.get("captures") or [{}]
     first = captures[0] if isinstance(captures[0], dict) else {}
     center = first.get(keys.FREQUENCY)

@@ -436,3 +436,29 @@ def test_loss_at_interpolates_but_never_extrapolates():
 def test_band_name(f, name):
     # Band edges as in the IARU band plans (common practice).
     assert sess.band_name(f) == name
+
+
+def test_a_bad_capture_is_skipped_with_its_reason_and_the_rest_analysed(tmp_path):
+    """Its data a folder, core:header_bytes negative or not a number: listed as skipped, named, the
+    rest of the session analysed."""
+    write_capture(tmp_path, "01-thru", tone_in(-90, 1), role="thru", seed=1, attenuation_db=10.0)
+    write_capture(tmp_path, "02-dut", lossy(tone_in(-90, 2), 3.0, 2), role="dut", seed=2, time_s=5,
+                  attenuation_db=10.0, with_dut=True)
+    for name, header in (("03-folder", None), ("04-negative", -8), ("05-text", "x")):
+        write_capture(tmp_path, name, tone_in(-90, 3), role="thru", seed=3, attenuation_db=10.0)
+        meta = tmp_path / f"{name}.sigmf-meta"
+        if header is None:
+            (tmp_path / f"{name}.sigmf-data").unlink()
+            (tmp_path / f"{name}.sigmf-data").mkdir()
+        else:
+            doc = json.loads(meta.read_text())
+            doc["global"]["core:header_bytes"] = header
+            meta.write_text(json.dumps(doc))
+    a = analyse(tmp_path)
+    skipped = {p.name: why for p, why in a.session.skipped}
+    assert skipped["03-folder.sigmf-meta"] == "the recording's data file is a folder, not a capture"
+    assert "core:header_bytes -8" in skipped["04-negative.sigmf-meta"]
+    assert "core:header_bytes 'x'" in skipped["05-text.sigmf-meta"]
+    assert [e.name for e in a.session.entries] == ["01-thru", "02-dut"]
+    [loss] = a.losses
+    assert loss["insertion_loss_db"] == pytest.approx(3.0, abs=0.3)
