@@ -174,16 +174,16 @@ class _Log:
 def _write_new(path: Path, text: str) -> None:
     """Write ``text`` to a new file atomically; never replaces an existing one."""
     tmp = path.parent / f".{path.name}.{os.urandom(4).hex()}.tmp"
-    with open(tmp, "x", encoding="utf-8") as f:
-        f.write(text)
-        f.flush()
-        os.fsync(f.fileno())
     try:
+        with open(tmp, "x", encoding="utf-8") as f:
+            f.write(text)
+            f.flush()
+            os.fsync(f.fileno())
         os.link(tmp, path)
     except FileExistsError:
         raise CaptureError(path, "already exists; not overwriting it") from None
     finally:
-        tmp.unlink()
+        tmp.unlink(missing_ok=True)  # on every path: a full disk leaves no empty temporary
 
 
 def _same_plan_data(text_a: str, text_b: str) -> bool:

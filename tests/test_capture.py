@@ -361,3 +361,65 @@ def test_cli_json_and_cautions(tmp_path, capsys):
     code = main(["capture", str(path), "--out", str(tmp_path / "s"), "--device", "simulated", "--yes"])
     out, _ = capsys.readouterr()
     assert code == 0 and "0 capture(s) written, 1 kept" in out and "Defer to local codes" in out
+
+
+def test_a_full_disk_mid_capture_keeps_a_valid_partial_pair(tmp_path, monkeypatch, capsys):
+    """The disk fills during the second capture: one line naming the problem (the last on stderr),
+    exit 2, the partial a valid recording marked incomplete, no temporaries left."""
+    import errno
+
+    from rxbench.recordings import SigmfWriter
+
+    real_write = SigmfWriter.write
+    writes = {"n": 0}
+
+    def filling(self, data):
+        writes["n"] += 1
+        if writes["n"] == 10:  # the first capture takes 7 writes of the simulated bench's chunks
+            raise OSError(errno.ENOSPC, "No space left on device", str(self._tmp_data))
+        real_write(self, data)
+
+    monkeypatch.setattr(SigmfWriter, "write", filling)
+    path = tmp_path / "p.toml"
+    path.write_text(HEAD.replace("duration_s = 0.2", "duration_s = 0.8") + STEPS.split('[[step]]\nname = "step-60"')[0])
+    session = tmp_path / "s"
+    code = main(["capture", str(path), "--out", str(session), "--device", "simulated", "--seed", "2", "--yes"])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.splitlines()[-1].startswith("rxbench capture: error: ") and "No space left" in err.splitlines()[-1]
+    assert "Traceback" not in err
+    assert open_capture(session / "01-thru.sigmf-meta").extra.get("incomplete") is None
+    partial = open_capture(session / "02-dut.partial.sigmf-meta")
+    assert partial.extra["incomplete"] is True and partial.n_samples > 0 and partial.extra["role"] == "dut"
+    assert [p.name for p in session.iterdir() if p.name.startswith(".")] == []
+
+
+def test_resume_verifies_what_it_keeps(tmp_path):
+    """Garbage metadata, a deleted data file, a short data file and stale temporaries: each named,
+    the recordings moved aside (never deleted) and captured again; a killed writer's samples kept."""
+    from rxbench.recordings import SigmfWriter
+
+    three = plan(HEAD + STEPS.split('[[step]]\nname = "cold"')[0])
+    session = tmp_path / "s"
+    first = run_session(three, session, SimulatedBench(seed=1), yes=True)
+    assert len(first.written) == 3
+    (session / "01-thru.sigmf-meta").write_text("garbage")
+    (session / "02-dut.sigmf-data").unlink()
+    with open(session / "03-step-60.sigmf-data", "r+b") as f:
+        f.truncate(1024)
+    (session / ".plan.toml.0123abcd.tmp").write_text("")  # an empty temporary of a plan copy
+    killed = SigmfWriter(session / "09-x", sample_rate_hz=250e3, extra={"role": "thru"})
+    killed.write(np.full(4096, 128, np.uint8))
+    killed._file.flush()  # the writer is killed here: nothing of it runs again
+    run = run_session(three, session, SimulatedBench(seed=2), yes=True)
+    text = "\n".join(run.warnings)
+    assert "01-thru: not kept (metadata is not valid JSON" in text
+    assert "02-dut: not kept (its data file is missing)" in text
+    assert "03-step-60: not kept (it holds 512 samples, the plan's capture 50176)" in text
+    assert "removed 1 temporary file(s)" in text and ".plan.toml.0123abcd.tmp" in text
+    assert "09-x.partial.sigmf-meta: kept what a capture that was killed" in text
+    assert open_capture(session / "09-x.partial.sigmf-meta").n_samples == 2048
+    assert [p.name for p in run.written] == ["01-thru.sigmf-meta", "02-dut.sigmf-meta", "03-step-60.sigmf-meta"]
+    aside = sorted(p.name for p in (session / REPLACED_DIR).iterdir())
+    assert len(aside) == 5 and sum(n.startswith("01-thru") for n in aside) == 2  # both files of 01, 02's meta, 03's pair
+    assert [p.name for p in session.iterdir() if p.name.startswith(".") and p.name != REPLACED_DIR] == []
