@@ -60,10 +60,14 @@ QUANTITIES: dict[str, Quantity] = {
 
 
 def _range_text(q: Quantity) -> str:
-    lo = "(" if q.low_open else "["
-    hi = ")" if q.high_open else "]"
     unit = f" {q.unit}" if q.unit else ""
-    return f"{lo}{q.low:g}, {q.high:g}{hi}{unit}"
+    lo = f"{'>' if q.low_open else '>='} {q.low:g}{unit}"
+    hi = f"{'<' if q.high_open else '<='} {q.high:g}{unit}"
+    return f"{lo} and {hi}"
+
+
+def _article(words: str) -> str:
+    return ("an " if words[:1].lower() in "aeiou" or words.startswith(("SWR", "ENR")) else "a ") + words
 
 
 def check(value, quantity: str, name: str) -> float:
@@ -71,17 +75,17 @@ def check(value, quantity: str, name: str) -> float:
     :class:`QuantityError` naming ``name`` (e.g. ``--rate`` or ``plan.toml, line 3: center_hz``)."""
     q = QUANTITIES[quantity]
     if isinstance(value, bool):
-        raise QuantityError(f"{name}: {value!r} is not a number ({q.what})")
+        raise QuantityError(f"{name}: {_article(q.what)} must be a number, got {value!r}")
     try:
         x = float(value)
     except (TypeError, ValueError, OverflowError):
-        raise QuantityError(f"{name}: {value!r} is not a number ({q.what})") from None
+        raise QuantityError(f"{name}: {_article(q.what)} must be a number, got {value!r}") from None
     if not math.isfinite(x):
-        raise QuantityError(f"{name}: {value!r} is not a finite number ({q.what})")
+        raise QuantityError(f"{name}: {_article(q.what)} must be a finite number, got {value!r}")
     below = x <= q.low if q.low_open else x < q.low
     above = x >= q.high if q.high_open else x > q.high
     if below or above:
-        raise QuantityError(f"{name}: {x:g} is outside {_range_text(q)}, the range of a {q.what}")
+        raise QuantityError(f"{name}: {_article(q.what)} must be {_range_text(q)}, got {x:g}")
     return x
 
 
