@@ -71,14 +71,16 @@ def _capture_cmd(plan: Path, out: Path) -> list[str]:
             "--yes", "--seed", "3", "--json"]
 
 
-def _check_session(out: Path) -> tuple[int, int]:
+def _check_session(out: Path, plan_path: Path) -> tuple[int, int]:
     """Every recording in ``out`` is valid: complete ones as the plan asks, partials marked incomplete;
     no temporaries. Returns (complete, partial) counts."""
     if not out.exists():
         return 0, 0
     hidden = [p.name for p in out.iterdir() if p.name.startswith(".") and p.name != ".replaced"]
     assert hidden == [], f"temporaries left: {hidden}"
-    plan = load_plan(out / "plan.toml")
+    plan = load_plan(plan_path)  # the session's copy may not be there yet: a signal can come first
+    if (out / "plan.toml").exists():
+        assert (out / "plan.toml").read_text() == plan_path.read_text()  # whole, never half-written
     by_name = {c.base_name: c for c in plan.expand()}
     complete = partial = 0
     for meta in sorted(out.glob("*.sigmf-meta")):
@@ -119,13 +121,13 @@ def _one_run(tmp_path: Path, signum: int, rng: random.Random, k: int) -> str:
         assert err.splitlines()[-1].startswith("rxbench") and WORDS[signum] in err.splitlines()[-1], err
         assert stdout == b""
         outcome = "stopped"
-    complete, _ = _check_session(out)
+    complete, _ = _check_session(out, plan)
     # The rerun resumes: what was complete is kept, the rest captured; the plan is then whole.
     again = subprocess.run(_capture_cmd(plan, out), capture_output=True, stdin=subprocess.DEVNULL, timeout=120)
     assert again.returncode == 0, again.stderr.decode()
     doc = json.loads(again.stdout)
     assert len(doc["kept"]) == complete and doc["complete"] is True
-    assert _check_session(out)[0] == len(load_plan(plan).expand())
+    assert _check_session(out, plan)[0] == len(load_plan(plan).expand())
     return outcome
 
 
