@@ -166,3 +166,25 @@ def test_interrupt_during_start_up_is_one_line(tmp_path):
         assert "Traceback" not in err, err
         assert err.count("\n") == 1, err
         assert proc.returncode in (130, 2), err  # interrupted, or it had already found the file missing
+
+
+def test_a_signal_that_surfaced_as_another_exception_keeps_its_status(monkeypatch, capsys):
+    """numpy turns an interrupt of its own import into an ImportError: the remembered signal wins."""
+    from rxbench import cli, interrupts
+
+    monkeypatch.setattr(interrupts, "install", lambda: None)
+    monkeypatch.setattr(interrupts, "_received", [int(signal.SIGTERM)])
+    monkeypatch.setattr(sys, "argv", ["rxbench", "inspect", "x.wav"])
+
+    def failing_import(argv=None):
+        raise ImportError("numpy failed to import")
+
+    monkeypatch.setattr(cli, "build_parser", failing_import)
+    with pytest.raises(SystemExit) as stop:
+        cli.run_console()
+    assert stop.value.code == 143
+    assert capsys.readouterr().err == "rxbench: terminated (SIGTERM)\n"
+    # Without a signal the same ImportError is a defect and keeps its traceback.
+    monkeypatch.setattr(interrupts, "_received", [])
+    with pytest.raises(ImportError):
+        cli.run_console()
