@@ -296,3 +296,31 @@ def test_questionable_numbers_carry_a_warning(warn_files, capsys, argv, needle):
     doc = json.loads(io.out)
     assert any(needle in w for w in doc["warnings"]), doc["warnings"]
     assert needle in io.err
+
+
+def test_the_audio_library_failing_mid_write_is_one_line_and_leaves_nothing(tmp_path, monkeypatch, capsys):
+    """soundfile's own error (a full disk while writing WAV): one line, exit 2, no temporary left."""
+    import soundfile as sf
+
+    def failing_write(self, data):
+        raise sf.LibsndfileError(0x7, "Error writing: ")
+
+    monkeypatch.setattr(sf.SoundFile, "write", failing_write)
+    code = main(["synth", str(tmp_path / "x.wav"), "--rate", "48000", "--duration", "0.1", "--offset", "1000"])
+    err = capsys.readouterr().err
+    assert code == 2 and err.count("\n") == 1 and "Traceback" not in err and "LibsndfileError" in err
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_deep_recursion_and_memory_are_one_line(monkeypatch, capsys, files):
+    """RecursionError and MemoryError from anywhere in a command: one line, exit 2."""
+    import rxbench.commands.inspect as inspect_cmd
+
+    for exc, words in ((RecursionError(), "nested too deeply"), (MemoryError(), "out of memory"),
+                       (OverflowError("math range error"), "out of range")):
+        def boom(args, exc=exc):
+            raise exc
+        monkeypatch.setattr(inspect_cmd, "run", boom)
+        code = main(["inspect", files["thru"]])
+        err = capsys.readouterr().err
+        assert code == 2 and err.count("\n") == 1 and words in err, err
