@@ -21,6 +21,7 @@ import time
 
 from rxbench.errors import UsageError
 from rxbench.output import CAUTIONS, add_json_option, json_safe
+from rxbench.quantities import arg as quantity_arg
 
 #: Width of the level bar, characters; it spans BAR_RANGE_DB below full scale.
 BAR_WIDTH = 30
@@ -40,21 +41,21 @@ def add_parser(sub) -> None:
     )
     p.add_argument("--plan", metavar="PLAN", help="take the settings from this plan (TOML)")
     p.add_argument("--step", metavar="NAME", help="the plan's step to set up for (default: its first tone step)")
-    p.add_argument("--center", type=float, metavar="HZ", help="centre frequency, Hz (without --plan)")
-    p.add_argument("--rate", type=float, default=250000.0, metavar="HZ", help="sample rate, Hz (default 250000)")
-    p.add_argument("--gain", type=float, default=30.0, metavar="DB", help="tuner gain, dB (default 30)")
+    p.add_argument("--center", type=quantity_arg("frequency"), metavar="HZ", help="centre frequency, Hz (without --plan)")
+    p.add_argument("--rate", type=quantity_arg("sample_rate"), default=250000.0, metavar="HZ", help="sample rate, Hz (default 250000)")
+    p.add_argument("--gain", type=quantity_arg("gain_db"), default=30.0, metavar="DB", help="tuner gain, dB (default 30)")
     p.add_argument("--ppm", type=int, default=0, metavar="N", help="frequency correction, ppm")
-    p.add_argument("--full-scale-dbm", type=float, metavar="DBM",
+    p.add_argument("--full-scale-dbm", type=quantity_arg("level_dbm"), metavar="DBM",
                    help="input level that reaches full scale at this gain (for readings in dBm)")
-    p.add_argument("--generator-dbm", type=float, metavar="DBM", help="the generator's output level, dBm")
-    p.add_argument("--attenuation-db", type=float, default=0.0, metavar="DB", help="the attenuator's setting, dB")
-    p.add_argument("--tone-offset", type=float, metavar="HZ",
+    p.add_argument("--generator-dbm", type=quantity_arg("level_dbm"), metavar="DBM", help="the generator's output level, dBm")
+    p.add_argument("--attenuation-db", type=quantity_arg("attenuation_db"), default=0.0, metavar="DB", help="the attenuator's setting, dB")
+    p.add_argument("--tone-offset", type=quantity_arg("offset"), metavar="HZ",
                    help="read the tone near this offset from the centre (default: the strongest)")
     p.add_argument("--device", choices=("rtlsdr", "simulated"), default="rtlsdr",
                    help="the dongle (default) or the simulated bench")
     p.add_argument("--device-index", type=int, default=0, metavar="N", help="which dongle, when several are attached")
     p.add_argument("--seed", type=int, default=None, metavar="N", help="noise seed of the simulated bench")
-    p.add_argument("--interval", type=float, default=0.25, metavar="S",
+    p.add_argument("--interval", type=quantity_arg("duration_s"), default=0.25, metavar="S",
                    help="seconds of samples per update (default 0.25: four updates a second)")
     p.add_argument("--updates", type=int, default=0, metavar="N", help="stop after N updates (default: run until stopped)")
     p.add_argument("--force", action="store_true",
