@@ -173,6 +173,11 @@ def test_several_centre_frequencies_stitched_into_one_csv(tmp_path, capsys):
     lines = csv_path.read_text().splitlines()
     assert lines[0].startswith("frequency_hz,low_hz,high_hz,tuned_hz,enr_db,y_db,noise_figure_db")
     assert len(lines) == len(res["curve"]) + 1
+    # full precision in the CSV: the frequencies read back exactly as the JSON has them (at 100 MHz
+    # six significant digits would lose everything below 100 Hz)
+    import csv as _csv
+    back = [float(r["frequency_hz"]) for r in _csv.DictReader(lines)]
+    assert back == [row["frequency_hz"] for row in res["curve"]]
     # Never overwrite the CSV unless asked.
     before = csv_path.read_text()
     err = _fails(capsys, argv + ["--csv", str(csv_path)])

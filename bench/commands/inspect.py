@@ -6,6 +6,7 @@ import argparse
 import sys
 
 from rxbench.analyze import read_capture, tone_dict
+from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
@@ -56,17 +57,17 @@ def run(args: argparse.Namespace) -> int:
         "mean_power_dbfs": db_from_power(r.health.power),
         "warnings": r.warnings,
     }
-    lines = [f"{cap.path}: {cap.n_samples} samples at {cap.sample_rate_hz:g} Hz ({cap.duration_s:.3g} s)"]
+    lines = [f"{cap.path}: {cap.n_samples} samples at {fmt_hz(cap.sample_rate_hz, 1.0)} ({cap.duration_s:.3g} s)"]
     if t is None:
         lines.append("  tone          none found above the noise")
     else:
-        freq = "" if cap.center_hz is None else f"  ({(cap.center_hz + t.offset_hz) / 1e6:.6f} MHz)"
+        freq = "" if cap.center_hz is None else f"  ({fmt_hz_band(cap.center_hz + t.offset_hz, 1.0)})"
         lo, hi = t.ci95_dbfs
         lines += [
             f"  tone          {t.offset_hz:+.1f} Hz{freq}",
             f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)})",
             f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
-            f"  SNR           {fmt_db(t.snr_db, 1)} dB in {t.snr_bandwidth_hz:g} Hz",
+            f"  SNR           {fmt_db(t.snr_db, 1)} dB in {fmt_hz(t.snr_bandwidth_hz)}",
         ]
     lines += [
         f"  noise         {fmt_db(result['noise']['density_dbfs_per_hz'])} dBFS/Hz",

@@ -18,6 +18,7 @@ from rxbench.analyze import accumulate, choose_nperseg, health_warnings, read_ca
 from rxbench.enr import read_enr_table
 from rxbench.files import check_output
 from rxbench.errors import MeasurementError, UsageError
+from rxbench.style import fmt_hz_band
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
 from rxbench.dsp import noisefig as nfm
@@ -351,7 +352,7 @@ def _write_csv(path: Path, rows: list[dict], overwrite: bool) -> None:
     w.writeheader()
     for row in rows:
         w.writerow({k: ("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else
-                        (f"{v:.6g}" if isinstance(v, float) else v)) for k, v in row.items()})
+                        (repr(v) if isinstance(v, float) else v)) for k, v in row.items()})  # full precision
     with atomic_path(path, overwrite) as tmp:
         tmp.write_text(buf.getvalue(), encoding="utf-8")
 
@@ -480,18 +481,18 @@ def _human_y(result, results, curve, args) -> list[str]:
                                                    else "; the ENR's own uncertainty is not included (--enr-u-db)"))
     if many:
         for b in result["bands"]:
-            lines.append(f"  {b['center_hz'] / 1e6:12.6f} MHz  Y {fmt_db(b['y_db'])} dB  NF "
+            lines.append(f"  {fmt_hz_band(b['center_hz']):>18}  Y {fmt_db(b['y_db'])} dB  NF "
                          f"{_pm(b['noise_figure_db'], b['noise_figure_u_db'])}"
                          + (f"  loss {_pm(b['insertion_loss_db'], b['insertion_loss_u_db'])}"
                             if "insertion_loss_db" in b else ""))
     absolute = curve and "frequency_hz" in curve[0]
     head = "  frequency MHz" if absolute else "  offset kHz   "
     dut = curve and "insertion_loss_db" in curve[0]
-    lines.append("Across frequency (± is 95 %):")
+    lines.append("Across frequency (± is U, k = 2):")
     lines.append(head + "   NF dB       " + ("   loss dB" if dut else ""))
     for row in curve:
         f = row["frequency_hz"] / 1e6 if absolute else row["offset_hz"] / 1e3
-        text = f"  {f:13.6f}" if absolute else f"  {f:+13.3f}"
+        text = f"  {f:13.3f}" if absolute else f"  {f:+13.3f}"
         text += f"   {fmt_db(row['noise_figure_db'])} ± {fmt_db(K_EXPANDED * row['noise_figure_u_db'])}"
         if dut:
             text += f"   {fmt_db(row['insertion_loss_db'])} ± {fmt_db(K_EXPANDED * row['insertion_loss_u_db'])}"
