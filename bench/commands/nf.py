@@ -352,7 +352,7 @@ def _write_csv(path: Path, rows: list[dict], overwrite: bool) -> None:
     w.writeheader()
     for row in rows:
         w.writerow({k: ("" if v is None or (isinstance(v, float) and not math.isfinite(v)) else
-                        (repr(v) if isinstance(v, float) else v)) for k, v in row.items()})  # full precision
+                        (repr(float(v)) if isinstance(v, float) else v)) for k, v in row.items()})  # full precision
     with atomic_path(path, overwrite) as tmp:
         tmp.write_text(buf.getvalue(), encoding="utf-8")
 
