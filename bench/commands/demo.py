@@ -19,6 +19,7 @@ import numpy as np
 
 from rxbench.errors import UsageError
 from rxbench.output import add_json_option, emit
+from rxbench.style import fmt_hz
 from rxbench.report import summary_lines
 from rxbench.dsp import synth
 from rxbench.dsp.units import K_B, T0_K, db_from_power, power_from_db
@@ -399,9 +400,9 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
 
 
 def _check_line(c: dict) -> str:
-    f = "" if c["frequency_hz"] is None else f" at {c['frequency_hz'] / 1e6:.3f} MHz"
+    f = "" if c["frequency_hz"] is None else f" at {fmt_hz(c['frequency_hz'])}"
     ok = "within" if c["within"] else "OUTSIDE"
-    return (f"{c['quantity']}{f}: {c['measured']:.3f} ± {c['expanded_uncertainty']:.3f} dB, "
+    return (f"{c['quantity']}{f}: {c['measured']:.3f} ± {c['expanded_uncertainty']:.3f} dB (U, k = 2), "
             f"truth {c['truth']:.3f} dB ({ok} U)")
 
 
@@ -414,7 +415,7 @@ def truth_markdown(checks: list[dict]) -> str:
              "| quantity | frequency | measured (dB) | U (dB) | truth (dB) | within U | detail |",
              "|---|---|---|---|---|---|---|"]
     for c in checks:
-        f = "" if c["frequency_hz"] is None else f"{c['frequency_hz'] / 1e6:.4f} MHz"
+        f = "" if c["frequency_hz"] is None else fmt_hz(c["frequency_hz"])
         lines.append(f"| {c['quantity']} | {f} | {c['measured']:.3f} | {c['expanded_uncertainty']:.3f} | "
                      f"{c['truth']:.3f} | {'yes' if c['within'] else '**no**'} | {c['detail']} |")
     return "\n".join(lines)
@@ -425,7 +426,7 @@ def _answer(analysis) -> str:
     if not costs:
         return "no SNR cost on 10 m could be worked out (see the warnings)"
     parts = [f"{c['snr_degradation_db']:.2f} ± {c['expanded_uncertainty_db']:.2f} dB at "
-             f"{c['frequency_hz'] / 1e6:.1f} MHz (loss {c['loss_db']:.2f} dB, band noise {c['excess_db']:.1f} dB "
+             f"{fmt_hz(c['frequency_hz'])} (loss {c['loss_db']:.2f} dB, band noise {c['excess_db']:.1f} dB "
              "above the receiver's)" for c in costs]
     return ("on 10 m the splitter and filter cost " + "; ".join(parts)
             + ": the band noise at this quiet site sits well above the receiver's own, so the SNR suffers far "
