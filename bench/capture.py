@@ -6,7 +6,8 @@ A session is a folder holding:
   capture's position in the plan); its metadata carries, under the ``rxbench:`` extension namespace,
   ``role``, ``step``, ``repeat``, ``attenuation_db``, ``gain_db``, ``with_dut``, ``ppm``,
   ``generator_dbm`` and ``tone_offset_hz`` (tone roles, when known), ``enr_db`` and ``u_enr_db``
-  (hot/cold), ``attenuator_tolerance_db``, ``devices`` (a back-to-back pair: 2), ``dropped_samples``
+  (hot/cold), ``attenuator_tolerance_db``, ``devices`` (a back-to-back pair: 2), ``device`` (the
+  step's device label, when named), ``dropped_samples``
   and ``simulated``; ``core:datetime`` is the capture's start;
 - ``plan.toml``, the plan's text as it was run;
 - ``log.txt``, one timestamped line per event (appended, never rewritten);
@@ -466,7 +467,7 @@ def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: Session
         if name not in announced:
             announced.add(name)
             text = _instruction_text(plan, cap, n_steps)
-            if yes:
+            if yes or not cap.step.instruction:  # a sweep step with nothing to change: no need to wait
                 show.line(text)
             else:
                 answer = ask(text + "\n  Enter: capture   s: skip this step   q: stop here > ").lower()
@@ -575,6 +576,8 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
     extra.update(dict(cap.swr))  # keys.SWRS: the plan's [match] names are the metadata keys
     if cap.step.devices != 1:
         extra[keys.DEVICES] = cap.step.devices
+    if cap.step.device:
+        extra[keys.DEVICE] = cap.step.device
     if settings.direct_sampling != "off":
         extra[keys.DIRECT_SAMPLING] = settings.direct_sampling
     if settings.upconverter_hz:

@@ -33,6 +33,7 @@ GAIN_DB = "gain_db"  # the dongle's fixed gain
 PPM = "ppm"  # frequency correction applied
 WITH_DUT = "with_dut"  # the DUT is in the path
 DEVICES = "devices"  # identical devices in series (2: back-to-back pair)
+DEVICE = "device"  # which device is in the path: the plan step's label (several devices compared)
 GENERATOR_DBM = "generator_dbm"  # generator level (nominal)
 TONE_OFFSET_HZ = "tone_offset_hz"  # tone minus centre frequency
 ENR_DB = "enr_db"  # noise-source ENR at the centre frequency

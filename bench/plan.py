@@ -45,7 +45,9 @@ Schema (every quantity carries its unit in its name)::
     repeats = 1
     attenuation_db = 0
 
-    [[step]]                 # one or more, captured in order
+    [[sweep]]                # optional: many steps across frequency (see bench.sweep)
+
+    [[step]]                 # one or more (or sweeps), captured in order
     name = "thru"            # unique; letters, digits, '-', '_', '.'; used in file names
     role = "thru"            # thru, dut, step, hot, cold, antenna or load
     attenuation_db = 60      # the step attenuator's setting (nominal), dB
@@ -89,6 +91,8 @@ DIRECT_SAMPLING_HIGH_HZ = 14.4e6
 
 #: Largest plan file read, bytes (a plan of a hundred steps is about 10 kB).
 PLAN_LIMIT_BYTES = 1024 * 1024
+#: Most steps a plan may expand to.
+MAX_STEPS = 5000
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -132,6 +136,8 @@ class Step:
     with_dut: bool
     line: int  # line of the step's [[step]] header
     devices: int = 1  # identical devices in series (back-to-back pair: 2)
+    device: str = ""  # which device is in the path (a label of the plan's choosing), when named
+    sweep: str = ""  # the [[sweep]] this step was expanded from, if any
 
 
 @dataclass(frozen=True)
@@ -353,7 +359,7 @@ class _Checker:
 
 
 _TOP = ("title", "description", "dongle", "generator", "attenuator", "match", "noise_source", "check", "defaults",
-        "step")
+        "step", "sweep")
 _DONGLE = ("sample_rate_hz", "gain_db", "ppm", "direct_sampling", "upconverter_hz", "bias_tee",
            "settle_s", "full_scale_dbm")
 _GENERATOR = ("level_dbm", "offset_hz")
@@ -362,7 +368,7 @@ _ATTENUATOR = ("tolerance_db",)
 _CHECK = ("level_tolerance_db", "stop_on_failure")
 _MATCH = keys.SWRS
 _STEP_COMMON = ("attenuation_db", "center_hz", "duration_s", "repeats", "with_dut")
-_STEP = ("name", "role", "instruction", "devices") + _STEP_COMMON
+_STEP = ("name", "role", "instruction", "devices", "device") + _STEP_COMMON
 
 
 def _valid_rate(rate_hz: float) -> bool:
@@ -412,6 +418,9 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     up = c.number("dongle", d, "upconverter_hz", default=0.0, low=0, quantity="frequency")
     if ds != "off" and up:
         c.fail("dongle", "upconverter_hz", "direct sampling and an upconverter exclude each other")
+    if ds != "off":
+        warnings.append(f"{name}: direct sampling: the converter's input has no protection of its own (no tuner "
+                        "in front of it): never let a transmitter near it; the gain setting has no effect")
     dongle = DongleSettings(
         sample_rate_hz=rate,
         gain_db=gain,
@@ -484,8 +493,10 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
     c.known("defaults", defaults, _STEP_COMMON)
 
     raw_steps = data.get("step")
+    if raw_steps is None and "sweep" in data:
+        raw_steps = []
     if raw_steps is None:
-        c.fail("", None, "the plan has no steps (add one or more [[step]] tables)")
+        c.fail("", None, "the plan has no steps (add one or more [[step]] or [[sweep]] tables)")
     if not isinstance(raw_steps, list) or not all(isinstance(s, dict) for s in raw_steps):
         c.fail("", "step", "must be written as [[step]] tables")
     steps: list[Step] = []
@@ -529,6 +540,12 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         devices = c.number("step", s, "devices", default=1, integer=True, low=1, high=100, **kw)
         if devices != 1 and role != "dut":
             c.fail("step", "devices", f"only a 'dut' step holds devices in series; this one is {role!r}", **kw)
+        device = c.string("step", s, "device", default="", **kw)
+        if device and (not _NAME_RE.match(device) or len(device) > 64):
+            c.fail("step", "device", f"must be 1-64 letters, digits, '-', '_' or '.'; got {device!r}", **kw)
+        if device and not with_dut:
+            c.fail("step", "device", "names the device in the path, but the device is not in it (with_dut = "
+                                     "false)", **kw)
         if role in NOISE_SOURCE_ROLES and enr is None and not enr_table:
             c.fail("step", "role", f"{role!r} needs the noise source's ENR: add [noise_source] enr_db "
                                    "or enr_table", **kw)
@@ -540,7 +557,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
             c.fail("step", "duration_s", f"{duration:g} s at {rate:g} Hz is only {n_samples:.0f} samples; "
                                          "take at least 16384", **kw)
         line = c.lines.line("step", None, i)
-        steps.append(Step(i, nm, role, att, center, duration, repeats, instruction, with_dut, line, devices))
+        steps.append(Step(i, nm, role, att, center, duration, repeats, instruction, with_dut, line, devices, device))
         tuned = center + dongle.upconverter_hz
         if ds == "off" and tuned < TUNER_LOW_HZ:
             warnings.append(f"{name}, line {line}: step {nm!r} tunes {tuned / 1e6:g} MHz, below what most "
@@ -551,6 +568,13 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         if enr_table and role in NOISE_SOURCE_ROLES and not enr_table[0][0] <= center <= enr_table[-1][0]:
             warnings.append(f"{name}, line {line}: step {nm!r} at {center / 1e6:g} MHz is outside the ENR "
                             "table; its end value is used")
+    if "sweep" in data:
+        from rxbench.sweep import expand_sweeps, merge_and_order
+
+        sweeps = expand_sweeps(c, data, defaults, dongle, offset, set(seen), warnings, name)
+        steps = merge_and_order(steps, sweeps, dongle, offset)
+        if len(steps) > MAX_STEPS:
+            c.fail("sweep", None, f"the plan expands to {len(steps)} steps, more than {MAX_STEPS}")
     if any(s.role in TONE_ROLES for s in steps) and level is None:
         warnings.append(f"{name}: no [generator] level_dbm: the level at the dongle's input cannot be "
                         "checked before capture")

@@ -89,6 +89,17 @@ def passive_loss(
     return x * np.sqrt(h2) + thermal_noise(x.size, sample_rate_hz, temperature_k * (1 - h2), rng)
 
 
+def if_response_db(offset_hz, sample_rate_hz: float, ripple_db: float = 0.0, ripple_period_hz: float = 200e3,
+                   rolloff_db: float = 0.0) -> np.ndarray:
+    """A dongle's IF response (gain, dB) at ``offset_hz`` from the centre: a passband ripple of
+    ``ripple_db`` peak-to-peak and a roll-off growing as the eighth power of the offset to
+    ``-rolloff_db`` at the band edges (+/- half the sample rate). Invented shape, for the simulated
+    bench; what matters is that it is not flat."""
+    u = np.abs(np.asarray(offset_hz, dtype=float)) / (sample_rate_hz / 2.0)
+    ripple = 0.5 * ripple_db * np.cos(2 * np.pi * np.asarray(offset_hz, dtype=float) / ripple_period_hz)
+    return ripple - rolloff_db * u**8
+
+
 def rapp(x: np.ndarray, saturation: float, p: float = 2.0) -> np.ndarray:
     """Rapp AM/AM compression: |y| = |x| / (1 + (|x|/saturation)**(2p))**(1/(2p)), phase kept."""
     r = np.abs(x)
@@ -117,6 +128,9 @@ class Dongle:
         ADC resolution (8 as the RTL2832U delivers); None leaves samples unquantised.
     freq_offset_ppm, center_hz : float
         Tuning error (ppm of ``center_hz``) shifts everything by ppm*1e-6*center_hz.
+    if_ripple_db, if_ripple_period_hz, if_rolloff_db : float
+        The IF response after the receiver's own noise (:func:`if_response_db`): passband ripple
+        (peak-to-peak, dB, one cycle per period) and the roll-off reached at the band edges (dB).
     """
 
     gain_db: float = 40.0
@@ -129,6 +143,9 @@ class Dongle:
     bits: int | None = 8
     freq_offset_ppm: float = 0.0
     center_hz: float = 100e6
+    if_ripple_db: float = 0.0
+    if_ripple_period_hz: float = 200e3
+    if_rolloff_db: float = 0.0
 
     @property
     def noise_temperature_k(self) -> float:
@@ -139,6 +156,13 @@ class Dongle:
             np.size(x_w), sample_rate_hz, self.noise_temperature_k, rng
         )
         x = x * np.sqrt(1e3) * amplitude_from_db(self.gain_db)
+        if self.if_ripple_db or self.if_rolloff_db:
+            import scipy.fft  # here, not at the top: a slow import
+
+            f = scipy.fft.fftfreq(x.size, 1.0 / sample_rate_hz)
+            h = amplitude_from_db(if_response_db(f, sample_rate_hz, self.if_ripple_db, self.if_ripple_period_hz,
+                                                 self.if_rolloff_db))
+            x = scipy.fft.ifft(scipy.fft.fft(x) * h)
         if self.freq_offset_ppm:
             shift = self.freq_offset_ppm * 1e-6 * self.center_hz
             x = x * np.exp(2j * np.pi * shift * np.arange(x.size) / sample_rate_hz)

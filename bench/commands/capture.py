@@ -25,7 +25,10 @@ def add_parser(sub) -> None:
         ),
     )
     p.add_argument("plan", metavar="PLAN", help="the plan file (TOML)")
-    p.add_argument("--out", required=True, metavar="SESSION", help="session folder (created, or resumed)")
+    p.add_argument("--out", metavar="SESSION", help="session folder (created, or resumed); required unless --dry-run")
+    p.add_argument("--dry-run", action="store_true",
+                   help="capture nothing: list the steps as the plan expands them (sweeps included), their "
+                        "count, the total capture time and size, and how many operator actions they need")
     p.add_argument("--device", choices=("rtlsdr", "simulated"), default="rtlsdr",
                    help="capture from an RTL2832U dongle (default) or from the simulated bench")
     p.add_argument("--device-index", type=int, default=0, metavar="N", help="which dongle, when several are attached")
@@ -60,6 +63,10 @@ def run(args: argparse.Namespace) -> int:
     if args.device_index < 0:
         raise UsageError(f"--device-index must be >= 0, got {args.device_index}")
     plan = load_plan(args.plan)
+    if args.dry_run:
+        return _dry_run(args, plan)
+    if not args.out:
+        raise UsageError("--out SESSION is needed (or --dry-run to only list the steps)")
     device = open_source(args.device, device_index=args.device_index, seed=args.seed)
     # The cautions come once every check has passed, just before the first capture: never in front
     # of an error.
@@ -101,4 +108,23 @@ def run(args: argparse.Namespace) -> int:
         lines.append(f"  next: rxbench analyze {result.session_dir}")
     lines.append(CAUTIONS)
     emit(args, out, "\n".join(lines), result.warnings)
+    return 0
+
+
+def _dry_run(args, plan) -> int:
+    from rxbench.sweep import dry_run
+
+    d = dry_run(plan)
+    lines = [f"Plan {plan.source}" + (f": {plan.title}" if plan.title else "")]
+    for s in d["steps"]:
+        where = f"{s['center_hz'] / 1e6:9.4f} MHz"
+        path = (s["device"] or "DUT") + (f" x{s['devices']}" if s["devices"] > 1 else "") if s["with_dut"] else "-"
+        lines.append(f"  {s['index']:4d} {s['name']:<32} {s['role']:<7} {where} att {s['attenuation_db']:g} dB  "
+                     f"path {path:<16} {s['duration_s']:g} s x{s['repeats']}"
+                     + (f"  | {s['instruction']}" if s["instruction"] else ""))
+    lines.append(f"{d['step_count']} steps, {d['capture_count']} captures, about {d['capture_time_s']:.0f} s of "
+                 f"capturing (settling included, operator time not), {d['size_bytes'] / 1e6:.1f} MB of recordings, "
+                 f"{d['operator_actions']} operator actions after the first set-up")
+    lines.append(CAUTIONS)
+    emit(args, d, "\n".join(lines), list(plan.warnings))
     return 0
