@@ -140,7 +140,8 @@ def summary_lines(analysis: Analysis) -> list[str]:
         text = (f"noise figure (receiver) at {_mhz(n['center_hz'])}: "
                 f"{_pm(n['noise_figure_db'], n['expanded_uncertainty_db'])}")
         if n.get("insertion_loss_db") is not None:
-            text += (f"; DUT loss over the band {_pm(n['insertion_loss_db'], n['expanded_uncertainty_loss_db'])}")
+            text += (f"; {n.get('device') or 'DUT'} loss over the band "
+                     f"{_pm(n['insertion_loss_db'], n['expanded_uncertainty_loss_db'])}")
         lines.append(text)
     for ex in analysis.external_noise:
         lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
@@ -615,6 +616,9 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
         for p, why in s.skipped:
             w(f"- `{p.name}`: {why}\n")
         w("\n")
+    from rxbench.sweep_report import band_markdown
+
+    w(band_markdown(analysis, plots))
     w("## Warnings\n\n")
     if analysis.warnings:
         for x in analysis.warnings:
@@ -650,6 +654,10 @@ def write_report(analysis: Analysis, *, overwrite: bool = False, extra_markdown:
             plots["frequency"] = "frequency.png"
         if plot_snr_cost(analysis, tmp / "snr-cost.png"):
             plots["snr_cost"] = "snr-cost.png"
+        from rxbench import sweep_report
+
+        if sweep_report.plot_bands(analysis, tmp / sweep_report.BAND_PLOT):
+            plots["bands"] = sweep_report.BAND_PLOT
         doc = analysis.to_dict()
         doc["plots"] = [p for v in plots.values() for p in (v if isinstance(v, list) else [v])]
         if extra_json:
@@ -658,6 +666,8 @@ def write_report(analysis: Analysis, *, overwrite: bool = False, extra_markdown:
             json.dump(json_safe(doc), f, indent=2, allow_nan=False)
             f.write("\n")
         write_csv(csv_rows(analysis), tmp / "results.csv")
+        if analysis.per_band or analysis.per_band_noise_figure:
+            sweep_report.write_band_csv(sweep_report.band_csv_rows(analysis), tmp / sweep_report.BAND_CSV)
         (tmp / "report.md").write_text(markdown(analysis, plots, extra_markdown), encoding="utf-8")
         return _install(tmp, final, overwrite)
     finally:

@@ -38,7 +38,9 @@ from rxbench.analyze import (CENTER_TOLERANCE_HZ, SWR_FROM_PLAN, Reading, captur
                            pool_tones, read_capture, setup_difference, signal_differences, tone_dict)
 from rxbench.errors import CaptureError, RxbenchError, UsageError
 from rxbench.recordings import META_SUFFIX, Capture, open_capture
+from rxbench.dsp import bands as bands_mod
 from rxbench.dsp import environment as env
+from rxbench.dsp.bands import AMATEUR_BANDS
 from rxbench.dsp import ladder as ladder_mod
 from rxbench.dsp import noisefig
 from rxbench.dsp.same_signal import DEFAULT_PPM
@@ -62,22 +64,6 @@ LOW_EXCESS_DB = 1.0
 #: Half-width of the dongle's linearity between two levels, once a ladder check found them linear, dB
 #: (the check's own limit, :data:`dsp.ladder.DEFAULT_LINEARITY_DB`).
 LADDER_LINEARITY_DB = ladder_mod.DEFAULT_LINEARITY_DB
-
-#: Amateur bands by their widest regional limits, Hz (common practice: IARU band plans).
-AMATEUR_BANDS = (
-    ("160 m", 1.8e6, 2.0e6),
-    ("80 m", 3.5e6, 4.0e6),
-    ("60 m", 5.25e6, 5.45e6),
-    ("40 m", 7.0e6, 7.3e6),
-    ("30 m", 10.1e6, 10.15e6),
-    ("20 m", 14.0e6, 14.35e6),
-    ("17 m", 18.068e6, 18.168e6),
-    ("15 m", 21.0e6, 21.45e6),
-    ("12 m", 24.89e6, 24.99e6),
-    ("10 m", 28.0e6, 29.7e6),
-    ("6 m", 50.0e6, 54.0e6),
-    ("2 m", 144.0e6, 148.0e6),
-)
 
 _DB = 10.0 / math.log(10.0)
 #: Name of the prediction with galactic noise added to the quietest man-made category.
@@ -116,6 +102,7 @@ class Entry:
     dropped_samples: int = 0
     u_enr_db: float | None = None
     swr: tuple[tuple[str, float], ...] = ()  # source_swr, load_swr, dut_swr recorded from the plan
+    device: str = ""  # which device is in the path (the plan step's label), when named
 
     @property
     def name(self) -> str:
@@ -221,6 +208,7 @@ def _entry(cap: Capture) -> Entry:
         dropped_samples=int(_number(x, keys.DROPPED_SAMPLES) or 0),
         u_enr_db=_number(x, keys.U_ENR_DB),
         swr=tuple(swr),
+        device=str(x.get(keys.DEVICE, "")) if through else "",
     )
 
 
@@ -332,6 +320,11 @@ class Analysis:
     losses: list = field(default_factory=list)
     noise_figure: list = field(default_factory=list)
     loss_vs_frequency: dict | None = None
+    devices: dict = field(default_factory=dict)  # device label -> stitched curve (several devices compared)
+    per_band: list = field(default_factory=list)  # loss per amateur band, per device (bench.sweep_report)
+    per_band_noise_figure: list = field(default_factory=list)
+    device_differences: list = field(default_factory=list)
+    retune_steps: list = field(default_factory=list)
     external_noise: list = field(default_factory=list)
     snr_cost: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
@@ -375,6 +368,11 @@ class Analysis:
             "losses": self.losses,
             "noise_figure": self.noise_figure,
             "loss_vs_frequency": self.loss_vs_frequency,
+            "devices": self.devices,
+            "per_band": self.per_band,
+            "per_band_noise_figure": self.per_band_noise_figure,
+            "device_differences": self.device_differences,
+            "retune_steps": self.retune_steps,
             "external_noise": self.external_noise,
             "snr_cost": self.snr_cost,
             "coverage_factor": DEFAULT_K,
@@ -761,9 +759,13 @@ def _noise_source(center, group: list[Entry], readings, analysis: Analysis, n_su
             "dut_noise_figure_db": float(dnf[-1]), "u_dut_noise_figure_db": float(u_dnf[-1]),
         })
         res["captures"].update({"cold_dut": [e.name for e in cold_d], "hot_dut": [e.name for e in hot_d]})
+        own = noisefig.excess_u_db(ns.n_hot_dut, ns.n_cold_dut, ns.dof_hot_dut, ns.dof_cold_dut)
         sub.update({"insertion_loss_db": il[:-1].tolist(), "u_insertion_loss_db": u_il[:-1].tolist(),
+                    "u_insertion_loss_own_db": np.asarray(own, dtype=float)[:-1].tolist(),
                     "dut_noise_figure_db": dnf[:-1].tolist(), "u_dut_noise_figure_db": u_dnf[:-1].tolist()})
     res["sub_bands"] = sub
+    res["device"] = cold_d[0].device if with_dut else ""
+    res["n_devices"] = cold_d[0].n_devices if with_dut else 1
     return res
 
 
@@ -775,7 +777,7 @@ def _stitch(noise: list[dict]) -> dict | None:
     freqs, keep = noisefig.stitch_offsets([n["center_hz"] for n in tuned],
                                           [n["sub_bands"]["offset_hz"] for n in tuned], [n["band_hz"] for n in tuned])
     cols = {"frequency_hz": [], "width_hz": [], "noise_figure_db": [], "u_noise_figure_db": [],
-            "insertion_loss_db": [], "u_insertion_loss_db": [], "dut_noise_figure_db": [],
+            "insertion_loss_db": [], "u_insertion_loss_db": [], "u_insertion_loss_own_db": [], "dut_noise_figure_db": [],
             "u_dut_noise_figure_db": []}
     for n, f, m in zip(tuned, freqs, keep):
         sub = n["sub_bands"]
@@ -1049,11 +1051,17 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
     for center, group in _groups(readable, TONE_ROLES).items():
         _tone_losses(center, group, a.readings, a, drift_ppm)
     for center, group in _groups(readable, ("hot", "cold")).items():
-        res = _noise_source(center, group, a.readings, a, n_sub_bands)
-        if res is not None:
-            a.noise_figure.append(res)
+        # several devices at one centre: each against the same reference captures
+        labels = sorted({e.device for e in group if e.through_dut}) or [""]
+        for label in labels:
+            part = [e for e in group if not e.through_dut or e.device == label]
+            res = _noise_source(center, part, a.readings, a, n_sub_bands)
+            if res is not None:
+                a.noise_figure.append(res)
     a.noise_figure.sort(key=lambda x: (x["center_hz"] is None, x["center_hz"] or 0.0))
-    a.loss_vs_frequency = _stitch(a.noise_figure)
+    from rxbench.sweep_report import analyse_bands
+
+    analyse_bands(a, _stitch)
     for center, group in _groups(readable, ("antenna", "load")).items():
         res = _external(center, group, a.readings, a)
         if res is not None:

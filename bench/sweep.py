@@ -42,8 +42,9 @@ from rxbench.plan import (DIRECT_SAMPLING_HIGH_HZ, NOISE_SOURCE_ROLES, TONE_ROLE
 
 #: Fraction of each capture's band the analysis leaves out at each edge (dsp.floor.usable_mask's default).
 EDGE_FRACTION = 0.1
-#: Neighbouring captures share this fraction of the usable width.
-OVERLAP_FRACTION = 0.125
+#: Neighbouring captures share this fraction of the usable width: one sub-band of the noise-source
+#: analysis (bench.session.N_SUB_BANDS = 8 per capture), so that their sub-bands fall on one grid.
+OVERLAP_FRACTION = 1.0 / 8
 #: The components of a capture's physical state, in the nesting order preferred on a tie.
 COMPONENTS = ("filter", "source", "path", "noise", "attenuation", "generator")
 
@@ -57,24 +58,27 @@ def sweep_centers(start_hz: float, stop_hz: float, sample_rate_hz: float, *, spl
                   edge_fraction: float = EDGE_FRACTION, overlap: float = OVERLAP_FRACTION) -> list[float]:
     """Centre frequencies whose usable bands cover ``start_hz``..``stop_hz``.
 
-    Neighbours are at most ``(1 - overlap)`` usable widths apart (usable width ``(1 - edge_fraction)``
-    times the sample rate), evenly spaced, the first and last usable edges on the band's ends. With
-    ``split_hz`` (direct sampling: half the converter's rate) no capture straddles it: each side is
-    covered on its own.
+    Neighbours are ``(1 - overlap)`` usable widths apart (usable width ``(1 - edge_fraction)`` times
+    the sample rate; a hair less, so that rounding never opens a gap): with ``overlap`` one sub-band
+    of the analysis, neighbouring captures' sub-bands fall on one grid and the stitched curve tiles
+    without gaps. The first usable edge sits on ``start_hz``; the last capture may reach beyond
+    ``stop_hz``. With ``split_hz`` (direct sampling: half the converter's rate) no capture straddles
+    it: below it the centres are counted down from it, above it up from it.
     """
     if not stop_hz > start_hz:
         raise ValueError(f"stop {stop_hz:g} Hz must be above start {start_hz:g} Hz")
-    if split_hz is not None and start_hz < split_hz < stop_hz:
-        return (sweep_centers(start_hz, split_hz, sample_rate_hz, edge_fraction=edge_fraction, overlap=overlap)
-                + sweep_centers(split_hz, stop_hz, sample_rate_hz, edge_fraction=edge_fraction, overlap=overlap))
     usable = (1.0 - edge_fraction) * sample_rate_hz
-    span = stop_hz - start_hz
-    if span <= usable:
-        return [0.5 * (start_hz + stop_hz)]
-    spacing = (1.0 - overlap) * usable
-    n = int(math.ceil((span - usable) / spacing - 1e-9)) + 1
-    first, last = start_hz + usable / 2, stop_hz - usable / 2
-    return [first + (last - first) * i / (n - 1) for i in range(n)]
+    spacing = (1.0 - overlap) * usable * (1.0 - 1e-9)
+
+    def run(lo, hi, from_top):
+        n = 1 if hi - lo <= usable else int(math.ceil((hi - lo - usable) / spacing - 1e-9)) + 1
+        if from_top:
+            return [hi - usable / 2 - i * spacing for i in range(n)][::-1]
+        return [lo + usable / 2 + i * spacing for i in range(n)]
+
+    if split_hz is not None and start_hz < split_hz < stop_hz:
+        return run(start_hz, split_hz, True) + run(split_hz, stop_hz, False)
+    return run(start_hz, stop_hz, split_hz is not None and stop_hz <= split_hz)
 
 
 # ------------------------------------------------------------------------------------------------

@@ -807,3 +807,16 @@ def noise_source_analysis(cold: Sequence[Psd], hot: Sequence[Psd], cold_dut: Seq
         low_hz=sb.low_hz, high_hz=sb.high_hz, center_hz=sb.center_hz, enr=sb.enr, t_cold_k=t_cold_k,
         u_enr_db=u_enr_db, n_cold=n_c, n_hot=n_h, dof_cold=d_c, dof_hot=d_h, valid=valid, receiver=receiver,
         n_cold_dut=n_cd, n_hot_dut=n_hd, dof_cold_dut=d_cd, dof_hot_dut=d_hd, valid_dut=valid_d, dut=dut)
+
+
+def excess_u_db(n_hot, n_cold, dof_hot, dof_cold):
+    """Standard uncertainty (dB) of 10*log10(n_hot - n_cold) from the two readings' chi-squared scatter.
+
+    The part of a DUT's loss uncertainty (:func:`dut_from_noise`) that comes from the captures through
+    the DUT alone: two devices measured against the same reference captures share the rest, which
+    cancels in their difference. Linear propagation (JCGM 100:2008): u_rel = sqrt((Nh*r_h)**2 +
+    (Nc*r_c)**2) / (Nh - Nc), r = sqrt(2/dof).
+    """
+    h, c = np.asarray(n_hot, dtype=float), np.asarray(n_cold, dtype=float)
+    u = np.sqrt((h * _rel_u(dof_hot)) ** 2 + (c * _rel_u(dof_cold)) ** 2) / (h - c)
+    return scalar_or_array(_DB_PER_NEPER * u)

@@ -122,6 +122,10 @@ def test_swept_curve_covers_the_truth_across_retunes(tmp_path, dongle, gain):
     # 17-23 MHz: the pair's steep roll-off, several retunes, IF ripple and roll-off on the dongle.
     f, loss, U, truth, a = swept(tmp_path, dongle, 17e6, 23e6, seed=11, gain=gain)
     assert len(f) >= 40
+    # the sub-bands of neighbouring tunings tile the band: no gap between one and the next
+    w = np.array(a.loss_vs_frequency["width_hz"])
+    assert np.all(f[1:] - w[1:] / 2 <= f[:-1] + w[:-1] / 2 + 1.0)
+    assert f[0] - w[0] / 2 <= 17e6 + 1.0 and f[-1] + w[-1] / 2 >= 23e6 - 1.0
     inside = np.abs(loss - truth) <= U
     # about 95 % of the sub-bands within their U (k = 2); with ~50 sub-bands allow down to 85 %
     assert inside.mean() >= 0.85

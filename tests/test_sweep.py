@@ -165,3 +165,9 @@ def test_dry_run_lists_steps_count_time_size_and_actions(tmp_path, capsys):
     assert main(["capture", str(path), "--dry-run"]) == 0
     out = capsys.readouterr().out
     assert "11 operator actions" in out and f"{len(plan.steps)} steps" in out
+
+
+def test_overlap_is_one_sub_band_of_the_analysis():
+    from rxbench.session import N_SUB_BANDS
+
+    assert sweep.OVERLAP_FRACTION == pytest.approx(1.0 / N_SUB_BANDS)

@@ -436,6 +436,17 @@ def run(args: argparse.Namespace) -> int:
         ]
         curve = _curve(results)
         result["curve"] = curve
+        if curve and "frequency_hz" in curve[0]:  # absolute frequencies: summarise per amateur band
+            from rxbench.sweep_report import loss_band_rows, nf_band_rows
+
+            f = [r["frequency_hz"] for r in curve]
+            w = [r["high_hz"] - r["low_hz"] for r in curve]
+            if "insertion_loss_db" in curve[0]:
+                result["per_band"] = loss_band_rows("", f, w, [r["insertion_loss_db"] for r in curve],
+                                                    [r["insertion_loss_u_db"] for r in curve], k=K_EXPANDED)
+            result["per_band_noise_figure"] = nf_band_rows(f, w, [r["noise_figure_db"] for r in curve],
+                                                           [r["noise_figure_u_db"] for r in curve],
+                                                           u_enr_db=args.enr_u_db, k=K_EXPANDED)
         lines += _human_y(result, results, curve, args)
     if args.tone is not None:
         gm = _gain_method(args, warnings)
