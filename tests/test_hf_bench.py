@@ -140,3 +140,37 @@ def test_swept_curve_coverage_over_hf(tmp_path, dongle, gain):
         f, loss, U, truth, a = swept(tmp_path / str(seed), dongle, 3e6, 30e6, seed=seed, gain=gain)
         inside += list(np.abs(loss - truth) <= U)
     assert 0.90 <= np.mean(inside) <= 0.99
+
+
+def test_tone_sweep_through_an_upconverter_gives_a_loss_per_frequency(tmp_path):
+    text = """
+[dongle]
+sample_rate_hz = 250000
+gain_db = 10
+settle_s = 0.01
+upconverter_hz = 125e6
+[generator]
+level_dbm = -68
+offset_hz = 20000
+[[sweep]]
+name = "t"
+roles = ["thru", "dut"]
+generator_hz = [3.6e6, 14.2e6, 21.2e6, 28.4e6]
+device = "variant-a"
+devices = 2
+duration_s = 0.1
+"""
+    plan = parse_plan(text)
+    # the generator is retuned once per frequency and the device goes in once
+    assert sum("Retune" in s.instruction for s in plan.steps) == 2 * 3
+    assert sum("Insert" in s.instruction or "Take" in s.instruction for s in plan.steps) == 1
+    truth = BenchTruth(settle_s=0.0, drift_hz_per_s=0.0)
+    run_session(plan, tmp_path / "s", SimulatedBench(truth, seed=31), yes=True)
+    a = analyze_session(open_session(tmp_path / "s"))
+    direct = {round(x["frequency_hz"] / 1e5): x for x in a.losses if x["method"] == "direct"}
+    assert len(direct) == 4
+    for f in (3.6e6, 14.2e6, 21.2e6, 28.4e6):
+        x = direct[round(f / 1e5)]
+        true = truth.dut_loss_db(f, "variant-a")
+        assert abs(x["insertion_loss_db"] - true) <= x["expanded_uncertainty_db"] + 0.05, (f, x["insertion_loss_db"], true)
+        assert x["per_device_db"] == pytest.approx(x["insertion_loss_db"] / 2)
