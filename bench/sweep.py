@@ -242,8 +242,8 @@ def expand_sweeps(c, data: dict, defaults: dict, dongle, tone_offset_hz: float, 
                 c.fail("sweep", key, f"lists a value twice: {vals!r}", **kw)
             return [float(v) for v in vals]
 
-        att = num("attenuation_db", default=0.0, low=0, high=200)
-        duration = num("duration_s", default=1.0, low=0, low_open=True, high=3600)
+        att = num("attenuation_db", default=0.0, low=0, high=200, quantity="attenuation_db")
+        duration = num("duration_s", default=1.0, low=0, low_open=True, high=3600, quantity="duration_s")
         repeats = int(num("repeats", default=1, integer=True, low=1, high=100))
         if duration * dongle.sample_rate_hz < 16384:
             c.fail("sweep", "duration_s", f"{duration:g} s at {dongle.sample_rate_hz:g} Hz is under 16384 samples",
@@ -269,8 +269,10 @@ def expand_sweeps(c, data: dict, defaults: dict, dongle, tone_offset_hz: float, 
             for key in ("generator_hz", "ladder_db"):
                 if key in sw:
                     c.fail("sweep", key, "only a tone sweep (roles thru, dut, step) takes this", **kw)
-            start = c.number("sweep", sw, "start_hz", required=True, low=0, low_open=True, high=6e9, **kw)
-            stop = c.number("sweep", sw, "stop_hz", required=True, low=0, low_open=True, high=6e9, **kw)
+            start = c.number("sweep", sw, "start_hz", required=True, low=0, low_open=True, high=6e9,
+                             quantity="positive_frequency", **kw)
+            stop = c.number("sweep", sw, "stop_hz", required=True, low=0, low_open=True, high=6e9,
+                            quantity="positive_frequency", **kw)
             if stop <= start:
                 c.fail("sweep", "stop_hz", f"must be above start_hz ({start:g}); got {stop:g}", **kw)
             split = DIRECT_SAMPLING_HIGH_HZ if dongle.direct_sampling != "off" else None
