@@ -9,10 +9,12 @@ DESCRIPTION = "core:description"
 RECORDER = "core:recorder"
 HW = "core:hw"
 EXTENSIONS = "core:extensions"
+TRAILING_BYTES = "core:trailing_bytes"
 # SigMF core (capture segment)
 SAMPLE_START = "core:sample_start"
 FREQUENCY = "core:frequency"
 DATETIME = "core:datetime"
+HEADER_BYTES = "core:header_bytes"
 
 #: rxbench's extension namespace, declared in ``core:extensions`` of every recording it writes.
 #: Its keys are stored as ``rxbench:<name>``; in code (``Capture.extra``, ``SigmfWriter(extra=...)``)

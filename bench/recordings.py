@@ -19,6 +19,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import datetime as _dt
+import functools
 import json
 import os
 import re
@@ -189,31 +190,48 @@ def memory_capture(
                    "cf32_le" if np.iscomplexobj(x) else "rf32_le", clip_level, datetime, dict(extra or {}), reader)
 
 
-def _file_reader(path: Path, encoding: Encoding, offset: int, n_samples: int):
+def _file_reader(path: Path, encoding: Encoding, chunks):
     """Blocks read with plain file reads (not a memory map, whose pages would count as resident
-    memory and grow with the capture)."""
+    memory and grow with the capture).
+
+    ``chunks`` is a sequence of (byte offset, samples): the stretches of the file that hold samples, in
+    order (one for a plain file; one per SigMF capture segment, whose headers lie between them).
+    Blocks are full across chunk boundaries, the last one excepted.
+    """
     rails = 2 if encoding.is_complex else 1
+    chunks = [(int(o), int(n)) for o, n in chunks if n > 0]
+    n_samples = sum(n for _, n in chunks)
 
     def reader(block):
         # One read buffer for the whole pass (decode always returns a new array): a fresh one per
         # block would cost a page fault per 4 kB.
         buf = np.empty(min(block, n_samples) * rails, dtype=encoding.component)
+        pending = iter(chunks)
+        left = 0
         try:
             with open(path, "rb") as f:
-                f.seek(offset)
                 for i in range(0, n_samples, block):
-                    count = min(block, n_samples - i) * rails
-                    raw = buf[:count]
-                    if f.readinto(memoryview(raw).cast("B")) != raw.nbytes:
-                        raise CaptureError(path, f"file shrank while being read (at sample {i})")
+                    count = min(block, n_samples - i)
+                    raw = buf[: count * rails]
+                    filled = 0
+                    while filled < count:
+                        if not left:
+                            offset, left = next(pending)
+                            f.seek(offset)
+                        take = min(left, count - filled)
+                        part = raw[filled * rails : (filled + take) * rails]
+                        if f.readinto(memoryview(part).cast("B")) != part.nbytes:
+                            raise CaptureError(path, f"file shrank while being read (at sample {i + filled})")
+                        filled += take
+                        left -= take
                     yield decode(raw, encoding)
         except OSError as exc:  # unreadable, or the disk failed: a capture error naming the file
             raise CaptureError(path, f"cannot read: {exc.strerror or exc}") from None
 
     return reader
 
-def _check_size(path: Path, encoding: Encoding, offset: int = 0) -> int:
-    size = check_regular(path, "capture").st_size - offset
+def _check_size(path: Path, encoding: Encoding) -> int:
+    size = check_regular(path, "capture").st_size
     note_input(path)
     if size <= 0:
         raise CaptureError(path, "the file is empty")
@@ -242,7 +260,7 @@ def open_raw(path: Path, fmt: str, rate_hz, center_hz: float | None = None) -> C
     enc = ENCODINGS[datatype]
     n = _check_size(path, enc)
     return Capture(path, _positive_rate(path, rate_hz), center_hz, n, True, datatype, enc.clip_level,
-                   None, {}, _file_reader(path, enc, 0, n))
+                   None, {}, _file_reader(path, enc, [(0, n)]))
 
 
 def sigmf_paths(path: Path) -> tuple[Path, Path]:
@@ -254,10 +272,101 @@ def sigmf_paths(path: Path) -> tuple[Path, Path]:
     return Path(s + META_SUFFIX), Path(s + DATA_SUFFIX)
 
 
-def open_sigmf(path: Path) -> Capture:
-    """A SigMF recording (metadata checked against the SigMF schema)."""
-    from sigmf import SigMFFile
+@functools.lru_cache(maxsize=1)
+def _sigmf_validator():
+    """A validator for the SigMF schema the sigmf library ships, built once per process (building one
+    through ``jsonschema.validate`` checks the schema itself every time: about 140 ms of every read)."""
+    import jsonschema
+    from sigmf import schema
 
+    ref = schema.get_schema()
+    return jsonschema.validators.validator_for(ref)(ref)
+
+
+def _check_schema(meta_path: Path, meta: dict) -> None:
+    """Check the metadata exactly as the file holds it against the SigMF schema (no defaults filled in,
+    no ``core:version`` rewritten, as the sigmf library's object does)."""
+    from jsonschema.exceptions import best_match
+    from sigmf import __specification__
+
+    try:
+        error = best_match(_sigmf_validator().iter_errors(meta))
+    except RecursionError:
+        raise CaptureError(meta_path, "metadata is nested too deeply to be SigMF") from None
+    if error is None:
+        return
+    where = "/".join(str(p) for p in error.absolute_path)
+    where = f" at {where}" if where else ""
+    version = meta["global"].get(keys.VERSION)
+    said = f" (it says {keys.VERSION} {version!r})" if version is not None else ""
+    raise CaptureError(meta_path, f"metadata does not follow the SigMF schema ({__specification__}){where}: "
+                                  f"{error.message}{said}")
+
+
+def _count(meta_path: Path, where: str, value) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
+        raise CaptureError(meta_path, f"{where} must be a whole number >= 0, got {value!r}")
+    return value
+
+
+def _segments(meta_path: Path, data_path: Path, meta: dict, enc: Encoding) -> tuple[list, int]:
+    """The stretches of the data file that hold samples, one per capture segment, as (byte offset,
+    samples), and the number of samples in all.
+
+    Per the SigMF specification (core namespace, "Captures Array"): segments are sorted by
+    ``core:sample_start``, the index of a segment's first sample counted in samples (headers not
+    included); ``core:header_bytes`` of a segment is the number of non-sample bytes just before its
+    samples; the global ``core:trailing_bytes`` are non-sample bytes at the end of the file. So the
+    first sample of segment i lies at sum(header_bytes of segments 0..i) + sample_start_i * bytes per
+    sample.
+    """
+    g = meta["global"]
+    if keys.HEADER_BYTES in g:
+        raise CaptureError(meta_path, f"{keys.HEADER_BYTES} is in 'global'; the SigMF standard puts it in a "
+                                      "capture segment (the 'captures' array), before the samples it precedes")
+    segments = meta.get("captures") or [{}]
+    starts = [_count(meta_path, f"captures[{i}] {keys.SAMPLE_START}", c.get(keys.SAMPLE_START, 0))
+              for i, c in enumerate(segments)]
+    headers = [_count(meta_path, f"captures[{i}] {keys.HEADER_BYTES}", c.get(keys.HEADER_BYTES, 0))
+               for i, c in enumerate(segments)]
+    trailing = _count(meta_path, keys.TRAILING_BYTES, g.get(keys.TRAILING_BYTES, 0))
+    for i in range(1, len(starts)):
+        if starts[i] < starts[i - 1]:
+            raise CaptureError(meta_path, f"capture segments are not in order of {keys.SAMPLE_START} "
+                                          f"({starts[i - 1]}, then {starts[i]}): the standard requires ascending")
+    tunings = sorted({float(c[keys.FREQUENCY]) for c in segments if c.get(keys.FREQUENCY) is not None})
+    if len(tunings) > 1:
+        listed = ", ".join(f"{f:.0f}" for f in tunings)
+        raise CaptureError(meta_path, f"{len(segments)} capture segments at {len(tunings)} centre frequencies "
+                                      f"({listed} Hz): rxbench reads one tuning per capture; split the "
+                                      "recording into one per frequency")
+    try:
+        size = check_regular(data_path, "capture").st_size
+    except CaptureError as exc:  # say which of the pair is at fault (a session lists the metadata)
+        raise CaptureError(data_path, f"the recording's data file {exc.problem}") from None
+    note_input(data_path)
+    if size == 0:
+        raise CaptureError(data_path, "the recording's data file is empty")
+    bps = enc.bytes_per_sample
+    sample_bytes = size - sum(headers) - trailing
+    if sample_bytes <= 0:
+        what = f" after {sum(headers) + trailing} header and trailing bytes" if sum(headers) + trailing else ""
+        raise CaptureError(data_path, f"the file holds no samples{what}")
+    if sample_bytes % bps:
+        raise CaptureError(data_path, f"{sample_bytes} bytes of samples is not a whole number of {bps}-byte "
+                                      "samples: truncated, wrong format, or wrong header_bytes?")
+    n = sample_bytes // bps
+    if starts[-1] >= n:
+        raise CaptureError(meta_path, f"capture segment {len(starts) - 1} starts at sample {starts[-1]}, but the "
+                                      f"data holds {n} samples")
+    ends = starts[1:] + [n]
+    chunks = [(sum(headers[: i + 1]) + starts[i] * bps, ends[i] - starts[i]) for i in range(len(starts))]
+    return chunks, n - starts[0]
+
+
+def open_sigmf(path: Path) -> Capture:
+    """A SigMF recording: metadata checked against the SigMF schema as the file holds it; samples
+    read from every capture segment (header bytes skipped) when they share one tuning."""
     meta_path, data_path = sigmf_paths(path)
     if not meta_path.exists() and not meta_path.is_symlink():
         raise CaptureError(meta_path, "no such file (a SigMF recording needs its .sigmf-meta)")
@@ -270,15 +379,7 @@ def open_sigmf(path: Path) -> Capture:
         raise CaptureError(meta_path, "metadata is nested too deeply to be SigMF") from None
     if not isinstance(meta, dict) or not isinstance(meta.get("global"), dict):
         raise CaptureError(meta_path, "metadata has no 'global' object")
-    try:
-        SigMFFile(metadata=meta).validate()
-    except RecursionError:
-        raise CaptureError(meta_path, "metadata is nested too deeply to be SigMF") from None
-    except Exception as exc:  # SigMFError, or the schema validator's own ValidationError
-        where = "/".join(str(p) for p in getattr(exc, "path", ()) or ())
-        text = getattr(exc, "message", None) or (str(exc).strip().splitlines() or [type(exc).__name__])[0]
-        where = f" at {where}" if where else ""
-        raise CaptureError(meta_path, f"metadata does not follow the SigMF schema{where}: {text}") from None
+    _check_schema(meta_path, meta)
     g = meta["global"]
     datatype = str(g.get(keys.DATATYPE, ""))
     if datatype.endswith("_be"):
@@ -294,15 +395,8 @@ def open_sigmf(path: Path) -> Capture:
     if not data_path.exists():
         raise CaptureError(data_path, "no such file (the recording's samples are missing)")
     enc = ENCODINGS[datatype]
-    offset = g.get("core:header_bytes", 0)
-    if isinstance(offset, bool) or not isinstance(offset, int) or offset < 0:
-        raise CaptureError(meta_path, f"core:header_bytes {offset!r} must be a whole number of bytes >= 0")
-    try:
-        n = _check_size(data_path, enc, offset)
-    except CaptureError as exc:  # say which of the pair is at fault (a session lists the metadata)
-        raise CaptureError(data_path, f"the recording's data file {exc.problem}") from None
-    captures = meta.get("captures") or [{}]
-    first = captures[0] if isinstance(captures[0], dict) else {}
+    chunks, n = _segments(meta_path, data_path, meta, enc)
+    first = (meta.get("captures") or [{}])[0]
     center = first.get(keys.FREQUENCY)
     if center is not None:
         try:
@@ -313,7 +407,7 @@ def open_sigmf(path: Path) -> Capture:
     extra = {k[len(prefix):]: v for k, v in {**g, **first}.items() if k.startswith(prefix)}
     return Capture(meta_path, rate, float(center) if center is not None else None, n, enc.is_complex,
                    datatype, enc.clip_level, first.get(keys.DATETIME), extra,
-                   _file_reader(data_path, enc, offset, n))
+                   _file_reader(data_path, enc, chunks))
 
 
 def open_audio(path: Path, center_hz: float | None = None) -> Capture:
