@@ -10,6 +10,7 @@ RECORDER = "core:recorder"
 HW = "core:hw"
 EXTENSIONS = "core:extensions"
 TRAILING_BYTES = "core:trailing_bytes"
+DATASET = "core:dataset"
 # SigMF core (capture segment)
 SAMPLE_START = "core:sample_start"
 FREQUENCY = "core:frequency"

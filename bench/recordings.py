@@ -305,7 +305,7 @@ def _check_schema(meta_path: Path, meta: dict) -> None:
 
 def _count(meta_path: Path, where: str, value) -> int:
     if isinstance(value, bool) or not isinstance(value, int) or value < 0:
-        raise CaptureError(meta_path, f"{where} must be a whole number >= 0, got {value!r}")
+        raise CaptureError(meta_path, f"{where} {value!r} must be a whole number >= 0")
     return value
 
 
@@ -392,6 +392,11 @@ def open_sigmf(path: Path) -> Capture:
     if keys.SAMPLE_RATE not in g:
         raise CaptureError(meta_path, f"metadata has no sample rate ({keys.SAMPLE_RATE})")
     rate = _positive_rate(meta_path, g[keys.SAMPLE_RATE], keys.SAMPLE_RATE)
+    dataset = g.get(keys.DATASET)
+    if dataset is not None:  # a non-conforming dataset: the samples are in the file it names, beside the metadata
+        if not isinstance(dataset, str) or not dataset or Path(dataset).name != dataset:
+            raise CaptureError(meta_path, f"{keys.DATASET} {dataset!r} must name a file in the metadata's folder")
+        data_path = meta_path.with_name(dataset)
     if not data_path.exists():
         raise CaptureError(data_path, "no such file (the recording's samples are missing)")
     enc = ENCODINGS[datatype]

@@ -63,6 +63,28 @@ def test_several_segments_at_one_tuning_are_read_in_order_headers_skipped(tmp_pa
     np.testing.assert_array_equal(np.concatenate(blocks), truth)
 
 
+def test_the_specifications_own_non_conforming_example(tmp_path, rng):
+    # The worked example of the SigMF specification (v1.2, core:header_bytes; also in the schema the sigmf
+    # library ships): cu8 samples in two segments with 4-byte headers, in a file named by core:dataset; "a
+    # reader application would map the 500 samples (1000 bytes) in the first Segment, starting at a file
+    # offset of 4 bytes, and then the remainder of the file through EOF starting at a file offset of 1008
+    # bytes".
+    first, rest = rng.integers(0, 256, 1000, dtype=np.uint8), rng.integers(0, 256, 600, dtype=np.uint8)
+    data = b"HDR1" + first.tobytes() + b"HDR2" + rest.tobytes()
+    assert data[4:1004] == first.tobytes() and data[1008:] == rest.tobytes()
+    (tmp_path / "non-conforming-dataset-01.dat").write_bytes(data)
+    meta = {"global": {"core:datatype": "cu8", "core:version": "1.2.0", "core:sample_rate": 1e6,
+                       "core:dataset": "non-conforming-dataset-01.dat"},
+            "captures": [{"core:sample_start": 0, "core:header_bytes": 4},
+                         {"core:sample_start": 500, "core:header_bytes": 4}],
+            "annotations": []}
+    (tmp_path / "ncd.sigmf-meta").write_text(json.dumps(meta))
+    cap = open_capture(tmp_path / "ncd.sigmf-meta")
+    assert cap.n_samples == 800
+    codes = np.concatenate([first, rest]).astype(np.float32)
+    np.testing.assert_allclose(cap.read(), ((codes - 127.5) / 127.5).view(np.complex64), rtol=0, atol=1e-7)
+
+
 def test_a_first_segment_starting_later_leaves_the_samples_before_it_out(tmp_path, rng):
     codes = _codes(rng, 3000)
     cap = open_capture(_write(tmp_path, "late", codes.tobytes(), [{"core:sample_start": 1000}]))
