@@ -240,7 +240,7 @@ def plot_bands(analysis, path) -> bool:
     curves = {k: c for k, c in curves.items() if c is not None and c["frequency_hz"]}
     if not curves or not (analysis.per_band or analysis.per_band_noise_figure):
         return False
-    from rxbench.report import _figure, _save, _segments
+    from rxbench.report.plots import _figure, _save, _segments
 
     fig = _figure(10.0, 7.0)
     ax1, ax2 = fig.subplots(2, 1, sharex=True)

@@ -103,7 +103,7 @@ def test_results_csv_has_one_number_per_row(analysis, tmp_path):
 
 
 def test_a_report_never_overwrites_an_earlier_one(analysis, session_dir, monkeypatch):
-    monkeypatch.setattr(rep, "plot_spectra", lambda analysis, folder: [])  # file handling only: skip drawing
+    monkeypatch.setattr(rep.writer, "plot_spectra", lambda analysis, folder: [])  # file handling only: skip drawing
     first = rep.next_report_dir(session_dir)
     assert first.name.startswith("report")
     (session_dir / "report").mkdir(exist_ok=True)
@@ -125,7 +125,7 @@ def test_a_failed_report_leaves_nothing_half_written(analysis, session_dir, monk
     def boom(*args, **kwargs):
         raise RuntimeError("plot failed")
 
-    monkeypatch.setattr(rep, "plot_ladder", boom)
+    monkeypatch.setattr(rep.writer, "plot_ladder", boom)
     with pytest.raises(RuntimeError):
         rep.write_report(analysis)
     assert sorted(p.name for p in session_dir.iterdir()) == before
@@ -168,6 +168,6 @@ def test_report_of_a_session_with_nothing_to_measure(tmp_path):
 def test_the_mismatch_sentence_follows_the_budgets():
     assessed = {"budget": [{"name": "mismatch DUT-load", "u_db": 0.11}]}
     missing = {"budget": [{"name": "mismatch", "u_db": 0.0, "note": "not assessed"}]}
-    assert "is in these budgets" in rep._mismatch_sentence([assessed])
-    assert "not assessed in these budgets" in rep._mismatch_sentence([missing])
-    assert "some of these budgets" in rep._mismatch_sentence([assessed, missing])
+    assert "is in these budgets" in rep.document._mismatch_sentence([assessed])
+    assert "not assessed in these budgets" in rep.document._mismatch_sentence([missing])
+    assert "some of these budgets" in rep.document._mismatch_sentence([assessed, missing])

@@ -1,0 +1,88 @@
+"""Numbers as the report prints them, and the summary lines of a session."""
+
+from __future__ import annotations
+
+import math
+import tomllib
+
+from rxbench.output import fmt_db
+from rxbench.session import Analysis
+
+
+def _pm(value, u, digits=2, unit="dB") -> str:
+    """``value ± u`` in dB; a third decimal when the uncertainty would otherwise print as 0.0x."""
+    if value is None:
+        return "n/a"
+    if u is None or not math.isfinite(u):
+        return f"{fmt_db(value, digits)} {unit}"
+    if u < 0.05:
+        digits = max(digits, 3)
+    return f"{fmt_db(value, digits)} ± {u:.{digits}f} {unit}"
+
+
+def _mhz(f) -> str:
+    return "n/a" if f is None else f"{f / 1e6:.4f} MHz"
+
+
+def plan_title(analysis: Analysis) -> str:
+    """The plan's title, read as data from the session's copy of the plan ('' when none)."""
+    p = analysis.session.plan_path
+    if p is None:
+        return ""
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, RecursionError, tomllib.TOMLDecodeError):
+        return ""
+    title = data.get("title")
+    return title if isinstance(title, str) else ""
+
+
+def summary_lines(analysis: Analysis) -> list[str]:
+    """A few lines with the headline numbers (expanded uncertainties, k = 2)."""
+    lines = []
+    for x in analysis.losses:
+        per = ""
+        if x["n_devices"] > 1:
+            per = f"; per device {_pm(x['per_device_db'], x['expanded_uncertainty_per_device_db'])}"
+        lines.append(f"insertion loss ({x['method']}, device at {x['dut_attenuation_db']:g} dB) at "
+                     f"{_mhz(x['frequency_hz'])}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}")
+    for lad in analysis.ladders:
+        flagged = [s for s in lad["steps"] if s["flagged"]]
+        text = (f"ladder at {_mhz(lad['center_hz'])}: {len(lad['steps'])} steps, dongle linear from "
+                f"{lad['usable_top_db']:g} to {lad['usable_bottom_db']:g} dB")
+        if lad["compression_db"] > 0:
+            text += f", compressed {lad['compression_db']:.2f} dB at the top"
+        if flagged:
+            text += "; off: " + ", ".join(f"{s['nominal_db']:g} dB ({s['error_db']:+.2f} dB)" for s in flagged)
+        lines.append(text)
+    for n in analysis.noise_figure:
+        text = (f"noise figure (receiver) at {_mhz(n['center_hz'])}: "
+                f"{_pm(n['noise_figure_db'], n['expanded_uncertainty_db'])}")
+        if n.get("insertion_loss_db") is not None:
+            text += (f"; {n.get('device') or 'DUT'} loss over the band "
+                     f"{_pm(n['insertion_loss_db'], n['expanded_uncertainty_loss_db'])}")
+        lines.append(text)
+    for ex in analysis.external_noise:
+        lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
+                     f"{_pm(ex['excess_db'], ex['expanded_uncertainty_db'])} above the receiver's own")
+    for c in analysis.snr_cost:
+        text = (f"SNR cost on {c['band']} ({_mhz(c['frequency_hz'])}): "
+                f"{_pm(c['snr_degradation_db'], c['expanded_uncertainty_db'])} for a loss of {c['loss_db']:.2f} dB")
+        if c.get("snr_degradation_through_dut_db") is not None:
+            text += (f" (antenna through the device: "
+                     f"{_pm(c['snr_degradation_through_dut_db'], c['expanded_uncertainty_through_dut_db'])})")
+        lines.append(text)
+    if not lines:
+        lines.append("no measurement could be made from these captures (see the warnings)")
+    return lines
+
+
+def _table(header: list[str], rows: list[list]) -> str:
+    out = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
+    for r in rows:
+        out.append("| " + " | ".join(str(c) for c in r) + " |")
+    return "\n".join(out)
+
+
+def _f(v, d=2) -> str:
+    return "n/a" if v is None else fmt_db(v, d)

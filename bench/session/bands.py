@@ -1,0 +1,20 @@
+"""Amateur bands by name, and the name of the quietest ITU-R P.372 prediction."""
+
+from __future__ import annotations
+
+
+from rxbench.dsp.bands import AMATEUR_BANDS
+
+
+#: Name of the prediction with galactic noise added to the quietest man-made category.
+QUIET_GALACTIC = "quiet-rural + galactic"
+
+
+def band_name(frequency_hz: float | None) -> str:
+    """The amateur band holding ``frequency_hz`` ("10 m"), or the frequency in MHz."""
+    if frequency_hz is None:
+        return "unknown frequency"
+    for name, low, high in AMATEUR_BANDS:
+        if low <= frequency_hz <= high:
+            return name
+    return f"{frequency_hz / 1e6:.3f} MHz"
