@@ -264,6 +264,18 @@ def plot_bands(analysis, path) -> bool:
             ax1.fill_between(f[idx], loss[idx] - c["k"] * u[idx], loss[idx] + c["k"] * u[idx], color=col, alpha=0.2,
                              lw=0)
             ax1.plot(f[idx], loss[idx], "-", color=col, lw=1.3, label=f"{lab} (±U)" if j == 0 else None)
+    colour = {lab: _COLOURS[i % len(_COLOURS)] for i, lab in enumerate(curves)}
+    marks = {"direct": "s", "substitution": "D"}
+    seen = set()
+    for x in analysis.losses:  # tone losses beside the noise-source curves
+        if x.get("frequency_hz") is None:
+            continue
+        lab = x.get("device") or "device"
+        key = (lab, x["method"])
+        ax1.errorbar([x["frequency_hz"] / 1e6], [x["insertion_loss_db"]], yerr=[x["expanded_uncertainty_db"]],
+                     fmt=marks.get(x["method"], "o"), color=colour.get(lab, "#555555"), ms=6, capsize=3,
+                     label=None if key in seen else f"{lab}, tone {x['method']} (±U)")
+        seen.add(key)
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Loss against frequency, amateur bands shaded", pad=14)
     ax1.grid(True, lw=0.3)

@@ -174,3 +174,36 @@ duration_s = 0.1
         true = truth.dut_loss_db(f, "variant-a")
         assert abs(x["insertion_loss_db"] - true) <= x["expanded_uncertainty_db"] + 0.05, (f, x["insertion_loss_db"], true)
         assert x["per_device_db"] == pytest.approx(x["insertion_loss_db"] / 2)
+
+
+def test_tone_sweep_of_two_devices_gives_each_its_own_loss(tmp_path):
+    text = """
+[dongle]
+sample_rate_hz = 250000
+gain_db = 10
+settle_s = 0.01
+upconverter_hz = 125e6
+[generator]
+level_dbm = -68
+offset_hz = 20000
+[[sweep]]
+name = "a"
+roles = ["thru", "dut"]
+generator_hz = [7.1e6, 28.4e6]
+device = "variant-a"
+duration_s = 0.1
+[[sweep]]
+name = "b"
+roles = ["dut"]
+generator_hz = [7.1e6, 28.4e6]
+device = "variant-b"
+duration_s = 0.1
+"""
+    truth = BenchTruth(settle_s=0.0, drift_hz_per_s=0.0)
+    run_session(parse_plan(text), tmp_path / "s", SimulatedBench(truth, seed=32), yes=True)
+    a = analyze_session(open_session(tmp_path / "s"))
+    direct = {(x["device"], round(x["frequency_hz"] / 1e5)): x for x in a.losses if x["method"] == "direct"}
+    assert len(direct) == 4  # the two devices' captures at one frequency are not pooled
+    for (device, f10), x in direct.items():
+        true = truth.dut_loss_db(f10 * 1e5, device)
+        assert abs(x["insertion_loss_db"] - true) <= x["expanded_uncertainty_db"] + 0.05, (device, f10, x, true)

@@ -178,54 +178,65 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift
     duts_all = [e for e in duts_all if _has_tone(e, readings)]
     thrus_all = [e for e in group if e.role == "thru" and _has_tone(e, readings)]
     by_att: dict = {}
-    for e in duts_all:
-        by_att.setdefault(e.attenuation_or_zero, []).append(e)
-    for att, duts in sorted(by_att.items()):
-        duts = _compatible(duts, duts[0], where, warnings)
-        n_dev = max(e.n_devices for e in duts)
-        dut = _pool(duts, readings)
-        # Direct: thru captures at the same attenuator setting.
-        thrus = [e for e in thrus_all if e.attenuation_or_zero == att]
-        thrus = _compatible(thrus, duts[0], f"direct {where}", warnings)
-        if thrus:
-            _direct(center, att, dut, thrus, readings, ladder, n_dev, analysis)
-        elif not pooled_ladder:
-            warnings.append(f"{where}: DUT captured at {att:g} dB but no thru at that setting and no ladder; "
-                            "no loss")
-        # Substitution: the DUT against the ladder.
-        if pooled_ladder:
-            ref = pooled_ladder[next(iter(pooled_ladder))].entries[0]
-            why = mismatch(duts[0], ref)
-            if why is not None:
-                warnings.append(f"substitution {where}: {why}; no substitution loss")
-                continue
-            if len(pooled_ladder) < 2:
-                continue
-            nominal = list(pooled_ladder)
-            tols = [e.attenuator_tolerance_db for p in pooled_ladder.values() for e in p.entries] + \
-                   [e.attenuator_tolerance_db for e in duts]
-            tols = [t for t in tols if t is not None]
-            drift = _ladder_drift(pooled_ladder, dut, readings, f"substitution {where}", warnings)
+    for e in duts_all:  # several devices at one setting: each its own loss, against the same thru/ladder
+        by_att.setdefault((e.attenuation_or_zero, e.device), []).append(e)
+    for (att, device), duts in sorted(by_att.items()):
+        first_new = len(analysis.losses)
+        try:
+            _tone_losses_at(center, att, duts, thrus_all, pooled_ladder, ladder, readings, analysis, where)
+        finally:
+            for d in analysis.losses[first_new:]:
+                d["device"] = device
 
-            def substitution(extra):
-                return ladder_mod.substitution_loss(
-                    nominal, [p.dbfs for p in pooled_ladder.values()], [p.u_db for p in pooled_ladder.values()],
-                    dut.dbfs, dut.u_db, dut_step_db=att, atten_tolerance_db=max(tols, default=0.0),
-                    dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()],
-                    extra_components=(drift, *extra))
 
-            try:
-                loss = _with_mismatch(substitution, dut, f"substitution {where}", warnings)
-            except ValueError as exc:
-                warnings.append(f"substitution {where}: {exc}")
-                continue
-            if not tols:
-                warnings.append(f"substitution {where}: the attenuator's tolerance is not stated (plan: "
-                                "[attenuator] tolerance_db); the loss is only as good as its steps, and the "
-                                "budget leaves them out")
-            d = _loss_dict(loss, center, dut.offset_hz, n_dev, {"dut": dut.names, "ladder": {
-                f"{db:g}": p.names for db, p in pooled_ladder.items()}}, att)
-            analysis.losses.append(d)
+def _tone_losses_at(center, att, duts, thrus_all, pooled_ladder, ladder, readings, analysis, where) -> None:
+    """Direct and substitution loss of the DUT captures ``duts`` (one setting, one device) at a centre."""
+    warnings = analysis.warnings
+    duts = _compatible(duts, duts[0], where, warnings)
+    n_dev = max(e.n_devices for e in duts)
+    dut = _pool(duts, readings)
+    # Direct: thru captures at the same attenuator setting.
+    thrus = [e for e in thrus_all if e.attenuation_or_zero == att]
+    thrus = _compatible(thrus, duts[0], f"direct {where}", warnings)
+    if thrus:
+        _direct(center, att, dut, thrus, readings, ladder, n_dev, analysis)
+    elif not pooled_ladder:
+        warnings.append(f"{where}: DUT captured at {att:g} dB but no thru at that setting and no ladder; "
+                        "no loss")
+    # Substitution: the DUT against the ladder.
+    if pooled_ladder:
+        ref = pooled_ladder[next(iter(pooled_ladder))].entries[0]
+        why = mismatch(duts[0], ref)
+        if why is not None:
+            warnings.append(f"substitution {where}: {why}; no substitution loss")
+            return
+        if len(pooled_ladder) < 2:
+            return
+        nominal = list(pooled_ladder)
+        tols = [e.attenuator_tolerance_db for p in pooled_ladder.values() for e in p.entries] + \
+               [e.attenuator_tolerance_db for e in duts]
+        tols = [t for t in tols if t is not None]
+        drift = _ladder_drift(pooled_ladder, dut, readings, f"substitution {where}", warnings)
+
+        def substitution(extra):
+            return ladder_mod.substitution_loss(
+                nominal, [p.dbfs for p in pooled_ladder.values()], [p.u_db for p in pooled_ladder.values()],
+                dut.dbfs, dut.u_db, dut_step_db=att, atten_tolerance_db=max(tols, default=0.0),
+                dof_dut=dut.dof, dof_steps=[p.dof for p in pooled_ladder.values()],
+                extra_components=(drift, *extra))
+
+        try:
+            loss = _with_mismatch(substitution, dut, f"substitution {where}", warnings)
+        except ValueError as exc:
+            warnings.append(f"substitution {where}: {exc}")
+            return
+        if not tols:
+            warnings.append(f"substitution {where}: the attenuator's tolerance is not stated (plan: "
+                            "[attenuator] tolerance_db); the loss is only as good as its steps, and the "
+                            "budget leaves them out")
+        d = _loss_dict(loss, center, dut.offset_hz, n_dev, {"dut": dut.names, "ladder": {
+            f"{db:g}": p.names for db, p in pooled_ladder.items()}}, att)
+        analysis.losses.append(d)
 
 
 def _ladder_drift(pooled_ladder: dict, dut: _Pooled, readings, where: str, warnings: list[str]) -> Component:
