@@ -13,11 +13,11 @@ import numpy as np
 from rxbench import keys
 from rxbench.errors import CaptureError, MeasurementError, UsageError
 from rxbench.recordings import Capture
-from rxbench.dsp.floor import NoiseFloor, noise_floor
+from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
 from rxbench.dsp.health import Health, HealthAccumulator
 from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
 from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, same_signal
-from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
 from rxbench.dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
@@ -32,6 +32,8 @@ RATE_TOLERANCE = 1e-6
 CENTER_TOLERANCE_HZ = 1.0
 #: A tone closer than this to the noise (peak bin over floor, dB) gets a low-SNR warning.
 LOW_SNR_DB = 10.0
+#: A tone present for less than this fraction of the capture is called intermittent.
+INTERMITTENT_BELOW = 0.9
 
 
 @dataclass(frozen=True)
@@ -101,22 +103,31 @@ def read_capture(
     nperseg: int | None = None,
     snr_bandwidth_hz: float = DEFAULT_SNR_BANDWIDTH_HZ,
     want_tone: bool = True,
+    noise_band_hz: tuple[float, float] | None = None,
     progress=None,
 ) -> Reading:
     """Read a capture: PSD, noise floor, (optionally) the tone, health and warnings.
 
+    ``noise_band_hz`` (low, high), offsets in Hz, names where the noise floor is taken.
     ``progress`` is passed to :func:`accumulate`.
     """
     psd, health = accumulate(capture, nperseg, progress=progress)
     warnings: list[str] = []
     name = capture.path.name
     warnings.extend(health_warnings(name, health))
+    if psd.zero_fraction > 0:
+        warnings.append(
+            f"{name}: {100 * psd.zero_fraction:.3g} % of the capture is exactly zero (dropped transfers or "
+            "digital silence): left out of every reading"
+        )
     try:
-        floor = noise_floor(psd, dc_halfwidth_hz=None if capture.is_complex else 0.0)
+        floor = noise_floor(psd, dc_halfwidth_hz=None if capture.is_complex else 0.0, band_hz=noise_band_hz,
+                            seed_hz=near_hz)
     except ValueError as exc:
         raise CaptureError(capture.path, f"no noise floor: {exc}") from None
     if floor.density <= 0:
         raise CaptureError(capture.path, "the noise floor is zero (constant or digitally generated samples?)")
+    warnings.extend(_floor_warnings(name, floor))
     tone = None
     if want_tone:
         try:
@@ -124,7 +135,7 @@ def read_capture(
         except ValueError as exc:
             warnings.append(f"{name}: {exc}")
         if tone is not None:
-            warnings.extend(_tone_warnings(name, psd, floor, tone))
+            warnings.extend(_tone_warnings(name, psd, floor, tone, chosen=near_hz is not None))
     return Reading(capture, psd, floor, tone, health, warnings)
 
 
@@ -149,15 +160,61 @@ def health_warnings(name: str, health: Health,
     return out
 
 
-def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[str]:
+def _floor_warnings(name: str, floor: NoiseFloor) -> list[str]:
     out = []
+    if floor.steady_fraction < 1.0:
+        out.append(
+            f"{name}: the noise floor moves by {floor.time_range_db:.1f} dB during the capture: it is taken "
+            f"from the steady, quietest {100 * floor.steady_fraction:.0f} % of the time"
+        )
+    if floor.band_limited:
+        lo, hi = floor.band_hz
+        out.append(
+            f"{name}: the noise floor varies by {floor.band_range_db:.1f} dB across the band (band-limited "
+            f"recording?): taken where the signals are, {lo:.0f} .. {hi:.0f} Hz (--noise-band LO HI chooses)"
+        )
+    elif floor.band_hz is None and floor.band_range_db > BAND_RANGE_DB:
+        out.append(
+            f"{name}: the noise floor varies by {floor.band_range_db:.1f} dB across the band: taken over the "
+            "whole band (--noise-band LO HI chooses)"
+        )
+    return out
+
+
+def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: bool = False) -> list[str]:
+    out = []
+    tl = tone.timeline
+    varies = tl is not None and ((tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW)
+                                 or tl.level_change_db > 0)
+    if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW:
+        out.append(
+            f"{name}: intermittent: present in {100 * tl.on_fraction:.0f} % of the capture; power_dbfs "
+            f"({tone.power_dbfs:.2f} dBFS) is the average over the whole capture, on_power_dbfs "
+            f"({tone.on_power_dbfs:.2f} dBFS) the power while present"
+        )
+    if tl is not None and tl.level_change_db > 0:
+        how = (f"a drift of {tl.drift_db_per_s:+.3g} dB/s" if tl.drift_db_per_s is not None else "in steps")
+        out.append(f"{name}: the tone's level changes by {tl.level_change_db:.1f} dB during the capture "
+                   f"({how}): its power is an average over that change")
     if tone.peak_to_floor_db < LOW_SNR_DB:
         out.append(
             f"{name}: tone only {tone.peak_to_floor_db:.1f} dB above the noise in one bin; "
             f"its power is uncertain by ±{tone.u_power_db * 2:.2f} dB (95 %)"
         )
-    if tone.power <= 0 or tone.ci95_dbfs[0] == -np.inf:
+    if tone.power <= 0 or (tone.ci95_dbfs[0] == -np.inf and not varies):
         out.append(f"{name}: tone power not distinguishable from the noise")
+    if tone.is_broad:
+        out.append(
+            f"{name}: a broad signal, not a tone (-3 dB width {tone.width_hz:.4g} Hz, a line here is "
+            f"{tone.line_width_hz:.3g} Hz): power reads as a band power over "
+            f"{(2 * BAND_HALFWIDTH_BINS + 1) * psd.bin_width_hz:.4g} Hz"
+        )
+    if tone.second_offset_hz is not None:
+        out.append(
+            f"{name}: a second line at {tone.second_offset_hz:+.0f} Hz within {abs(tone.second_db):.1f} dB of the "
+            f"one read at {tone.offset_hz:+.0f} Hz (two-tone keying?): "
+            + ("both lie near --near; narrow it" if chosen else "give --near HZ to choose")
+        )
     if psd.one_sided:
         return out
     if abs(tone.offset_hz) <= floor.dc_halfwidth_hz + 4 * psd.bin_width_hz:
@@ -167,12 +224,19 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone) -> list[s
     return out
 
 
+def _finite(x):
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
 def tone_dict(tone, center_hz) -> dict:
     """The JSON view of a tone reading (shared by every command that reports tones)."""
     if tone is None:
         names = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
-                 "snr_bandwidth_hz")
+                 "snr_bandwidth_hz", "on_fraction", "on_power_dbfs", "on_cn0_dbhz", "time_resolution_s",
+                 "level_change_db", "drift_db_per_s", "width_hz", "line_width_hz", "second_offset_hz",
+                 "second_db")
         return dict.fromkeys(names)
+    tl = tone.timeline
     return {
         "offset_hz": tone.offset_hz,
         "frequency_hz": None if center_hz is None else center_hz + tone.offset_hz,
@@ -182,6 +246,31 @@ def tone_dict(tone, center_hz) -> dict:
         "cn0_dbhz": tone.cn0_dbhz,
         "snr_db": tone.snr_db,
         "snr_bandwidth_hz": tone.snr_bandwidth_hz,
+        "on_fraction": tone.on_fraction,
+        "on_power_dbfs": _finite(tone.on_power_dbfs),
+        "on_cn0_dbhz": _finite(tone.on_cn0_dbhz),
+        "time_resolution_s": None if tl is None or tl.on_fraction is None else tl.slot_s,
+        "level_change_db": None if tl is None else tl.level_change_db,
+        "drift_db_per_s": None if tl is None else tl.drift_db_per_s,
+        "width_hz": _finite(tone.width_hz),
+        "line_width_hz": _finite(tone.line_width_hz),
+        "second_offset_hz": tone.second_offset_hz,
+        "second_db": tone.second_db,
+    }
+
+
+def noise_dict(reading: Reading) -> dict:
+    """The JSON view of a reading's noise floor (shared by inspect and the session)."""
+    fl = reading.floor
+    return {
+        "density_dbfs_per_hz": db_from_power(fl.density),
+        "u_density_db": 10 / math.log(10) * fl.u_density / fl.density,
+        "bins_used": fl.n_bins,
+        "time_range_db": fl.time_range_db,
+        "steady_fraction": fl.steady_fraction,
+        "band_range_db": fl.band_range_db,
+        "band_hz": None if fl.band_hz is None else list(fl.band_hz),
+        "zero_fraction": reading.psd.zero_fraction,
     }
 
 

@@ -465,7 +465,8 @@ def match_frequencies(freqs_a_hz, freqs_b_hz, *, tolerance_hz: float, max_offset
 def local_floor(spectrum: Psd, offset_hz: float, halfwidth_bins: int = LOCAL_HALFWIDTH_BINS, **kwargs):
     """:func:`dsp.floor.noise_floor` restricted to +/- ``halfwidth_bins`` around ``offset_hz``."""
     w = halfwidth_bins * spectrum.bin_width_hz
-    return noise_floor(spectrum, exclude_hz=[(-np.inf, offset_hz - w), (offset_hz + w, np.inf)], **kwargs)
+    return noise_floor(spectrum, exclude_hz=[(-np.inf, offset_hz - w), (offset_hz + w, np.inf)], adaptive=False,
+                       **kwargs)
 
 
 @dataclass(frozen=True)

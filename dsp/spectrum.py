@@ -39,6 +39,13 @@ def _work_buffer(dtype, rows: int, columns: int) -> np.ndarray:
 N_BATCHES = 16
 #: Segments transformed per FFT call (bounds memory: 64 x nperseg complex64).
 _SEGMENTS_PER_CALL = 64
+#: The fine time track: at most this many time slots (merged pairwise beyond it; a file's length
+#: sets the slot length at the start), each holding the PSD summed into at most TRACK_SUBBANDS
+#: sub-bands, float32: 8 MiB at most, whatever the capture's length.
+MAX_SLOTS = 16384
+TRACK_SUBBANDS = 128
+#: A segment that starts or ends with this many exactly-zero samples is in or across a run of them.
+DEAD_RUN = 16
 
 
 @dataclass(frozen=True)
@@ -182,6 +189,19 @@ class Psd:
         True for real input (density folded onto positive frequencies).
     window : tuple
         The window samples (for kernels), as a tuple-free ndarray held read-only.
+    track : ndarray or None
+        ``(n_slots, n_subbands)`` float32: the fine time track, mean density (FS**2/Hz) of each
+        sub-band in each time slot, in capture order (slots of exactly-zero samples included).
+    track_counts : ndarray or None
+        Live segments behind each slot (0: the slot lies in a run of exactly-zero samples).
+    track_bins : ndarray or None
+        ``(n_subbands, 2)``: first and one-past-last bin (indices into ``density``) of each sub-band.
+    slot_s : float
+        Time from one slot's start to the next, s.
+    zero_fraction : float
+        Fraction of the segments in or across runs of exactly-zero samples (dropped transfers,
+        digital silence; so the runs' share of the capture to within a segment per run); they are
+        left out of ``density``, ``batch_density``, ``track`` and ``dof``.
     """
 
     frequency_hz: np.ndarray
@@ -195,6 +215,11 @@ class Psd:
     sample_rate_hz: float
     one_sided: bool
     window: np.ndarray
+    track: np.ndarray | None = None
+    track_counts: np.ndarray | None = None
+    track_bins: np.ndarray | None = None
+    slot_s: float = 0.0
+    zero_fraction: float = 0.0
 
     @property
     def nperseg(self) -> int:
@@ -264,6 +289,22 @@ class PsdAccumulator:
                 self._batch_len *= 2
         self._nbins = self.nperseg // 2 + 1 if self.one_sided else self.nperseg
         self.n_segments = 0
+        # The fine time track (see MAX_SLOTS): sub-bands of equal width in FFT order; for real
+        # input the bins past the last whole sub-band (the Nyquist bin) join the last one.
+        split = self.nperseg // 2 if self.one_sided else self.nperseg
+        n_sub = TRACK_SUBBANDS
+        while n_sub > 1 and (split % n_sub or split // n_sub < 8):
+            n_sub //= 2
+        self._n_sub, self._sub_width = n_sub, split // n_sub
+        self._slot_len = 1
+        capacity = 256
+        if expected_samples:
+            expected_segments = max(1, 1 + (int(expected_samples) - self.nperseg) // self.step)
+            self._slot_len = -(-expected_segments // MAX_SLOTS)
+            capacity = -(-expected_segments // self._slot_len)
+        self._slots = np.zeros((capacity, n_sub), np.float32)
+        self._slot_dead = np.zeros(capacity, np.int64)
+        self._dead: list[int] = []  # per sub-average
 
     def update(self, block) -> None:
         """Add a block of samples (complex for two-sided, real for one-sided)."""
@@ -296,6 +337,7 @@ class PsdAccumulator:
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
             view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
+            self._make_room(count)
             self._add(len(self._batches) - 1, view)
             self._counts[-1] += count
             self.n_segments += count
@@ -306,13 +348,54 @@ class PsdAccumulator:
         """Add the periodograms of ``segments`` to sub-average ``batch``, on a worker thread unless
         the batch is too small to be worth the hand-off."""
 
-        def add(total, batch=batch):
+        def add(sums, batch=batch):
+            total, first_slot, slot_sums, slot_dead = sums
             self._batches[batch] += total
+            self._slots[first_slot : first_slot + len(slot_sums)] += slot_sums
+            if slot_dead is not None:
+                self._dead[batch] += int(slot_dead.sum())
+                self._slot_dead[first_slot : first_slot + len(slot_dead)] += slot_dead
 
-        self._work.submit(add, self._periodogram_sum, segments, inline=len(segments) < _SEGMENTS_PER_CALL // 2)
+        self._work.submit(add, self._periodogram_sum, segments, self.n_segments, self._slot_len,
+                          inline=len(segments) < _SEGMENTS_PER_CALL // 2)
 
-    def _periodogram_sum(self, segments: np.ndarray) -> np.ndarray:
-        """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64."""
+    def _make_room(self, count: int) -> None:
+        """Make sure the time track has slots for the next ``count`` segments: grow it, or merge its
+        slots pairwise (doubling their length) when it would pass MAX_SLOTS."""
+        last = (self.n_segments + count - 1) // self._slot_len
+        while last >= MAX_SLOTS:
+            self._work.drain()  # the slots about to merge must be complete
+            used = -(-self.n_segments // self._slot_len)
+            slots = self._slots[:used + used % 2]
+            if len(slots) < used + used % 2:
+                slots = np.vstack([slots, np.zeros((1, self._n_sub), np.float32)])
+            merged = slots[0::2] + slots[1::2]
+            self._slots = np.zeros((MAX_SLOTS, self._n_sub), np.float32)
+            self._slots[: len(merged)] = merged
+            dead = np.concatenate([self._slot_dead[:used], [0] * (used % 2)])
+            self._slot_dead = np.zeros(MAX_SLOTS, np.int64)
+            self._slot_dead[: len(merged)] = dead[0::2] + dead[1::2]
+            self._slot_len *= 2
+            last = (self.n_segments + count - 1) // self._slot_len
+        if last >= len(self._slots):
+            grown = np.zeros((min(MAX_SLOTS, max(2 * len(self._slots), last + 1)), self._n_sub), np.float32)
+            grown[: len(self._slots)] = self._slots
+            self._slots = grown
+            self._slot_dead = np.concatenate([self._slot_dead, np.zeros(len(grown) - len(self._slot_dead), np.int64)])
+
+    def _periodogram_sum(self, segments: np.ndarray, first_segment: int, slot_len: int):
+        """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64; and
+        the same summed into the track's sub-bands and time slots: ``(sum, first slot, slot sums,
+        dead segments per slot or None)``.
+
+        A segment that begins or ends with DEAD_RUN exactly-zero samples lies in or across a run of
+        them (a dropped transfer, digital silence): it is left out of every sum and counted.
+        """
+        edge = min(DEAD_RUN, self.nperseg // 2)
+        dead = ~(segments[:, :edge].any(axis=1) & segments[:, -edge:].any(axis=1))
+        if dead.any():
+            segments = segments.copy()
+            segments[dead] = 0
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
         dtype = np.result_type(segments.dtype, win.dtype)
@@ -324,7 +407,19 @@ class PsdAccumulator:
             spec = fft_rows(windowed, overwrite=True, threads=1)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
         squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
-        return squares[0::2] + squares[1::2]
+        n_rows, n_sub, width = len(rails), self._n_sub, 2 * self._sub_width
+        whole = rails[:, : n_sub * width].reshape(n_rows, n_sub, width)
+        rows = np.einsum("isk,isk->is", whole, whole)
+        if n_sub * width < rails.shape[1]:
+            rest = rails[:, n_sub * width :]
+            rows[:, -1] += np.einsum("ij,ij->i", rest, rest)
+        first_break = (-first_segment) % slot_len  # first row that starts a new slot
+        starts = np.arange(first_break, n_rows, slot_len)
+        if first_break:
+            starts = np.concatenate([[0], starts])
+        slot_sums = np.add.reduceat(rows, starts, axis=0).astype(np.float32, copy=False)
+        slot_dead = np.add.reduceat(dead.astype(np.int64), starts) if dead.any() else None
+        return squares[0::2] + squares[1::2], first_segment // slot_len, slot_sums, slot_dead
 
     def _open_batch(self) -> None:
         """Make sure the last sub-average has room; merge pairs when there are 2*N_BATCHES full ones."""
@@ -334,11 +429,13 @@ class PsdAccumulator:
             self._work.drain()  # the sub-averages about to merge must be complete
             self._batches = [a + b for a, b in zip(self._batches[::2], self._batches[1::2])]
             self._counts = [a + b for a, b in zip(self._counts[::2], self._counts[1::2])]
+            self._dead = [a + b for a, b in zip(self._dead[::2], self._dead[1::2])]
             self._batch_len *= 2
             if self._counts[-1] < self._batch_len:
                 return
         self._batches.append(np.zeros(self._nbins))
         self._counts.append(0)
+        self._dead.append(0)
 
     def result(self) -> Psd:
         """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
@@ -361,8 +458,16 @@ class PsdAccumulator:
         else:
             freq = np.fft.fftshift(np.fft.fftfreq(n, 1.0 / fs))
             sums = np.fft.fftshift(sums, axes=-1)
-        batch_density = sums * scale / counts[:, None]
-        density = sums.sum(axis=0) * scale / self.n_segments
+        track, slot_counts, track_bins = self._track(fs)
+        # Segments in or across runs of exactly-zero samples are left out of every average: they
+        # are missing data, not a quiet signal.
+        active = counts - np.array(self._dead)
+        n_active = int(active.sum())
+        if n_active == 0:
+            raise ValueError("every segment is exactly zero: there is no signal or noise to measure")
+        keep = active > 0
+        batch_density = sums[keep] * scale / active[keep, None]
+        density = sums.sum(axis=0) * scale / n_active
         props_enbw = n * np.sum(self.window**2) / self.window.sum() ** 2
         window = self.window.copy()
         window.setflags(write=False)
@@ -370,15 +475,40 @@ class PsdAccumulator:
             frequency_hz=freq,
             density=density,
             batch_density=batch_density,
-            batch_counts=counts,
+            batch_counts=active[keep],
             bin_width_hz=fs / n,
             enbw_hz=float(props_enbw * fs / n),
-            dof=welch_dof(self.n_segments, self.window, self.step),
-            n_segments=self.n_segments,
+            dof=welch_dof(n_active, self.window, self.step),
+            n_segments=n_active,
             sample_rate_hz=fs,
             one_sided=self.one_sided,
             window=window,
+            track=track,
+            track_counts=slot_counts,
+            track_bins=track_bins,
+            slot_s=self._slot_len * self.step / fs,
+            zero_fraction=1.0 - n_active / self.n_segments,
         )
+
+    def _track(self, fs: float):
+        """The time track as densities in the PSD's bin order: (track, segments per slot, bins)."""
+        n_slots = -(-self.n_segments // self._slot_len)
+        slot_counts = np.full(n_slots, self._slot_len, np.int64)
+        slot_counts[-1] = self.n_segments - (n_slots - 1) * self._slot_len
+        slot_counts -= self._slot_dead[:n_slots]  # live segments: a slot of none reads zero
+        n_sub, width = self._n_sub, self._sub_width
+        edges = np.arange(n_sub + 1) * width
+        edges[-1] = self._nbins
+        widths = np.diff(edges)
+        # Real input: every bin but DC and Nyquist is folded (x2); the two outer sub-bands hold one
+        # unfolded bin each, so their density reads low by at most 1/width (they are never used).
+        scale = (2.0 if self.one_sided else 1.0) / (fs * np.sum(self.window**2))
+        track = self._slots[:n_slots] * np.float32(scale) / np.maximum(slot_counts, 1)[:, None].astype(np.float32)
+        track /= widths.astype(np.float32)
+        if not self.one_sided and n_sub > 1:
+            track = np.roll(track, n_sub // 2, axis=1)  # the fftshift of the bins, by whole sub-bands
+        track.setflags(write=False)
+        return track, slot_counts, np.stack([edges[:-1], edges[1:]], axis=1)
 
 
 def psd(x, sample_rate_hz: float, **kwargs) -> Psd:

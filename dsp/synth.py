@@ -206,3 +206,81 @@ def cu8_to_complex(raw: np.ndarray) -> np.ndarray:
 #: Quantisation noise density of an ideal 8-bit cu8 converter, FS**2 per sample (both rails):
 #: step 1/127.5, variance step**2/12 per rail (Bennett 1948).
 CU8_QUANTISATION_POWER = 2.0 * (1.0 / 127.5) ** 2 / 12.0
+
+
+# --------------------------------------------------------------------------------------------
+# Signals that are not a steady tone in white noise (each with its truth in closed form)
+
+
+def white_noise(n: int, power: float, rng: np.random.Generator, *, real: bool = False) -> np.ndarray:
+    """White Gaussian noise of mean power ``power`` (FS**2): complex, or real with ``real``."""
+    if real:
+        return np.sqrt(power) * rng.standard_normal(n)
+    return np.sqrt(power / 2.0) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+
+
+def keyed(n: int, sample_rate_hz: float, *, duty: float, period_s: float, start_s: float = 0.0) -> np.ndarray:
+    """On-off keying gate (0 or 1 per sample): on for the first ``duty`` of every ``period_s``,
+    starting ``start_s`` into the capture. The fraction of samples on is ``duty`` exactly when the
+    capture holds whole periods."""
+    t = np.arange(n) / sample_rate_hz - start_s
+    return ((t % period_s) < duty * period_s).astype(float)
+
+
+def two_line_keying(n: int, sample_rate_hz: float, *, power: float, offsets_hz: tuple[float, float],
+                    period_s: float) -> np.ndarray:
+    """Frequency-shift keying between two lines with a continuous phase: half of each ``period_s``
+    on each offset, so each line holds ``power`` for half the time (average power/2 each)."""
+    t = np.arange(n) / sample_rate_hz
+    first = (t % period_s) < period_s / 2
+    freq = np.where(first, offsets_hz[0], offsets_hz[1])
+    phase = 2 * np.pi * np.cumsum(freq) / sample_rate_hz
+    return np.sqrt(power) * np.exp(1j * phase)
+
+
+def level_ramp(n: int, sample_rate_hz: float, *, start_dbfs: float, end_dbfs: float, offset_hz: float) -> np.ndarray:
+    """A tone whose power goes linearly in dB from ``start_dbfs`` to ``end_dbfs`` over the capture
+    (a drift of (end - start) / duration dB/s)."""
+    level_db = np.linspace(start_dbfs, end_dbfs, n)
+    t = np.arange(n) / sample_rate_hz
+    return amplitude_from_db(level_db) * np.exp(2j * np.pi * offset_hz * t)
+
+
+def floor_step(n: int, *, power: float, step_db: float, at: float, rng: np.random.Generator) -> np.ndarray:
+    """Complex white noise of ``power`` that rises by ``step_db`` from the fraction ``at`` of the
+    capture to the end (a gain step, an interferer switching on)."""
+    x = white_noise(n, power, rng)
+    x[int(at * n):] *= amplitude_from_db(step_db)
+    return x
+
+
+def broad_hump(n: int, sample_rate_hz: float, *, power: float, center_hz: float, width_hz: float,
+               rng: np.random.Generator) -> np.ndarray:
+    """Gaussian noise of ``power`` whose spectrum is a Gaussian hump at ``center_hz`` with -3 dB
+    width ``width_hz`` (a pulsed or digitally modulated signal, not a line)."""
+    spec = np.fft.fft(white_noise(n, 1.0, rng))
+    f = np.fft.fftfreq(n, 1.0 / sample_rate_hz)
+    sigma = width_hz / (2.0 * np.sqrt(2.0 * np.log(2.0)))  # FWHM of a Gaussian, power in frequency
+    x = np.fft.ifft(spec * np.sqrt(np.exp(-0.5 * ((f - center_hz) / sigma) ** 2)))
+    return x * np.sqrt(power / np.mean(np.abs(x) ** 2))
+
+
+def band_limited(x: np.ndarray, sample_rate_hz: float, low_hz: float, high_hz: float) -> np.ndarray:
+    """``x`` (real) with everything outside ``low_hz`` .. ``high_hz`` removed (an ideal band-pass:
+    an audio passband with an empty stopband)."""
+    spec = np.fft.rfft(x)
+    f = np.fft.rfftfreq(x.size, 1.0 / sample_rate_hz)
+    spec[(f < low_hz) | (f > high_hz)] = 0.0
+    return np.fft.irfft(spec, x.size)
+
+
+def zero_runs(x: np.ndarray, *, fraction: float, runs: int = 3) -> np.ndarray:
+    """``x`` with ``runs`` equal runs of exactly-zero samples (dropped transfers) covering
+    ``fraction`` of it, evenly spread."""
+    y = np.array(x, copy=True)
+    length = int(fraction * y.size / runs)
+    gap = (y.size - runs * length) / (runs + 1)
+    for i in range(runs):
+        start = int(gap * (i + 1)) + i * length
+        y[start:start + length] = 0
+    return y

@@ -27,10 +27,15 @@ from scipy import special
 
 from rxbench.dsp.floor import NoiseFloor, detection_threshold
 from rxbench.dsp.spectrum import Psd, kernel
+from rxbench.dsp.timeline import Timeline, tone_timeline
 from rxbench.dsp.units import db_from_power
 
 #: Half-width of the band integrated around a tone, bins (Hann main lobe is +/-2 bins).
 BAND_HALFWIDTH_BINS = 4
+#: A peak this many times wider (-3 dB) than the window's own line is a broad signal, not a tone.
+BROAD_FACTOR = 3.0
+#: Another line within this of the strongest (dB) is named as a second line.
+SECOND_LINE_DB = 1.0
 #: Default noise bandwidth for the reported SNR, Hz (a speech channel).
 DEFAULT_SNR_BANDWIDTH_HZ = 2500.0
 
@@ -55,6 +60,15 @@ class Tone:
         Noise bandwidth of ``snr_db``.
     peak_to_floor_db : float
         Peak bin over the noise floor, dB: how clearly the tone stands out.
+    width_hz, line_width_hz : float
+        -3 dB width of the peak above the noise, and that of a pure line at the same place (the
+        window's own width), Hz.
+    second_offset_hz : float or None
+        Another line whose power is within SECOND_LINE_DB of this one (None: there is none).
+    second_db : float or None
+        That line's power relative to this one's, dB.
+    timeline : Timeline or None
+        The time-resolved reading (:mod:`dsp.timeline`): on-fraction, on-power, level change.
     """
 
     offset_hz: float
@@ -64,6 +78,28 @@ class Tone:
     noise_density: float
     snr_bandwidth_hz: float
     peak_to_floor_db: float
+    width_hz: float = float("nan")
+    line_width_hz: float = float("nan")
+    second_offset_hz: float | None = None
+    second_db: float | None = None
+    timeline: Timeline | None = None
+
+    @property
+    def is_broad(self) -> bool:
+        return bool(self.width_hz > BROAD_FACTOR * self.line_width_hz)
+
+    @property
+    def on_fraction(self) -> float | None:
+        return None if self.timeline is None else self.timeline.on_fraction
+
+    @property
+    def on_power_dbfs(self) -> float:
+        p = self.power if self.timeline is None else self.timeline.on_power
+        return db_from_power(max(p, 0.0))
+
+    @property
+    def on_cn0_dbhz(self) -> float:
+        return self.on_power_dbfs - db_from_power(self.noise_density)
 
     @property
     def power_dbfs(self) -> float:
@@ -203,6 +239,12 @@ def measure_tone(
     u_power = float(np.sqrt(var_batches + var_floor))
     dof = (var_batches + var_floor) ** 2 / (var_batches**2 / (m - 1) + 1e-300) if var_batches > 0 else 1e6
     f0 = spectrum.frequency_hz[0] + f_bins * bw
+    left, right = _half_power_points(spectrum.density - n0, k)
+    line = np.subtract(*_half_power_points(kernel(spectrum.window, np.arange(n) - f_bins), k)[::-1])
+    second = _second_line(spectrum, floor, k, (int(left), int(np.ceil(right))), near_hz=near_hz,
+                          search_hz=search_hz)
+    width = right - left
+    timeline = tone_timeline(spectrum, n0, floor.mask, (lo, hi), float(power))
     return Tone(
         offset_hz=float(f0),
         power=float(power),
@@ -211,4 +253,54 @@ def measure_tone(
         noise_density=float(n0),
         snr_bandwidth_hz=float(snr_bandwidth_hz),
         peak_to_floor_db=db_from_power(spectrum.density[k] / n0),
+        width_hz=width * bw,
+        line_width_hz=line * bw,
+        second_offset_hz=None if second is None else float(spectrum.frequency_hz[second[0]]),
+        second_db=None if second is None else second[1],
+        timeline=timeline,
     )
+
+
+def _half_power_points(y: np.ndarray, k: int) -> tuple[float, float]:
+    """Where the peak of ``y`` at bin ``k`` falls to half its height either side (fractional bins,
+    interpolated linearly): the -3 dB width is their difference."""
+    half = 0.5 * y[k]
+    left = k
+    while left > 0 and y[left - 1] >= half:
+        left -= 1
+    right = k
+    while right < y.size - 1 and y[right + 1] >= half:
+        right += 1
+    lo = left - (y[left] - half) / (y[left] - y[left - 1]) if left > 0 else float(left)
+    hi = right + (y[right] - half) / (y[right] - y[right + 1]) if right < y.size - 1 else float(right)
+    return float(lo), float(hi)
+
+
+def _second_line(spectrum: Psd, floor: NoiseFloor, k: int, own_bins: tuple[int, int], *, near_hz=None,
+                 search_hz=None):
+    """(bin, dB relative to the tone at ``k``) of the strongest other peak standing above the noise
+    within SECOND_LINE_DB of it, or None. Peaks are compared by the power in +/-2 bins above the
+    floor (insensitive to where a line falls between bins); the DC region, the band edges and the
+    tone's own peak (its -3 dB points ``own_bins`` and the integration band beyond) are never
+    candidates."""
+    f, d, n0 = spectrum.frequency_hz, spectrum.density, floor.density
+    allowed = (np.abs(f) > floor.dc_halfwidth_hz) & (np.abs(f) <= floor.edge_hz)
+    if near_hz is not None:
+        allowed &= np.abs(f - near_hz) <= (search_hz or max(10 * spectrum.bin_width_hz, 1000.0))
+    above = d > detection_threshold(spectrum.dof, int(allowed.sum()) or 1) * n0
+    own = np.zeros(d.size, bool)
+    lo, hi = own_bins
+    own[max(lo - BAND_HALFWIDTH_BINS, 0) : hi + BAND_HALFWIDTH_BINS + 1] = True
+    candidates = allowed & above & ~own
+    if not candidates.any():
+        return None
+    excess = np.convolve(d - n0, np.ones(5), mode="same")
+    # Local maxima only: one candidate per peak.
+    peaks = np.flatnonzero(candidates & (d >= np.roll(d, 1)) & (d >= np.roll(d, -1)))
+    if peaks.size == 0 or excess[k] <= 0:
+        return None
+    best = int(peaks[np.argmax(excess[peaks])])
+    if excess[best] <= 0:
+        return None
+    rel = float(10 * np.log10(excess[best] / excess[k]))
+    return (best, rel) if rel >= -SECOND_LINE_DB else None

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.analyze import read_capture, tone_dict
+from rxbench.analyze import INTERMITTENT_BELOW, noise_dict, read_capture, tone_dict
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
@@ -21,6 +21,9 @@ def add_parser(sub) -> None:
     p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--snr-bandwidth", type=quantity_arg("bandwidth"), default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
                    help="noise bandwidth for the SNR, Hz (default %(default)g)")
+    p.add_argument("--noise-band", type=quantity_arg("offset"), nargs=2, metavar=("LO", "HI"),
+                   help="take the noise floor between these offsets from centre, Hz (default: the whole band, "
+                        "or near the signals when the floor is not flat)")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
     add_capture_options(p)
     add_json_option(p)
@@ -35,7 +38,7 @@ def run(args: argparse.Namespace) -> int:
     cap = capture_from_args(args.capture, args)
     show = Progress(sys.stderr)
     r = read_capture(cap, near_hz=args.near, nperseg=args.nperseg, snr_bandwidth_hz=args.snr_bandwidth,
-                     progress=lambda done, total: show.update(f"reading {cap.name}", done, total))
+                     noise_band_hz=args.noise_band, progress=lambda done, total: show.update(f"reading {cap.name}", done, total))
     show.clear()
     t = r.tone
     result = {
@@ -45,11 +48,7 @@ def run(args: argparse.Namespace) -> int:
         "n_samples": cap.n_samples,
         "duration_s": cap.duration_s,
         "tone": tone_dict(t, cap.center_hz),
-        "noise": {
-            "density_dbfs_per_hz": db_from_power(r.floor.density),
-            "u_density_db": 10 / 2.302585092994046 * r.floor.u_density / r.floor.density,
-            "bins_used": r.floor.n_bins,
-        },
+        "noise": noise_dict(r),
         "spectrum": {"nperseg": r.psd.nperseg, "bin_width_hz": r.psd.bin_width_hz, "enbw_hz": r.psd.enbw_hz,
                      "segments": r.psd.n_segments, "dof": r.psd.dof},
         "clip_fraction": r.health.clip_fraction,
@@ -63,14 +62,24 @@ def run(args: argparse.Namespace) -> int:
     else:
         freq = "" if cap.center_hz is None else f"  ({fmt_hz_band(cap.center_hz + t.offset_hz, 1.0)})"
         lo, hi = t.ci95_dbfs
+        on = t.on_fraction
+        intermittent = on is not None and on < INTERMITTENT_BELOW
+        basis = "  averaged over the whole capture" if intermittent else ""
         lines += [
             f"  tone          {t.offset_hz:+.1f} Hz{freq}",
-            f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)})",
+            f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)}){basis}",
+        ]
+        if intermittent:
+            lines.append(f"  while on      {fmt_db(t.on_power_dbfs)} dBFS, present {100 * on:.0f} % of the time"
+                         f" (C/N0 {fmt_db(t.on_cn0_dbhz, 1)} dB-Hz while on)")
+        lines += [
             f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
             f"  SNR           {fmt_db(t.snr_db, 1)} dB in {fmt_hz(t.snr_bandwidth_hz)}",
+            f"  width         {fmt_hz(t.width_hz)} at -3 dB (a line: {fmt_hz(t.line_width_hz)})",
         ]
     lines += [
-        f"  noise         {fmt_db(result['noise']['density_dbfs_per_hz'])} dBFS/Hz",
+        f"  noise         {fmt_db(result['noise']['density_dbfs_per_hz'])} dBFS/Hz  (moves "
+        f"{r.floor.time_range_db:.2g} dB in time, {r.floor.band_range_db:.2g} dB across the band)",
         f"  clipped       {100 * r.health.clip_fraction:.4g} % of samples",
         f"  DC offset     {fmt_db(r.health.dc_offset_dbfs, 1)} dBFS",
     ]

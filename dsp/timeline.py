@@ -1,0 +1,176 @@
+"""What the capture pass's fine time track tells about a tone: when it is present, its power while
+present, and how its level changes over the capture.
+
+Notes
+-----
+The track (:class:`dsp.spectrum.Psd` ``track``) holds the PSD summed into sub-bands for each time
+slot of the capture. Per slot, the floor is the median over the noise-only sub-bands of each
+sub-band's level relative to its own average (so the band's shape cancels), times the capture's
+floor density; the tone's power is the excess over that floor in the sub-bands that hold the tone's
+band, less the average excess of whatever else shares those sub-bands (taken as steady). The
+per-slot noise is measured, not modelled: a robust spread (1.4826 MAD) of the noise-only sub-bands'
+relative levels.
+
+The decision "present in a slot" is made at the finest time resolution (slots merged 1, 2, 4, ...)
+at which the tone's strong slots (98th percentile) stand at least DETECT_MARGIN deviations above
+the floor (the larger of the noise's and the on-slots' own slot-to-slot scatter); then a slot counts as "on" when its tone power exceeds ON_THRESHOLD deviations.
+A tone too weak for even the coarsest resolution (8 slots) gets no on-fraction (None).
+
+The level change is read over the on-time, in up to 16 blocks of equal duration: the spread of
+the block means (dB) counts when it is at least LEVEL_CHANGE_DB and five times their combined
+standard error; a straight line through the block means that explains it (residuals below a
+tenth of the change, or twice the blocks' standard error) makes it a drift, reported in dB/s.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+#: A slot counts as "on" when the tone's power in it exceeds this many noise deviations.
+ON_THRESHOLD = 5.0
+#: The time resolution is fine enough when the strong slots stand this many deviations clear.
+DETECT_MARGIN = 10.0
+#: Level changes below this (dB) are not reported (a dongle's gain wanders by tenths of a dB).
+LEVEL_CHANGE_DB = 1.0
+#: Sub-bands with at least this fraction of their bins used by the floor count as noise-only.
+NOISE_SUBBAND_FRACTION = 0.9
+#: Blocks the on-time is cut into for the level change.
+LEVEL_BLOCKS = 16
+#: A change is a drift when a straight line leaves residuals (RMS) below this fraction of it (a
+#: step half-way leaves a quarter).
+DRIFT_RESIDUAL = 0.1
+
+
+@dataclass(frozen=True)
+class Timeline:
+    """A tone's time-resolved reading.
+
+    Attributes
+    ----------
+    on_fraction : float or None
+        Fraction of the capture's (non-zero) time in which the tone stands above the noise; None
+        when the tone is too weak to resolve in time.
+    on_power : float
+        Mean tone power while on, FS**2 (the whole-capture power when ``on_fraction`` is None).
+    slot_s : float
+        Time resolution of the on/off decision, s.
+    level_change_db : float
+        Spread of the tone's level over its on-time, dB (0 when within the readings' scatter or
+        below LEVEL_CHANGE_DB).
+    drift_db_per_s : float or None
+        Slope of the level, dB/s, when the change is a steady drift; None for steps or no change.
+    """
+
+    on_fraction: float | None
+    on_power: float
+    slot_s: float
+    level_change_db: float = 0.0
+    drift_db_per_s: float | None = None
+
+
+def _merge(values: np.ndarray, counts: np.ndarray, g: int):
+    """Merge consecutive rows of ``values`` (weighted by ``counts``) in groups of ``g``."""
+    if g == 1:
+        return values, counts
+    starts = np.arange(0, len(counts), g)
+    c = np.add.reduceat(counts, starts)
+    v = np.add.reduceat(values * counts[:, None], starts, axis=0) / c[:, None]
+    return v, c
+
+
+def tone_timeline(spectrum, floor_density: float, floor_mask: np.ndarray, tone_bins: tuple[int, int],
+                  power: float) -> Timeline:
+    """The time-resolved reading of a tone whose band is bins ``tone_bins`` (first, one past last)
+    and whose whole-capture power is ``power`` (FS**2)."""
+    track = spectrum.track
+    unknown = Timeline(None, float(power), 0.0)
+    if track is None or len(track) < 8:
+        return unknown
+    bins = spectrum.track_bins
+    widths = np.diff(bins, axis=1)[:, 0]
+    used = np.add.reduceat(floor_mask.astype(np.int64), bins[:, 0]) / widths
+    lo, hi = tone_bins
+    sel = (bins[:, 1] > lo) & (bins[:, 0] < hi)
+    noise = (used >= NOISE_SUBBAND_FRACTION) & ~sel
+    if noise.sum() < 4:
+        return unknown
+    counts = spectrum.track_counts.astype(float)
+    live = counts > 0  # slots wholly in runs of exactly-zero samples are left out
+    values, counts = np.asarray(track[live], dtype=float), counts[live]
+    if len(counts) < 8:
+        return unknown
+    mean = counts @ values / counts.sum()
+    if not np.all(mean[noise] > 0):
+        return unknown
+    bw = spectrum.bin_width_hz
+    sel_width_hz = float(widths[sel].sum() * bw)
+    g = 1
+    while len(counts) // g >= 8:
+        v, c = _merge(values, counts, g)
+        rel = v[:, noise] / mean[noise]
+        floor_ratio = np.median(rel, axis=1)
+        dev = rel / floor_ratio[:, None] - 1.0
+        sigma_sub = 1.4826 * np.median(np.abs(dev - np.median(dev)))
+        excess = (v[:, sel] * widths[sel]).sum(axis=1) * bw - floor_density * floor_ratio * sel_width_hz
+        mean_excess = c @ excess / c.sum()
+        tone_power = excess - (mean_excess - power)
+        sigma = sigma_sub * np.sqrt(sel.sum()) * floor_density * floor_ratio * widths[sel].mean() * bw
+        # While on, the tone's slots scatter more than the noise alone (the tone-noise cross term,
+        # the signal's own fluctuation): measured from differences of neighbouring on-slots, which
+        # slow changes of level do not enter.
+        maybe_on = tone_power > ON_THRESHOLD * sigma
+        spread = np.median(sigma)
+        if maybe_on.sum() >= 8:
+            steps = np.diff(tone_power[maybe_on])
+            spread = max(spread, 1.4826 * np.median(np.abs(steps - np.median(steps))) / np.sqrt(2.0))
+        if np.quantile(tone_power, 0.98) >= DETECT_MARGIN * spread:
+            break
+        g *= 2
+    else:
+        return unknown
+    on = tone_power > ON_THRESHOLD * sigma
+    slot_s = spectrum.slot_s * g
+    if not on.any():
+        return Timeline(0.0, float(power), slot_s)
+    # A slot next to an "off" one may be on for part of its time only: it counts by its power
+    # relative to the fully-on slots' median, and the on-power is read from the fully-on slots.
+    inner = on & np.concatenate([[True], on[:-1]]) & np.concatenate([on[1:], [True]])
+    full = tone_power[inner] if inner.any() else tone_power[on]
+    level = float(np.median(full))
+    weight = np.where(inner, 1.0, np.clip(tone_power / level, 0.0, 1.0)) * on
+    on_fraction = float(min(1.0, c @ weight / c.sum()))
+    on_power = float(c[inner] @ tone_power[inner] / c[inner].sum()) if inner.any() else level
+    change, drift = _level_change(tone_power[on], np.flatnonzero(on) * slot_s)
+    return Timeline(on_fraction, on_power, slot_s, change, drift)
+
+
+def _level_change(power: np.ndarray, t: np.ndarray) -> tuple[float, float | None]:
+    """(level change in dB, drift in dB/s or None) over the on-slots (their power and times); the
+    block means' standard errors come from the scatter of the slots within each block (the
+    signal's own fluctuation included)."""
+    if len(power) < 4 or t[-1] <= t[0]:
+        return 0.0, None
+    edges = np.linspace(t[0], t[-1], LEVEL_BLOCKS + 1)
+    block = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, LEVEL_BLOCKS - 1)
+    n = np.bincount(block, minlength=LEVEL_BLOCKS)
+    full = n > 0
+    full = n > 1
+    p = np.bincount(block, power, LEVEL_BLOCKS)[full] / n[full]
+    squares = np.bincount(block, power**2, LEVEL_BLOCKS)[full] / n[full]
+    s = np.sqrt(np.maximum(squares - p**2, 0.0) / (n[full] - 1))
+    tb = np.bincount(block, t, LEVEL_BLOCKS)[full] / n[full]
+    if len(p) < 3 or not np.all(p > 0):
+        return 0.0, None
+    db = 10 * np.log10(p)
+    u_db = 10 / np.log(10) * s / p
+    i, j = int(np.argmax(db)), int(np.argmin(db))
+    change = float(db[i] - db[j])
+    if change < LEVEL_CHANGE_DB or change < 5.0 * np.hypot(u_db[i], u_db[j]):
+        return 0.0, None
+    slope, intercept = np.polyfit(tb, db, 1)
+    residual = db - (slope * tb + intercept)
+    if np.sqrt(np.mean(residual**2)) < max(DRIFT_RESIDUAL * change, 2.0 * float(np.median(u_db))):
+        return change, float(slope)
+    return change, None
