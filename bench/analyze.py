@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from rxbench import keys
+from rxbench._engine import InOrder
 from rxbench.errors import CaptureError, MeasurementError, UsageError
 from rxbench.recordings import Capture
 from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
@@ -78,16 +79,21 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
         raise CaptureError(capture.path, f"FFT segment length {n} is outside 16 .. 16777216")
     if capture.n_samples < n:
         raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
+    runner = InOrder()  # both accumulators' work on the worker threads, applied in order
     acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex,
-                         expected_samples=capture.n_samples)
-    health = HealthAccumulator(capture.clip_level, capture.float_samples)
+                         expected_samples=capture.n_samples, runner=runner)
+    health = HealthAccumulator(capture.clip_level, capture.float_samples, runner=runner)
     done = 0
-    for block in capture.blocks():
-        health.update(block)
-        acc.update(block)
-        done += block.size
-        if progress is not None:
-            progress(done, capture.n_samples)
+    try:
+        for block in capture.blocks():
+            health.update(block)
+            acc.update(block)
+            done += block.size
+            if progress is not None:
+                progress(done, capture.n_samples)
+    except BaseException:  # an interrupt or a bad block: no work left running behind us
+        runner.cancel()
+        raise
     h = health.result()
     if h.n_nonfinite:
         raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rxbench.dsp.parallel import InOrder
+from rxbench.dsp.spectrum import Inline
 
 #: Samples sitting exactly on the peak magnitude of un-normalised float data from which that peak
 #: counts as a rail (a pile-up), not as the largest of many different values.
@@ -127,7 +127,7 @@ class HealthAccumulator:
         the peak magnitude counts as a rail (see the module notes).
     """
 
-    def __init__(self, clip_level: float = 1.0, float_samples: bool = False):
+    def __init__(self, clip_level: float = 1.0, float_samples: bool = False, runner=None):
         if not clip_level > 0:
             raise ValueError(f"{clip_level=} must be positive")
         self.clip_level = float(clip_level) * (1 - _RAIL_MARGIN)
@@ -139,7 +139,7 @@ class HealthAccumulator:
         self._nonfinite = 0
         self._peak = 0.0
         self._at_peak = 0
-        self._work = InOrder()
+        self._work = Inline() if runner is None else runner  # see dsp.spectrum.PsdAccumulator
 
     def update(self, block) -> None:
         """Add a block (its statistics are taken on a worker thread when it is large)."""

@@ -17,22 +17,19 @@ import threading
 from dataclasses import dataclass
 
 import numpy as np
-
-from rxbench.dsp.fft import fft_rows, rfft_rows
-from rxbench.dsp.parallel import InOrder
-
-_LOCAL = threading.local()
+import scipy.fft
 
 
-def _work_buffer(dtype, rows: int, columns: int) -> np.ndarray:
-    """A per-thread scratch array for windowed segments, reused from call to call (fresh arrays of
-    this size cost a page fault per 4 kB, which was a fifth of the whole pass)."""
-    buffers = _LOCAL.__dict__.setdefault("buffers", {})
-    key = (np.dtype(dtype), columns)
-    buf = buffers.get(key)
-    if buf is None or len(buf) < rows:
-        buf = buffers[key] = np.empty((rows, columns), dtype)
-    return buf
+class Inline:
+    """The runner an accumulator uses unless given another: every job computed at once, in order.
+    (A runner has ``submit(apply, fn, *args, inline=False)`` and ``drain()``; the command line's
+    runs the jobs on worker threads and applies their results in the order submitted.)"""
+
+    def submit(self, apply, fn, *args, inline: bool = False) -> None:
+        apply(fn(*args))
+
+    def drain(self) -> None:
+        pass
 
 
 #: Number of time-ordered sub-averages kept for Type A scatter (between N_BATCHES and 2*N_BATCHES).
@@ -249,12 +246,16 @@ class PsdAccumulator:
         Length of the whole stream, when known (a file): the sub-averages then start at their final
         size instead of growing by merges, which gives the same sub-averages with the work in
         full-size batches from the first block.
+    runner : optional
+        Where the work runs (:class:`Inline` by default; the command line's spreads it over worker
+        threads and applies the results in submission order, so the numbers are the same).
 
     Notes
     -----
     Segments run continuously across block boundaries, so the result does not depend on how the
-    capture was cut into blocks. Complex64 input is transformed in single precision (:mod:`dsp.fft`,
-    batches of segments spread over the worker threads of :mod:`dsp.parallel`); each call sums at most 64 segments in that precision (relative error below 1e-5), and
+    capture was cut into blocks. Complex64 input is transformed in single precision (``scipy.fft``,
+    batches of up to 64 segments per call, handed to the runner); each call sums at most 64 segments
+    in that precision (relative error below 1e-5), and
     the running sums are kept in float64. Time-ordered sub-averages (``N_BATCHES`` to ``2*N_BATCHES``
     of them, merged pairwise as the capture grows) give the Type A scatter of any reading.
     """
@@ -267,6 +268,7 @@ class PsdAccumulator:
         overlap: float = 0.5,
         one_sided: bool = False,
         expected_samples: int | None = None,
+        runner=None,
     ):
         if not np.isfinite(sample_rate_hz) or sample_rate_hz <= 0:
             raise ValueError(f"{sample_rate_hz=} must be a positive number of Hz")
@@ -279,7 +281,8 @@ class PsdAccumulator:
         self.step = max(1, int(round(self.nperseg * (1.0 - overlap))))
         self.one_sided = bool(one_sided)
         self._tail = None
-        self._work = InOrder()
+        self._work = Inline() if runner is None else runner
+        self._scratch = threading.local()  # per worker thread: reused windowed-segment arrays
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
@@ -399,12 +402,13 @@ class PsdAccumulator:
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
         dtype = np.result_type(segments.dtype, win.dtype)
-        work = _work_buffer(dtype, max(len(segments), _SEGMENTS_PER_CALL), self.nperseg)
+        work = self._work_buffer(dtype, max(len(segments), _SEGMENTS_PER_CALL))
         windowed = np.multiply(segments, win, out=work[: len(segments)])
+        # One thread per call: the runner spreads the calls over the cores.
         if self.one_sided:
-            spec = rfft_rows(windowed, threads=1)
+            spec = scipy.fft.rfft(windowed, axis=-1, workers=1)
         else:
-            spec = fft_rows(windowed, overwrite=True, threads=1)
+            spec = scipy.fft.fft(windowed, axis=-1, overwrite_x=True, workers=1)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
         squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
         n_rows, n_sub, width = len(rails), self._n_sub, 2 * self._sub_width
@@ -420,6 +424,16 @@ class PsdAccumulator:
         slot_sums = np.add.reduceat(rows, starts, axis=0).astype(np.float32, copy=False)
         slot_dead = np.add.reduceat(dead.astype(np.int64), starts) if dead.any() else None
         return squares[0::2] + squares[1::2], first_segment // slot_len, slot_sums, slot_dead
+
+    def _work_buffer(self, dtype, rows: int) -> np.ndarray:
+        """This thread's scratch array for windowed segments, reused from call to call (fresh arrays
+        of this size cost a page fault per 4 kB, which was a fifth of the whole pass)."""
+        buffers = self._scratch.__dict__.setdefault("buffers", {})
+        key = np.dtype(dtype)
+        buf = buffers.get(key)
+        if buf is None or len(buf) < rows:
+            buf = buffers[key] = np.empty((rows, self.nperseg), dtype)
+        return buf
 
     def _open_batch(self) -> None:
         """Make sure the last sub-average has room; merge pairs when there are 2*N_BATCHES full ones."""

@@ -1,0 +1,143 @@
+"""The capture pass against its limit, against numpy + scipy.signal.welch, and against another
+rxbench (e.g. main before a change): whole processes, side by side, as ratios.
+
+Run on demand (not part of the test run):
+
+    python benchmarks/bench_pass.py [--durations 1 60 300] [--rounds 5] [--baseline PYTHON]
+
+For each duration it writes a cu8 capture at 2.4 MS/s (the 1 s one by ``rxbench synth``, longer
+ones by repeating it) and times, in interleaved rounds:
+
+- ``rxbench inspect CAPTURE --rate 2.4e6 --json``;
+- the limit: a script that only reads the same file in the same 4 MiB blocks, decodes cu8 and
+  FFTs the same 4096-point half-overlapped Hann segments (``scipy.fft``, all cores), summing |X|^2;
+- ``--baseline PYTHON``: ``rxbench inspect`` run by another interpreter (a venv with another
+  checkout installed), e.g. main before the change;
+- numpy + ``scipy.signal.welch`` on the whole file in memory, for captures up to ``--welch-max-s``.
+
+It prints medians of the wall times, the per-round ratios' median and range, and the peak resident
+memory of each. The machine is shared and noisy: compare ratios taken in the same rounds.
+Targets (DEVELOPERS.md): the 60 s pass within 1.25x of the limit, 1 s within 1.5x, peak memory
+flat in the capture length, and within 10 % of the baseline in time and memory.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+RATE = 2.4e6
+
+LIMIT_SCRIPT = """
+import sys, numpy as np, scipy.fft
+n, step, block = 4096, 2048, 4 << 20
+w = (0.5 - 0.5 * np.cos(2 * np.pi * np.arange(n) / n)).astype(np.float32)
+total = np.zeros(n)
+tail = np.zeros(0, np.complex64)
+with open(sys.argv[1], "rb") as f:
+    while True:
+        raw = np.frombuffer(f.read(block), np.uint8)
+        if raw.size == 0:
+            break
+        x = ((raw.astype(np.float32) - np.float32(127.5)) / np.float32(127.5)).view(np.complex64)
+        x = np.concatenate([tail, x])
+        k = 0 if x.size < n else 1 + (x.size - n) // step
+        if k:
+            seg = np.lib.stride_tricks.sliding_window_view(x, n)[::step][:k]
+            for i in range(0, k, 64):
+                spec = scipy.fft.fft(seg[i:i + 64] * w, axis=-1, workers=-1)
+                total += (spec.real ** 2 + spec.imag ** 2).sum(axis=0)
+        tail = x[k * step:].copy()
+print(int(np.argmax(total)))
+"""
+
+WELCH_SCRIPT = """
+import sys, numpy as np, scipy.signal
+raw = np.fromfile(sys.argv[1], dtype=np.uint8).astype(np.float32)
+x = ((raw[0::2] - 127.5) + 1j * (raw[1::2] - 127.5)) / 127.5
+f, p = scipy.signal.welch(x, fs=2.4e6, nperseg=4096, return_onesided=False)
+print(f[int(np.argmax(p))])
+"""
+
+#: Children run as an installed program normally does: with their compiled bytecode cached.
+CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+
+
+def run_timed(cmd: list[str]) -> tuple[float, float]:
+    """Wall time (s) and peak RSS (MB) of one child process."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=CHILD_ENV)
+    _, status, usage = os.wait4(proc.pid, 0)
+    elapsed = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.read().decode()[-500:]}")
+    return elapsed, usage.ru_maxrss / 1024.0
+
+
+def make_capture(work: Path, seconds: int) -> Path:
+    one = work / "one_second.cu8"
+    if not one.exists():
+        subprocess.run([sys.executable, "-m", "rxbench", "synth", str(one), "--rate", str(RATE), "--duration", "1"],
+                       check=True, stdout=subprocess.DEVNULL)
+    if seconds == 1:
+        return one
+    out = work / f"seconds_{seconds}.cu8"
+    if not out.exists():
+        with open(out, "wb") as dst:
+            for _ in range(seconds):
+                with open(one, "rb") as src:
+                    shutil.copyfileobj(src, dst)
+    return out
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--durations", type=int, nargs="+", default=[1, 60, 300])
+    ap.add_argument("--rounds", type=int, default=5)
+    ap.add_argument("--baseline", help="python of another rxbench install to compare with")
+    ap.add_argument("--welch-max-s", type=float, default=10.0)
+    ap.add_argument("--workdir", type=Path)
+    args = ap.parse_args()
+    work = args.workdir or Path(tempfile.mkdtemp(prefix="rxbench-pass-"))
+    work.mkdir(parents=True, exist_ok=True)
+    limit, welch = work / "limit.py", work / "welch.py"
+    limit.write_text(LIMIT_SCRIPT)
+    welch.write_text(WELCH_SCRIPT)
+    for seconds in args.durations:
+        cap = make_capture(work, seconds)
+        inspect = ["-m", "rxbench", "inspect", str(cap), "--rate", str(RATE), "--json"]
+        cmds = {"rxbench inspect": [sys.executable, *inspect], "limit (read, decode, FFT)": [sys.executable, str(limit), str(cap)]}
+        if args.baseline:
+            cmds["baseline inspect"] = [args.baseline, *inspect]
+        if seconds <= args.welch_max_s:
+            cmds["numpy + scipy.signal.welch"] = [sys.executable, str(welch), str(cap)]
+        for cmd in cmds.values():  # one untimed run each: page cache, bytecode
+            run_timed(cmd)
+        runs = {name: [] for name in cmds}
+        for _ in range(args.rounds):
+            for name, cmd in cmds.items():
+                runs[name].append(run_timed(cmd))
+        ours = runs["rxbench inspect"]
+        print(f"\n{seconds} s at 2.4 MS/s cu8 ({cap.stat().st_size / 1e6:.0f} MB), {args.rounds} interleaved rounds")
+        for name, results in runs.items():
+            t = statistics.median(r[0] for r in results)
+            mem = statistics.median(r[1] for r in results)
+            line = f"  {name:28s} {t:7.3f} s  {mem:7.0f} MB"
+            if name != "rxbench inspect":
+                ratios = [a[0] / b[0] for a, b in zip(ours, results)]
+                mems = [a[1] / b[1] for a, b in zip(ours, results)]
+                line += (f"   inspect/this: time {statistics.median(ratios):.3f}x ({min(ratios):.2f}-{max(ratios):.2f}),"
+                         f" memory {statistics.median(mems):.3f}x")
+            print(line, flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
