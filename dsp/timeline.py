@@ -34,8 +34,8 @@ ON_THRESHOLD = 5.0
 DETECT_MARGIN = 10.0
 #: Level changes below this (dB) are not reported (a dongle's gain wanders by tenths of a dB).
 LEVEL_CHANGE_DB = 1.0
-#: Sub-bands with at least this fraction of their bins used by the floor count as noise-only.
-NOISE_SUBBAND_FRACTION = 0.9
+#: Sub-bands whose average level is within this of the median sub-band's (dB) count as noise-only.
+NOISE_SUBBAND_DB = 0.5
 #: Blocks the on-time is cut into for the level change.
 LEVEL_BLOCKS = 16
 #: A change is a drift when a straight line leaves residuals (RMS) below this fraction of it (a
@@ -76,44 +76,54 @@ def _merge(values: np.ndarray, counts: np.ndarray, g: int):
         return values, counts
     starts = np.arange(0, len(counts), g)
     c = np.add.reduceat(counts, starts)
-    v = np.add.reduceat(values * counts[:, None], starts, axis=0) / c[:, None]
+    v = np.add.reduceat(values * counts[:, None], starts, axis=0)
+    v /= c[:, None]
     return v, c
 
 
-def tone_timeline(spectrum, floor_density: float, floor_mask: np.ndarray, tone_bins: tuple[int, int],
+def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins: tuple[int, int],
                   power: float) -> Timeline:
     """The time-resolved reading of a tone whose band is bins ``tone_bins`` (first, one past last)
-    and whose whole-capture power is ``power`` (FS**2)."""
+    and whose whole-capture power is ``power`` (FS**2); ``usable`` marks the bins clear of the DC
+    spike and the band edges (:func:`dsp.floor.usable_mask`).
+
+    Noise-only sub-bands are those wholly usable, apart from the tone's, whose average level is
+    within NOISE_SUBBAND_DB of the median sub-band's (a signal raises its sub-band's level)."""
     track = spectrum.track
     unknown = Timeline(None, float(power), 0.0)
     if track is None or len(track) < 8:
         return unknown
     bins = spectrum.track_bins
     widths = np.diff(bins, axis=1)[:, 0]
-    used = np.add.reduceat(floor_mask.astype(np.int64), bins[:, 0]) / widths
+    inside = np.add.reduceat(usable.astype(np.int64), bins[:, 0]) == widths
     lo, hi = tone_bins
     sel = (bins[:, 1] > lo) & (bins[:, 0] < hi)
-    noise = (used >= NOISE_SUBBAND_FRACTION) & ~sel
-    if noise.sum() < 4:
-        return unknown
-    counts = spectrum.track_counts.astype(float)
+    counts = spectrum.track_counts.astype(np.float32)
     live = counts > 0  # slots wholly in runs of exactly-zero samples are left out
-    values, counts = np.asarray(track[live], dtype=float), counts[live]
+    # Single precision throughout (the track is float32): the work arrays are the track's size.
+    values, counts = (track, counts) if live.all() else (track[live], counts[live])
     if len(counts) < 8:
         return unknown
-    mean = counts @ values / counts.sum()
-    if not np.all(mean[noise] > 0):
+    mean = (counts.astype(float) @ values) / counts.sum()
+    candidates = inside & ~sel & (mean > 0)
+    if candidates.sum() < 4:
+        return unknown
+    noise = candidates & (mean <= np.median(mean[candidates]) * 10 ** (NOISE_SUBBAND_DB / 10))
+    if noise.sum() < 4:
         return unknown
     bw = spectrum.bin_width_hz
     sel_width_hz = float(widths[sel].sum() * bw)
     g = 1
     while len(counts) // g >= 8:
         v, c = _merge(values, counts, g)
-        rel = v[:, noise] / mean[noise]
-        floor_ratio = np.median(rel, axis=1)
-        dev = rel / floor_ratio[:, None] - 1.0
-        sigma_sub = 1.4826 * np.median(np.abs(dev - np.median(dev)))
-        excess = (v[:, sel] * widths[sel]).sum(axis=1) * bw - floor_density * floor_ratio * sel_width_hz
+        rel = v[:, noise] / mean[noise].astype(np.float32)
+        floor_ratio = np.median(rel, axis=1).astype(float)
+        rel /= floor_ratio[:, None].astype(np.float32)
+        rel -= np.float32(np.median(rel))
+        sigma_sub = 1.4826 * float(np.median(np.abs(rel, out=rel)))
+        del rel
+        c = c.astype(float)
+        excess = (v[:, sel].astype(float) * widths[sel]).sum(axis=1) * bw - floor_density * floor_ratio * sel_width_hz
         mean_excess = c @ excess / c.sum()
         tone_power = excess - (mean_excess - power)
         sigma = sigma_sub * np.sqrt(sel.sum()) * floor_density * floor_ratio * widths[sel].mean() * bw

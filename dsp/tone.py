@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
-from rxbench.dsp.floor import NoiseFloor, detection_threshold
+from rxbench.dsp.floor import NoiseFloor, detection_threshold, usable_mask
 from rxbench.dsp.spectrum import Psd, kernel
 from rxbench.dsp.timeline import Timeline, tone_timeline
 from rxbench.dsp.units import db_from_power
@@ -244,7 +244,8 @@ def measure_tone(
     second = _second_line(spectrum, floor, k, (int(left), int(np.ceil(right))), near_hz=near_hz,
                           search_hz=search_hz)
     width = right - left
-    timeline = tone_timeline(spectrum, n0, floor.mask, (lo, hi), float(power))
+    usable, _, _ = usable_mask(spectrum, dc_halfwidth_hz=floor.dc_halfwidth_hz)
+    timeline = tone_timeline(spectrum, n0, usable, (lo, hi), float(power))
     return Tone(
         offset_hz=float(f0),
         power=float(power),
