@@ -155,6 +155,11 @@ def test_direct_loss_recovers_a_known_attenuation_and_removes_drift(tmp_path):
     # Without a ladder the dongle's linearity is not assessed, and the budget says so.
     lin = [c for c in loss["budget"] if c["name"] == "dongle linearity"][0]
     assert "not assessed" in lin["note"]
+    # Each capture's entry carries the time-resolved and band keys of `rxbench inspect --json`.
+    for entry in a.captures:
+        assert entry["tone"]["on_fraction"] >= 0.95 and isinstance(entry["tone"]["width_hz"], float)
+        for key in ("time_range_db", "band_range_db", "zero_fraction", "density_dbfs_per_hz", "u_density_db"):
+            assert isinstance(entry["noise"][key], float)
 
 
 def test_mismatch_terms_from_the_plan_enter_the_loss_budget(tmp_path):

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from rxbench.analyze import Reading, read_capture, tone_dict
+from rxbench.analyze import Reading, noise_dict, read_capture, tone_dict
 from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.uncertainty import DEFAULT_K
@@ -106,8 +106,7 @@ def _capture_dict(e: Entry, r: Reading | None, error: str | None) -> dict:
     if r is not None:
         out.update({
             "tone": tone_dict(r.tone, cap.center_hz) if e.role in TONE_ROLES else None,
-            "noise": {"density_dbfs_per_hz": db_from_power(r.floor.density),
-                      "u_density_db": _DB * r.floor.u_density / r.floor.density},
+            "noise": noise_dict(r),
             "clip_fraction": r.clip_fraction, "warnings": list(r.warnings),
         })
     return out
