@@ -24,14 +24,14 @@ flat in the capture length, and within 10 % of the baseline in time and memory.
 from __future__ import annotations
 
 import argparse
-import os
 import shutil
 import statistics
 import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
+
+from bench_inspect import run_timed  # the same timing of a child process (this folder is on sys.path)
 
 RATE = 2.4e6
 
@@ -65,21 +65,6 @@ x = ((raw[0::2] - 127.5) + 1j * (raw[1::2] - 127.5)) / 127.5
 f, p = scipy.signal.welch(x, fs=2.4e6, nperseg=4096, return_onesided=False)
 print(f[int(np.argmax(p))])
 """
-
-#: Children run as an installed program normally does: with their compiled bytecode cached.
-CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
-
-
-def run_timed(cmd: list[str]) -> tuple[float, float]:
-    """Wall time (s) and peak RSS (MB) of one child process."""
-    t0 = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=CHILD_ENV)
-    _, status, usage = os.wait4(proc.pid, 0)
-    elapsed = time.perf_counter() - t0
-    if os.waitstatus_to_exitcode(status) != 0:
-        raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.read().decode()[-500:]}")
-    return elapsed, usage.ru_maxrss / 1024.0
-
 
 def make_capture(work: Path, seconds: int) -> Path:
     one = work / "one_second.cu8"

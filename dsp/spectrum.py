@@ -1,7 +1,9 @@
 """The one spectral path: a streaming Welch PSD accumulator and a band-integration helper.
 
 Every reading rxbench makes (tone power, noise density, SNR, the noise-source methods) stands on the
-averaged power spectral density this module produces.
+averaged power spectral density this module produces. (A little over 500 lines: the accumulator,
+its time track and the window figures it needs are one concept; the readings of the track live in
+:mod:`dsp.timeline`.)
 
 References
 ----------
