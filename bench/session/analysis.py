@@ -2,14 +2,12 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 from rxbench.analyze import Reading, noise_dict, read_capture, tone_dict
 from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.uncertainty import DEFAULT_K
-from rxbench.dsp.units import db_from_power
 from rxbench.session.folder import TONE_ROLES, Entry, Session
 from rxbench.session.external import _external, _snr_costs
 from rxbench.session.grouping import _center_key, _groups
@@ -20,8 +18,6 @@ from rxbench.session.tone import _tone_losses
 #: Sub-bands per capture for noise-source curves.
 N_SUB_BANDS = 8
 
-
-_DB = 10.0 / math.log(10.0)
 
 
 @dataclass
