@@ -5,24 +5,10 @@ from __future__ import annotations
 
 import math
 
+from rxbench.dsp.bands import AMATEUR_BANDS  # defined once there
+
 #: The sign between a value and its uncertainty, everywhere.
 PM = "±"
-
-#: Amateur bands by their widest regional limits, Hz (common practice: IARU band plans).
-AMATEUR_BANDS = (
-    ("160 m", 1.8e6, 2.0e6),
-    ("80 m", 3.5e6, 4.0e6),
-    ("60 m", 5.25e6, 5.45e6),
-    ("40 m", 7.0e6, 7.3e6),
-    ("30 m", 10.1e6, 10.15e6),
-    ("20 m", 14.0e6, 14.35e6),
-    ("17 m", 18.068e6, 18.168e6),
-    ("15 m", 21.0e6, 21.45e6),
-    ("12 m", 24.89e6, 24.99e6),
-    ("10 m", 28.0e6, 29.7e6),
-    ("6 m", 50.0e6, 54.0e6),
-    ("2 m", 144.0e6, 148.0e6),
-)
 
 
 def band_of(frequency_hz: float | None) -> str | None:

@@ -23,3 +23,53 @@ def test_tags():
     assert clipped.startswith("  [clipped]")
     assert "[outside the linear range]" in headline_tags(LOSS, {}, linear=False)
     assert headline_tags({"captures": ["a"], "budget": [{"name": "x", "note": ""}]}, {"a": 0.0}) == ""
+
+
+PLAN = """\
+[dongle]
+sample_rate_hz = 250000
+gain_db = 30.0
+settle_s = 0.02
+full_scale_dbm = -80.0
+
+[generator]
+level_dbm = -40.0
+offset_hz = 20000
+
+[defaults]
+center_hz = 28.4e6
+duration_s = 0.1
+
+[[step]]
+name = "thru"
+role = "thru"
+attenuation_db = {thru_db}
+
+[[step]]
+name = "dut"
+role = "dut"
+attenuation_db = {thru_db}
+"""
+
+
+def _summary(tmp_path, thru_db):
+    from rxbench.capture import run_session
+    from rxbench.plan import parse_plan
+    from rxbench.report import summary_lines
+    from rxbench.session import analyze_session, open_session
+    from rxbench.simulated import SimulatedBench
+
+    run_session(parse_plan(PLAN.format(thru_db=thru_db), "p.toml"), tmp_path / "s", SimulatedBench(seed=5), yes=True)
+    return [line for line in summary_lines(analyze_session(open_session(tmp_path / "s"))) if "insertion loss" in line]
+
+
+def test_clipped_session_headline_says_so(tmp_path):
+    # generator -40 dBm through 30 dB reaches -70 dBm: 10 dB over the simulated dongle's full scale
+    (line,) = _summary(tmp_path, 30)
+    assert "[clipped]" in line
+    assert "readings only: dongle linearity" in line and "mismatch not assessed" in line
+
+
+def test_clean_session_headline_has_no_clipped_tag(tmp_path):
+    (line,) = _summary(tmp_path, 50)
+    assert "[clipped]" not in line and "mismatch not assessed" in line

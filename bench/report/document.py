@@ -110,6 +110,9 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
                          _f(ex.get("fa_db"), 1)])
         w(_table(["band", "frequency", "excess X", "receiver NF (dB)", "T_a (K)", "F_a (dB)"], rows) + "\n\n")
         for ex in analysis.external_noise:
+            if ex.get("receiver_noise_figure_note"):
+                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: {ex['receiver_noise_figure_note']} "
+                  "(no noise figure measured at this tuning).\n")
             knee = ex.get("knee")
             if knee:
                 steps = ", ".join(f"{v:g}" for v in knee["steps_db"])

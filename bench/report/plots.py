@@ -2,18 +2,16 @@
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
 
 import numpy as np
 
-from rxbench.dsp.units import db_from_power
-from rxbench.report.text import _mhz
+from rxbench.report.text import _mhz, _pm
+from rxbench.spectra_pages import plot_spectra
+from rxbench.style import fmt_hz
 from rxbench.session import QUIET_GALACTIC, Analysis
 
 
-#: Capture panels per spectra page.
-PANELS_PER_PAGE = 12
 #: Colours (colour-blind safe, Okabe-Ito).
 C_TRACE = "#0072B2"
 C_FLOOR = "#D55E00"
@@ -37,57 +35,6 @@ def _figure(width_in: float, height_in: float, *, constrained: bool = True):
 
 def _save(fig, path: Path) -> None:
     fig.savefig(path, dpi=DPI)
-
-
-def _spectrum_panel(ax, entry, reading) -> None:
-    psd, floor, tone = reading.psd, reading.floor, reading.tone
-    cap = entry.capture
-    f_khz = psd.frequency_hz / 1e3
-    dens_db = db_from_power(np.maximum(psd.density, 1e-300))
-    ax.plot(f_khz, dens_db, color=C_TRACE, lw=0.6, alpha=0.8, label="spectrum", zorder=2)
-    floor_db = db_from_power(floor.density)
-    ax.axhline(floor_db, color="black", lw=1.6, ls="--", zorder=3, label=f"noise floor {floor_db:.1f} dBFS/Hz")
-    top = float(np.max(dens_db))
-    if tone is not None and entry.role in ("thru", "dut", "step"):
-        k = psd.index_of(tone.offset_hz)
-        ax.plot([tone.offset_hz / 1e3], [dens_db[k] + 2.5], marker="v", ms=9, color=C_TONE, ls="none", zorder=4,
-                label=f"tone {tone.power_dbfs:.2f} dBFS at {tone.offset_hz / 1e3:+.2f} kHz")
-    ax.set_ylim(floor_db - 15, max(top, floor_db + 10) + 6)
-    ax.set_xlim(f_khz[0], f_khz[-1])
-    centre = "" if cap.center_hz is None else f" from {cap.center_hz / 1e6:.3f} MHz"
-    ax.set_xlabel(f"offset{centre} (kHz)", fontsize=8)
-    ax.set_ylabel("dBFS/Hz", fontsize=8)
-    att = "" if entry.attenuation_db is None else f", {entry.attenuation_db:g} dB"
-    dut = ", with DUT" if entry.through_dut and entry.role != "dut" else ""
-    ax.set_title(f"{entry.name}  ({entry.role}{att}{dut})", fontsize=9)
-    ax.tick_params(labelsize=7)
-    ax.grid(True, lw=0.3, alpha=0.6)
-    ax.legend(fontsize=7, loc="upper right", framealpha=0.85)
-
-
-def plot_spectra(analysis: Analysis, folder: Path) -> list[str]:
-    """One or more pages of capture spectra; returns the file names written."""
-    items = [(e, analysis.readings[e]) for e in analysis.session.entries if e in analysis.readings]
-    names = []
-    for page, start in enumerate(range(0, len(items), PANELS_PER_PAGE), start=1):
-        chunk = items[start:start + PANELS_PER_PAGE]
-        cols = 3 if len(chunk) > 4 else min(len(chunk), 2)
-        rows = math.ceil(len(chunk) / cols)
-        height = 3.0 * rows + 0.5
-        # Fixed margins (a constrained layout of many panels costs more than the drawing itself).
-        fig = _figure(5.0 * cols, height, constrained=False)
-        fig.subplots_adjust(left=0.06 if cols > 1 else 0.12, right=0.98, bottom=0.55 / height * 1.1,
-                            top=1.0 - 0.75 / height, hspace=0.55, wspace=0.25)
-        axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False)).ravel()
-        for ax, (e, r) in zip(axes, chunk):
-            _spectrum_panel(ax, e, r)
-        for ax in axes[len(chunk):]:
-            ax.set_visible(False)
-        fig.suptitle(f"Capture spectra (page {page}): tone marked ▼, noise floor dashed", fontsize=11)
-        name = f"spectra-{page:02d}.png"
-        _save(fig, folder / name)
-        names.append(name)
-    return names
 
 
 def plot_ladder(lad: dict, path: Path) -> None:
@@ -139,7 +86,20 @@ def _segments(freq, *cols):
     return np.split(np.arange(f.size), cut)
 
 
+def _values(seq) -> np.ndarray:
+    return np.array([np.nan if v is None else v for v in seq], dtype=float)
+
+
+def _bars(k: float, u_seq) -> np.ndarray:
+    """Error-bar half-lengths k*u; an unknown (None, non-finite or negative) u draws no bar."""
+    u = _values(u_seq)
+    return np.where(np.isfinite(u) & (u >= 0), k * u, np.nan)
+
+
 def plot_frequency(analysis: Analysis, path: Path) -> bool:
+    """Loss (and noise figure) against frequency: each sub-band a point with its ±U bar (no lines
+    joining noisy points into a ripple that is not there), the tone losses beside them, and in the
+    noise-figure panel the passive device's "NF = loss" reference at each tuning's whole-band loss."""
     curve = analysis.loss_vs_frequency
     tone_losses = [x for x in analysis.losses if x["frequency_hz"] is not None]
     if curve is None and not tone_losses:
@@ -148,40 +108,54 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
     fig = _figure(9.0, 7.5 if has_nf else 4.5)
     axes = fig.subplots(2 if has_nf else 1, 1, sharex=True, squeeze=False).ravel()
     ax1 = axes[0]
-    k = 2.0
+    k = float(curve.get("k", 2.0)) if curve is not None else 2.0
+    xs = [x["frequency_hz"] / 1e6 for x in tone_losses]
     if curve is not None and curve["has_loss"]:
         f = np.array(curve["frequency_hz"]) / 1e6
-        loss = np.array([np.nan if v is None else v for v in curve["insertion_loss_db"]], dtype=float)
-        u = np.array([np.nan if v is None else v for v in curve["u_insertion_loss_db"]], dtype=float)
-        for i, idx in enumerate(_segments(f)):
-            ax1.fill_between(f[idx], loss[idx] - k * u[idx], loss[idx] + k * u[idx], color=C_TRACE, alpha=0.25,
-                             lw=0, label="noise source ±2u" if i == 0 else None)
-            ax1.plot(f[idx], loss[idx], "-o", color=C_TRACE, ms=3, lw=1.2,
-                     label="noise source (per sub-band)" if i == 0 else None)
+        xs += list(f)
+        ax1.errorbar(f, _values(curve["insertion_loss_db"]), yerr=_bars(k, curve["u_insertion_loss_db"]),
+                     fmt="o", color=C_TRACE, ms=3.5, elinewidth=0.9, capsize=0,
+                     label=f"noise source, per sub-band (±U, k = {k:g})")
     markers = {"direct": ("s", C_FLOOR), "substitution": ("D", C_TONE)}
     seen = set()
     for x in tone_losses:
         mk, col = markers.get(x["method"], ("o", C_GREY))
-        lab = None if x["method"] in seen else f"tone, {x['method']} (±U)"
+        lab = None if x["method"] in seen else f"tone, {x['method']} (±U, k = 2)"
         seen.add(x["method"])
         ax1.errorbar([x["frequency_hz"] / 1e6], [x["insertion_loss_db"]], yerr=[x["expanded_uncertainty_db"]],
-                     fmt=mk, color=col, ms=7, capsize=4, label=lab)
+                     fmt=mk, color=col, ms=7, capsize=4, label=lab, zorder=4)
+    if len(set(np.round(xs, 6))) == 1:  # one frequency: a labelled point, not an empty axis
+        for x in tone_losses:
+            ax1.annotate(f"{x['method']}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}",
+                         (x["frequency_hz"] / 1e6, x["insertion_loss_db"]), xytext=(10, 0),
+                         textcoords="offset points", va="center", fontsize=8)
+        ax1.set_xlim(xs[0] - 0.075, xs[0] + 0.075)
+        centre = float(np.mean([x["insertion_loss_db"] for x in tone_losses]))
+        half = max(0.25, 3 * max(x["expanded_uncertainty_db"] for x in tone_losses))
+        ax1.set_ylim(centre - half, centre + half)
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Insertion loss of the device under test against frequency")
     ax1.grid(True, lw=0.3)
-    ax1.legend(fontsize=8)
+    ax1.legend(fontsize=8, loc="best")
     if has_nf:
         ax2 = axes[1]
         f = np.array(curve["frequency_hz"]) / 1e6
-        for key, ukey, col, lab in (("noise_figure_db", "u_noise_figure_db", C_FLOOR, "receiver (dongle)"),
-                                    ("dut_noise_figure_db", "u_dut_noise_figure_db", C_TONE, "device under test")):
-            vals = np.array([np.nan if v is None else v for v in curve[key]], dtype=float)
+        for key, ukey, col, mk, lab in (
+                ("noise_figure_db", "u_noise_figure_db", C_FLOOR, "o", "receiver (dongle)"),
+                ("dut_noise_figure_db", "u_dut_noise_figure_db", C_TONE, "D", "device under test")):
+            vals = _values(curve[key])
             if np.all(np.isnan(vals)):
                 continue
-            u = np.array([np.nan if v is None else v for v in curve[ukey]], dtype=float)
-            for i, idx in enumerate(_segments(f)):
-                ax2.fill_between(f[idx], vals[idx] - k * u[idx], vals[idx] + k * u[idx], color=col, alpha=0.25, lw=0)
-                ax2.plot(f[idx], vals[idx], "-o", color=col, ms=3, lw=1.2, label=f"{lab} ±2u" if i == 0 else None)
+            ax2.errorbar(f, vals, yerr=_bars(k, curve[ukey]), fmt=mk, color=col, ms=3.5, elinewidth=0.9,
+                         capsize=0, label=f"{lab}, per sub-band (±U, k = {k:g})")
+        first = True
+        for n in analysis.noise_figure:  # a passive device at 290 K: its noise figure is its loss
+            if n.get("insertion_loss_db") is None or n.get("band_hz") is None or n.get("center_hz") is None:
+                continue
+            lo, hi = ((n["center_hz"] + v) / 1e6 for v in n["band_hz"])  # band_hz: offsets from the centre
+            ax2.plot([lo, hi], [n["insertion_loss_db"]] * 2, color=C_GREY, lw=1.6, ls="--",
+                     label="NF = loss (passive device at 290 K; whole-band loss)" if first else None)
+            first = False
         ax2.set_ylabel("noise figure (dB)")
         ax2.set_title("Noise figure (Y-factor) against frequency")
         ax2.grid(True, lw=0.3)
@@ -189,6 +163,10 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
     axes[-1].set_xlabel("frequency (MHz)")
     _save(fig, path)
     return True
+
+
+#: Bottom of the SNR-cost plot's log axis, dB (costs below it are drawn at it and labelled).
+SNR_COST_FLOOR_DB = 0.003
 
 
 def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
@@ -207,21 +185,21 @@ def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
     def labelled(bars, values, bold=False):
         for b, v in zip(bars, values):
             if np.isfinite(v):
-                ax.annotate(f"{v:.2f}", (b.get_x() + b.get_width() / 2, v), textcoords="offset points",
+                ax.annotate(f"{v:.2f}" if v >= 0.095 else f"{v:.3f}", (b.get_x() + b.get_width() / 2, v), textcoords="offset points",
                             xytext=(0, 10 if bold else 2), ha="center", fontsize=9 if bold else 7,
                             fontweight="bold" if bold else "normal")
 
     meas = np.array([c["snr_degradation_db"] for c in costs])
     err = np.array([c["expanded_uncertainty_db"] for c in costs])
     labelled(ax.bar(left, meas, width, yerr=err, capsize=4, color=C_TRACE,
-                    label="measured: loss and band-noise excess (±U)"), meas, bold=True)
+                    label="measured: loss and band-noise excess (±U, k = 2)"), meas, bold=True)
     j = 1
     if through:
         vals = np.array([np.nan if c.get("snr_degradation_through_dut_db") is None
                          else c["snr_degradation_through_dut_db"] for c in costs])
         errs = np.array([c.get("expanded_uncertainty_through_dut_db") or 0.0 for c in costs])
         labelled(ax.bar(left + width, vals, width, yerr=errs, capsize=4, color=C_DIRECT,
-                        label="measured: antenna through the device (±U)"), vals, bold=True)
+                        label="measured: antenna through the device (±U, k = 2)"), vals, bold=True)
         j = 2
     for i, e in enumerate(envs):
         vals = np.array([c["predicted"].get(e, np.nan) if c["predicted"] else np.nan for c in costs])
@@ -230,14 +208,21 @@ def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
     for xi, c in zip(x, costs):
         ax.hlines(c["loss_db"], xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
     ax.plot([], [], ":", color=C_BAD, label="the loss itself (the cost if the receiver's noise dominated)")
-    labels = [f"{c['band']}, {c['frequency_hz'] / 1e6:.3f} MHz\nloss {c['loss_db']:.2f} dB, band noise "
+    labels = [f"{c['band']}, {fmt_hz(c['frequency_hz'])}\nloss {c['loss_db']:.2f} dB, band noise "
               f"{c['excess_db']:.1f} dB over the receiver's" for c in costs]
     ax.set_xticks(x, labels, fontsize=8)
-    ax.set_ylabel("SNR lost to the device (dB)")
+    ax.set_ylabel("SNR lost to the device (dB, log scale)")
     ax.set_title("What the loss costs in signal-to-noise ratio, per band")
+    # A log scale: the costs that matter (0.01-0.4 dB) stay visible beside the loss itself (several dB).
+    from matplotlib.ticker import FuncFormatter
+
     top = float(np.nanmax(np.append(meas + err, [c["loss_db"] for c in costs])))
-    ax.set_ylim(0, top * 1.45 + 0.2)
+    ax.set_yscale("log")
+    ax.set_ylim(SNR_COST_FLOOR_DB, top * 12)
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
     ax.grid(True, axis="y", lw=0.3)
     ax.legend(fontsize=7.5, loc="upper left", ncols=2)
     _save(fig, path)
     return True
+
+

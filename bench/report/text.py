@@ -7,6 +7,7 @@ import tomllib
 
 from rxbench.output import fmt_db
 from rxbench.session import Analysis
+from rxbench.style import fmt_hz
 
 
 def _pm(value, u, digits=2, unit="dB") -> str:
@@ -21,7 +22,8 @@ def _pm(value, u, digits=2, unit="dB") -> str:
 
 
 def _mhz(f) -> str:
-    return "n/a" if f is None else f"{f / 1e6:.4f} MHz"
+    """A frequency in the number style (:func:`bench.style.fmt_hz`)."""
+    return fmt_hz(f)
 
 
 def plan_title(analysis: Analysis) -> str:
@@ -38,14 +40,21 @@ def plan_title(analysis: Analysis) -> str:
 
 
 def summary_lines(analysis: Analysis) -> list[str]:
-    """A few lines with the headline numbers (expanded uncertainties, k = 2)."""
+    """A few lines with the headline numbers (expanded uncertainties U, k = 2), each carrying its own
+    caveats (:mod:`bench.caveats`)."""
+    from rxbench.caveats import clip_fractions, headline_tags
+
+    clips = clip_fractions(analysis)
     lines = []
     for x in analysis.losses:
         per = ""
         if x["n_devices"] > 1:
             per = f"; per device {_pm(x['per_device_db'], x['expanded_uncertainty_per_device_db'])}"
+        linear = x.get("dongle_linear") if x["method"] == "direct" else True
+        tags = headline_tags(x, clips, linear=linear)
         lines.append(f"insertion loss ({x['method']}, device at {x['dut_attenuation_db']:g} dB) at "
-                     f"{_mhz(x['frequency_hz'])}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}")
+                     f"{_mhz(x['frequency_hz'])}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}"
+                     f"{tags}")
     for lad in analysis.ladders:
         flagged = [s for s in lad["steps"] if s["flagged"]]
         text = (f"ladder at {_mhz(lad['center_hz'])}: {len(lad['steps'])} steps, dongle linear from "
@@ -61,7 +70,7 @@ def summary_lines(analysis: Analysis) -> list[str]:
         if n.get("insertion_loss_db") is not None:
             text += (f"; {n.get('device') or 'DUT'} loss over the band "
                      f"{_pm(n['insertion_loss_db'], n['expanded_uncertainty_loss_db'])}")
-        lines.append(text)
+        lines.append(text + headline_tags({"captures": n.get("captures")}, clips))
     for ex in analysis.external_noise:
         lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
                      f"{_pm(ex['excess_db'], ex['expanded_uncertainty_db'])} above the receiver's own")

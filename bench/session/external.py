@@ -12,6 +12,7 @@ from rxbench.dsp.uncertainty import DEFAULT_K
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 from rxbench.session.bands import QUIET_GALACTIC, band_name
 from rxbench.session.folder import Entry
+from rxbench.style import fmt_hz
 from rxbench.session.grouping import _compatible, _mhz
 
 if TYPE_CHECKING:
@@ -56,21 +57,42 @@ def loss_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
     return None
 
 
+#: A receiver noise figure measured this far away (fraction of the frequency) may stand in for one at
+#: the frequency itself, stated as such: a dongle's noise figure changes slowly across a band
+#: (common practice).
+NF_NEAREST_FRACTION = 0.1
+
+
 def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
-    """Receiver noise figure (dB) and its u at ``frequency_hz``: same tuning or the curve; else None."""
+    """Receiver noise figure (dB), its u and a note at ``frequency_hz``: the same tuning or the curve
+    (note None); else the nearest measured tunings, interpolated between the two either side (or the
+    nearest one), within :data:`NF_NEAREST_FRACTION` of the frequency, with a note saying how far
+    away they were; else None."""
     for n in analysis.noise_figure:
         if n["center_hz"] is not None and abs(n["center_hz"] - frequency_hz) <= half_band_hz:
-            return n["noise_figure_db"], n["u_noise_figure_db"]
+            return n["noise_figure_db"], n["u_noise_figure_db"], None
     curve = analysis.loss_vs_frequency
-    if curve is None or not curve["frequency_hz"]:
+    if curve is not None and curve["frequency_hz"]:
+        f = np.array(curve["frequency_hz"])
+        w = np.array(curve["width_hz"])
+        if (np.abs(f - frequency_hz) <= w).any():
+            i = int(np.argmin(np.abs(f - frequency_hz)))
+            return curve["noise_figure_db"][i], curve["u_noise_figure_db"][i], None
+    tuned = sorted((n["center_hz"], n["noise_figure_db"], n["u_noise_figure_db"]) for n in analysis.noise_figure
+                   if n["center_hz"] is not None and n.get("noise_figure_db") is not None)
+    near = [t for t in tuned if abs(t[0] - frequency_hz) <= NF_NEAREST_FRACTION * frequency_hz]
+    if not near:
         return None
-    f = np.array(curve["frequency_hz"])
-    w = np.array(curve["width_hz"])
-    near = np.abs(f - frequency_hz) <= w
-    if not near.any():
-        return None
-    i = int(np.argmin(np.abs(f - frequency_hz)))
-    return curve["noise_figure_db"][i], curve["u_noise_figure_db"][i]
+    below = [t for t in near if t[0] < frequency_hz]
+    above = [t for t in near if t[0] > frequency_hz]
+    if below and above:
+        (f0, nf0, u0), (f1, nf1, u1) = below[-1], above[0]
+        w = (frequency_hz - f0) / (f1 - f0)
+        note = (f"receiver noise figure interpolated between {fmt_hz(f0)} and {fmt_hz(f1)} "
+                f"({fmt_hz(frequency_hz - f0)} and {fmt_hz(f1 - frequency_hz)} away)")
+        return nf0 + w * (nf1 - nf0), max(u0, u1), note
+    f0, nf0, u0 = min(near, key=lambda t: abs(t[0] - frequency_hz))
+    return nf0, u0, f"receiver noise figure measured at {fmt_hz(f0)}, {fmt_hz(abs(frequency_hz - f0))} away"
 
 
 def _external(center, group: list[Entry], readings, analysis: Analysis):
@@ -148,6 +170,9 @@ def _external(center, group: list[Entry], readings, analysis: Analysis):
     half = 0.5 * ref.capture.sample_rate_hz
     nf = _nf_at(analysis, center, half) if center is not None else None
     res.update(receiver_noise_figure_db=None, antenna_temperature_k=None, fa_db=None)
+    if nf is not None and nf[2] is not None:
+        res["receiver_noise_figure_note"] = nf[2]
+        warnings.append(f"{where}: {nf[2]}: Fa and the predictions use it")
     if nf is not None:
         trx = noise_temperature_from_nf_db(nf[0])
         try:

@@ -320,4 +320,6 @@ def _direct(center, att, dut: _Pooled, thrus: list[Entry], readings, ladder, n_d
     caps = {"thru": before.names, "dut": dut.names}
     if after is not None:
         caps["thru_after"] = after.names
-    analysis.losses.append(_loss_dict(loss, center, dut.offset_hz, n_dev, caps, att))
+    d = _loss_dict(loss, center, dut.offset_hz, n_dev, caps, att)
+    d["dongle_linear"] = linear  # the ladder check's verdict between the two levels (None: no ladder)
+    analysis.losses.append(d)
