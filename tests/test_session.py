@@ -115,9 +115,11 @@ def test_incomplete_unreadable_and_roleless_captures_are_listed_and_skipped(tmp_
 def test_bad_metadata_value_names_the_key(tmp_path):
     write_capture(tmp_path, "01-thru", tone_in(-90, 1), role="thru", seed=1)
     write_capture(tmp_path, "02-thru", tone_in(-90, 2), role="thru", seed=2, attenuation_db="ten")
+    write_capture(tmp_path, "03-hot", noise_in(5000, 3), role="hot", seed=3, enr_db=1e300)
     s = sess.open_session(tmp_path)
-    (path, why), = s.skipped
+    (path, why), (path3, why3) = s.skipped
     assert path.name == "02-thru.sigmf-meta" and "rxbench:attenuation_db" in why
+    assert path3.name == "03-hot.sigmf-meta" and why3 == "rxbench:enr_db: an ENR must be >= -10 dB and <= 60 dB, got 1e+300"
 
 
 def test_a_folder_that_is_not_a_session_is_a_clear_error(tmp_path, capsys):
@@ -186,7 +188,7 @@ def test_mismatch_terms_from_the_plan_enter_the_loss_budget(tmp_path):
 
 def test_bad_swr_in_metadata_names_the_key(tmp_path):
     write_capture(tmp_path, "01-thru", tone_in(-90.0, 1), role="thru", seed=11, load_swr=0.5)
-    with pytest.raises(UsageError, match="rxbench:load_swr is 0.5, below 1"):
+    with pytest.raises(UsageError, match=r"rxbench:load_swr: an SWR must be >= 1 and <= 100, got 0.5"):
         sess.open_session(tmp_path)
 
 

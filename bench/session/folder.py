@@ -9,6 +9,7 @@ from pathlib import Path
 from rxbench import keys
 from rxbench.analyze import capture_start_s
 from rxbench.errors import CaptureError, UsageError
+from rxbench.quantities import check as check_quantity
 from rxbench.recordings import META_SUFFIX, Capture, open_capture
 
 
@@ -105,12 +106,21 @@ def _session_files(folder: Path) -> list[Path]:
     return found
 
 
+#: The quantity of each numeric rxbench metadata key (bench.quantities: the range every source of
+#: that quantity shares).
+_KEY_QUANTITIES = {keys.ATTENUATION_DB: "attenuation_db", keys.ENR_DB: "enr_db", keys.U_ENR_DB: "tolerance_db",
+                   keys.ATTENUATOR_TOLERANCE_DB: "tolerance_db", keys.GAIN_DB: "gain_db",
+                   keys.TONE_OFFSET_HZ: "offset", **{k: "swr" for k in keys.SWRS}}
+
+
 def _number(extra, key) -> float | None:
     value = extra.get(key)
     if value is None:
         return None
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
         raise ValueError(f"rxbench:{key} is {value!r}, not a finite number")
+    if key in _KEY_QUANTITIES:
+        check_quantity(value, _KEY_QUANTITIES[key], f"rxbench:{key}")  # QuantityError is a ValueError
     return float(value)
 
 
@@ -123,8 +133,6 @@ def _entry(cap: Capture) -> Entry:
     if role not in keys.ROLES:
         raise ValueError(f"rxbench:role {role!r} is not one of {', '.join(keys.ROLES)}")
     att = _number(x, keys.ATTENUATION_DB)
-    if att is not None and att < 0:
-        raise ValueError(f"rxbench:attenuation_db is {att:g}, below 0 dB")
     enr = _number(x, keys.ENR_DB)
     tol = _number(x, keys.ATTENUATOR_TOLERANCE_DB)
     devices = x.get(keys.DEVICES, 1)
@@ -134,8 +142,6 @@ def _entry(cap: Capture) -> Entry:
     swr = []
     for key in keys.SWRS:
         value = _number(x, key)
-        if value is not None and value < 1:
-            raise ValueError(f"rxbench:{key} is {value:g}, below 1")
         if value is not None:
             swr.append((key, value))
     return Entry(
