@@ -647,7 +647,10 @@ class SigmfWriter:
         rails = 2 if self.encoding.is_complex else 1
         if raw.size % rails:
             raise CaptureError(self.data_path, "odd number of I/Q values written")
-        self._file.write(raw.tobytes())
+        try:
+            self._file.write(raw.tobytes())
+        except OSError as exc:  # a full disk: name the recording, not its hidden temporary
+            raise CaptureError(self.data_path, f"cannot write: {exc.strerror or exc}") from None
         self.n_samples += raw.size // rails
 
     def _metadata(self, incomplete: bool, extra_updates: Mapping | None) -> dict:

@@ -370,23 +370,36 @@ def test_a_full_disk_mid_capture_keeps_a_valid_partial_pair(tmp_path, monkeypatc
 
     from rxbench.recordings import SigmfWriter
 
-    real_write = SigmfWriter.write
     writes = {"n": 0}
 
-    def filling(self, data):
-        writes["n"] += 1
-        if writes["n"] == 10:  # the first capture takes 7 writes of the simulated bench's chunks
-            raise OSError(errno.ENOSPC, "No space left on device", str(self._tmp_data))
-        real_write(self, data)
+    class FillingFile:  # the recording's file on a disk that fills up at the 10th write
+        def __init__(self, f):
+            self.f = f
 
-    monkeypatch.setattr(SigmfWriter, "write", filling)
+        def write(self, data):
+            writes["n"] += 1
+            if writes["n"] == 10:  # the first capture takes 7 writes of the simulated bench's chunks
+                raise OSError(errno.ENOSPC, "No space left on device")
+            return self.f.write(data)
+
+        def __getattr__(self, name):
+            return getattr(self.f, name)
+
+    real_init = SigmfWriter.__init__
+
+    def init(self, *a, **kw):
+        real_init(self, *a, **kw)
+        self._file = FillingFile(self._file)
+
+    monkeypatch.setattr(SigmfWriter, "__init__", init)
     path = tmp_path / "p.toml"
     path.write_text(HEAD.replace("duration_s = 0.2", "duration_s = 0.8") + STEPS.split('[[step]]\nname = "step-60"')[0])
     session = tmp_path / "s"
     code = main(["capture", str(path), "--out", str(session), "--device", "simulated", "--seed", "2", "--yes"])
     err = capsys.readouterr().err
     assert code == 2
-    assert err.splitlines()[-1].startswith("rxbench capture: error: ") and "No space left" in err.splitlines()[-1]
+    last = err.splitlines()[-1]
+    assert last == f"rxbench capture: error: {session / '02-dut.sigmf-data'}: cannot write: No space left on device"
     assert "Traceback" not in err
     assert open_capture(session / "01-thru.sigmf-meta").extra.get("incomplete") is None
     partial = open_capture(session / "02-dut.partial.sigmf-meta")
