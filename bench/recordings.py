@@ -387,8 +387,9 @@ def open_sigmf(path: Path) -> Capture:
     if datatype not in ENCODINGS:
         known = ", ".join(ENCODINGS)
         raise CaptureError(meta_path, f"unsupported datatype {datatype!r}; rxbench reads {known}")
-    if int(g.get(keys.NUM_CHANNELS, 1)) != 1:
-        raise CaptureError(meta_path, f"{g[keys.NUM_CHANNELS]} channels: rxbench reads single-channel recordings")
+    channels = g.get(keys.NUM_CHANNELS, 1)
+    if isinstance(channels, bool) or not isinstance(channels, (int, float)) or channels != 1:
+        raise CaptureError(meta_path, f"{channels!r} channels: rxbench reads single-channel recordings")
     if keys.SAMPLE_RATE not in g:
         raise CaptureError(meta_path, f"metadata has no sample rate ({keys.SAMPLE_RATE})")
     rate = _positive_rate(meta_path, g[keys.SAMPLE_RATE], keys.SAMPLE_RATE)

@@ -100,6 +100,7 @@ def _hostile_files(d: Path, f: dict) -> None:
         "neg_header": lambda m: m["global"].__setitem__("core:header_bytes", -4),
         "str_header": lambda m: m["global"].__setitem__("core:header_bytes", "abc"),
         "huge_centre": lambda m: m["captures"][0].__setitem__("core:frequency", 1e300),
+        "null_channels": lambda m: m["global"].__setitem__("core:num_channels", None),
     }.items():
         meta = json.loads(json.dumps(good))
         change(meta)
@@ -218,6 +219,7 @@ ERRORS = [
     ("inspect: negative header_bytes", ["inspect", "{neg_header}"], "header_bytes"),
     ("inspect: header_bytes not a number", ["inspect", "{str_header}"], "header_bytes"),
     ("inspect: centre 1e300 Hz in metadata", ["inspect", "{huge_centre}"], "core:frequency"),
+    ("inspect: channel count null in metadata", ["inspect", "{null_channels}"], "channels"),
     # ... from plans and ENR tables.
     ("capture: plan larger than the disk", ["capture", "{plan_huge}", "--out", "{dir}/s", "--device", "simulated",
                                             "--yes"], "free"),
