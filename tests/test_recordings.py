@@ -222,7 +222,7 @@ class _FullDisk:
 def test_full_disk_mid_capture_keeps_a_partial_and_no_final_file(tmp_path):
     w = SigmfWriter(tmp_path / "cap", sample_rate_hz=1e6, extra={"role": "thru"})
     w._file = _FullDisk(w._file, limit=1001)  # fails mid-block, mid-sample
-    with pytest.raises(OSError):
+    with pytest.raises(CaptureError, match="cap.sigmf-data: cannot write: No space left"):  # names the recording
         with w:
             for _ in range(10):
                 w.write(np.full(400, 128, np.uint8))

@@ -188,3 +188,25 @@ def test_a_signal_that_surfaced_as_another_exception_keeps_its_status(monkeypatc
     monkeypatch.setattr(interrupts, "_received", [])
     with pytest.raises(ImportError):
         cli.run_console()
+
+
+@pytest.mark.parametrize("signum, status", [(signal.SIGINT, 0), (signal.SIGTERM, 143), (signal.SIGHUP, 129)])
+def test_level_readout_stops_on_ctrl_c_and_ends_on_sigterm_sighup(signum, status):
+    """Ctrl-C is the readout's ordinary stop (exit 0); SIGTERM and SIGHUP end it with their status."""
+    proc = subprocess.Popen([sys.executable, "-m", "rxbench", "level", "--device", "simulated", "--center", "28.4e6",
+                             "--generator-dbm", "-40", "--attenuation-db", "50", "--interval", "0.05", "--json"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, stdin=subprocess.DEVNULL)
+    while not _catches_sigterm(proc.pid) and proc.poll() is None:
+        time.sleep(0.002)
+    import select
+
+    ready, _, _ = select.select([proc.stdout], [], [], 60)  # the first update is out: the readout runs
+    assert ready and proc.stdout.readline()
+    proc.send_signal(signum)
+    _, stderr = proc.communicate(timeout=60)
+    err = stderr.decode()
+    assert proc.returncode == status, err
+    assert "Traceback" not in err
+    ending = {signal.SIGTERM: "rxbench level: terminated (SIGTERM)", signal.SIGHUP: "rxbench level: hung up (SIGHUP)"}
+    if signum in ending:
+        assert err.splitlines()[-1] == ending[signum]

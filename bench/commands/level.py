@@ -16,6 +16,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import signal
 import sys
 import time
 
@@ -180,8 +181,10 @@ def readout(device, plan, cap, *, interval_s: float, updates: int, on_update, ne
             next_at += interval_s
             if _stop_requested(next_at - time.monotonic()):
                 break
-    except KeyboardInterrupt:
-        pass  # Ctrl-C is the ordinary way to stop
+    except KeyboardInterrupt as exc:
+        if getattr(exc, "signum", signal.SIGINT) != signal.SIGINT:
+            raise  # SIGTERM/SIGHUP end the run with their own status (bench.interrupts)
+        # Ctrl-C is the ordinary way to stop
     finally:
         device.close()
     return shown
