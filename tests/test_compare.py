@@ -1,5 +1,5 @@
-"""dsp.compare and dsp.onair: paired statistics, detection, matching, and the on-air comparison on the
-simulated band against the truth of the SNR-cost formula."""
+"""dsp.paired, dsp.detection, dsp.compare and dsp.onair: paired statistics, detection, matching, and
+the on-air comparison on the simulated band against the truth of the SNR-cost formula."""
 
 import math
 
@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from rxbench.dsp import compare as cmp
+from rxbench.dsp import detection, paired
 from rxbench.dsp import onair, synth
 from rxbench.dsp.environment import snr_degradation_db
 from rxbench.dsp.onair import Carrier
@@ -44,7 +45,7 @@ def test_paired_t_matches_scipy_ttest_rel():
     rng = np.random.default_rng(3)
     a = rng.normal(20.0, 3.0, 12)
     b = a - 2.0 + rng.normal(0, 0.7, 12)
-    iv = cmp.paired_t_interval(b - a, 0.95)
+    iv = paired.paired_t_interval(b - a, 0.95)
     ref = stats.ttest_rel(b, a)  # reference: scipy.stats.ttest_rel (paired t test)
     ci = ref.confidence_interval(confidence_level=0.95)
     assert iv.estimate == pytest.approx(np.mean(b - a), rel=1e-12)
@@ -59,21 +60,21 @@ def test_paired_t_half_width_uses_the_t_table(n, confidence, t_table):
     # Two-sided critical values of Student's t for n - 1 dof, as printed in the usual t-tables
     # (from memory): 12.706 (1 dof, 95 %), 2.228 (10, 95 %), 3.169 (10, 99 %), 2.042 (30, 95 %).
     d = np.linspace(-1.0, 3.0, n)
-    iv = cmp.paired_t_interval(d, confidence)
+    iv = paired.paired_t_interval(d, confidence)
     se = np.std(d, ddof=1) / np.sqrt(n)
     assert iv.half_width == pytest.approx(t_table * se, rel=2e-4)
     # Two-sided p-value at t = 2.228 with 10 dof is 0.05 (the same table read the other way).
     if n == 11 and confidence == 0.95:
-        shifted = cmp.paired_t_interval(d - d.mean() + 2.228 * se, confidence)
+        shifted = paired.paired_t_interval(d - d.mean() + 2.228 * se, confidence)
         assert shifted.p_value == pytest.approx(0.05, abs=2e-4)
 
 
 def test_hodges_lehmann_normal_approximation_above_the_exact_range():
     # Above EXACT_SIGNED_RANK_MAX_N pairs the interval's rank is M/2 - z sqrt(n(n+1)(2n+1)/24) with
     # z = 1.960 for 95 % (normal table, from memory; Hollander, Wolfe & Chicken 3.3).
-    n = cmp.EXACT_SIGNED_RANK_MAX_N + 1
+    n = paired.EXACT_SIGNED_RANK_MAX_N + 1
     d = np.linspace(-1.0, 1.0, n) ** 3
-    iv = cmp.hodges_lehmann_interval(d, 0.95)
+    iv = paired.hodges_lehmann_interval(d, 0.95)
     i, j = np.triu_indices(n)
     walsh = np.sort(0.5 * (d[i] + d[j]))
     m = walsh.size
@@ -85,7 +86,7 @@ def test_hodges_lehmann_normal_approximation_above_the_exact_range():
 def test_signed_rank_critical_values(n, critical):
     # Two-sided 5 % critical values of the Wilcoxon signed-rank statistic (the largest T with
     # P(T+ <= T) <= 0.025), as printed in the usual tables (from memory; Wilcoxon 1945).
-    cdf = np.cumsum(cmp.signed_rank_pmf(n))
+    cdf = np.cumsum(paired.signed_rank_pmf(n))
     assert int(np.max(np.flatnonzero(cdf <= 0.025))) == critical
     assert cdf[-1] == pytest.approx(1.0, abs=1e-12)
 
@@ -96,7 +97,7 @@ def test_signed_rank_pmf_gives_scipy_exact_p_values():
         x = rng.normal(0.3, 1.0, n)
         ranks = stats.rankdata(np.abs(x))
         t_plus = int(round(ranks[x > 0].sum()))
-        cdf = np.cumsum(cmp.signed_rank_pmf(n))
+        cdf = np.cumsum(paired.signed_rank_pmf(n))
         p_ours = min(1.0, 2 * min(cdf[t_plus], 1 - (cdf[t_plus - 1] if t_plus else 0.0)))
         # reference: scipy.stats.wilcoxon with the exact null distribution
         assert p_ours == pytest.approx(stats.wilcoxon(x, method="exact").pvalue, rel=1e-9)
@@ -104,17 +105,17 @@ def test_signed_rank_pmf_gives_scipy_exact_p_values():
 
 def test_min_pairs_for_interval():
     # 2/2**n <= alpha: n = 6 at 5 %, n = 8 at 1 % (2/256 = 0.0078) [calc].
-    assert cmp.min_pairs_for_interval(0.95) == 6
-    assert cmp.min_pairs_for_interval(0.99) == 8
+    assert paired.min_pairs_for_interval(0.95) == 6
+    assert paired.min_pairs_for_interval(0.99) == 8
     with pytest.raises(ValueError, match="at least 6"):
-        cmp.hodges_lehmann_interval([1.0, 2.0, 3.0, 4.0, 5.0])
+        paired.hodges_lehmann_interval([1.0, 2.0, 3.0, 4.0, 5.0])
 
 
 def test_hodges_lehmann_worked_example():
     # Walsh averages of (1, 2, 3, 10): 1, 1.5, 2, 2, 2.5, 3, 5.5, 6, 6.5, 10 -> median 2.75 [calc].
     # At 80 % (n = 4: t = 10, C = 1) the interval runs from the smallest to the largest Walsh average,
     # with exact coverage 1 - 2/16 = 0.875 [calc].
-    iv = cmp.hodges_lehmann_interval([10.0, 1.0, 3.0, 2.0], confidence=0.8)
+    iv = paired.hodges_lehmann_interval([10.0, 1.0, 3.0, 2.0], confidence=0.8)
     assert iv.estimate == pytest.approx(2.75)
     assert (iv.low, iv.high) == (1.0, 10.0)
     assert iv.achieved_confidence == pytest.approx(0.875)
@@ -125,7 +126,7 @@ def test_hodges_lehmann_interval_inverts_the_wilcoxon_test(seed):
     # The interval is the set of shifts the two-sided signed-rank test does not reject at the
     # achieved level. Reference: scipy.stats.wilcoxon (exact null distribution).
     x = np.random.default_rng(seed).standard_t(3, size=11)
-    iv = cmp.hodges_lehmann_interval(x, 0.95)
+    iv = paired.hodges_lehmann_interval(x, 0.95)
     level = 1 - iv.achieved_confidence
     assert level <= 0.05
     eps = 1e-9
@@ -142,7 +143,7 @@ def test_hodges_lehmann_coverage_under_heavy_tails():
     rng = np.random.default_rng(5)
     hits = []
     for _ in range(2000):
-        iv = cmp.hodges_lehmann_interval(1.5 + rng.standard_cauchy(10), 0.95)
+        iv = paired.hodges_lehmann_interval(1.5 + rng.standard_cauchy(10), 0.95)
         hits.append(iv.contains(1.5))
     assert np.mean(hits) == pytest.approx(iv.achieved_confidence, abs=0.015)
 
@@ -152,17 +153,17 @@ def test_hodges_lehmann_coverage_under_heavy_tails():
        st.floats(-10, 10, allow_nan=False))
 def test_hodges_lehmann_moves_with_a_shift(values, shift):
     x = np.array(values)
-    a = cmp.hodges_lehmann_interval(x)
-    b = cmp.hodges_lehmann_interval(x + shift)
+    a = paired.hodges_lehmann_interval(x)
+    b = paired.hodges_lehmann_interval(x + shift)
     assert a.low <= a.estimate <= a.high
     assert (b.estimate, b.low, b.high) == pytest.approx((a.estimate + shift, a.low + shift, a.high + shift), abs=1e-9)
 
 
 def test_estimates_fall_back_when_too_few():
-    e = cmp.estimate_both([1.0, 2.0, 1.5])
+    e = paired.estimate_both([1.0, 2.0, 1.5])
     assert e.hodges_lehmann is None and e.paired_t is not None
     assert e.get("hodges-lehmann") is e.paired_t
-    assert cmp.estimate_both([1.0]).get("paired-t") is None
+    assert paired.estimate_both([1.0]).get("paired-t") is None
 
 
 # --------------------------------------------------------------------------------------------
@@ -176,19 +177,19 @@ def _noise_psds(rng, n_captures, n=4096):
 def test_mean_psd_adds_degrees_of_freedom():
     rng = np.random.default_rng(2)
     parts = _noise_psds(rng, 3)
-    m = cmp.mean_psd(parts)
+    m = detection.mean_psd(parts)
     assert m.dof == pytest.approx(sum(p.dof for p in parts))
     assert m.n_segments == sum(p.n_segments for p in parts)
     np.testing.assert_allclose(m.density, np.mean([p.density for p in parts], axis=0))
     with pytest.raises(ValueError, match="differ"):
-        cmp.mean_psd([parts[0], psd(np.ones(4096, complex), FS, nperseg=256)])
+        detection.mean_psd([parts[0], psd(np.ones(4096, complex), FS, nperseg=256)])
 
 
 def test_detection_false_alarm_rate_on_noise_alone():
     # Stated rate: P(any noise bin over the threshold in the searched band) <= false_alarm
     # (chi-squared bin statistics, Bonferroni over the bins). 300 noise-only spectra at 10 %.
     rng = np.random.default_rng(9)
-    fired = [bool(cmp.detect_peaks(cmp.mean_psd(_noise_psds(rng, 2)), false_alarm=0.10)) for _ in range(300)]
+    fired = [bool(detection.detect_peaks(detection.mean_psd(_noise_psds(rng, 2)), false_alarm=0.10)) for _ in range(300)]
     assert np.mean(fired) <= 0.13
 
 
@@ -199,7 +200,7 @@ def test_detection_finds_carriers_above_local_noise():
     noise_w_per_hz = K_B * 1e22
     for f, cn0_db in ((-60e3, 45.0), (10e3, 40.0), (80e3, 50.0)):
         x = x + synth.tone(n, FS, power_w=noise_w_per_hz * 10 ** (cn0_db / 10), offset_hz=f)
-    found = [p.offset_hz for p in cmp.detect_peaks(psd(x, FS, nperseg=NPERSEG))]
+    found = [p.offset_hz for p in detection.detect_peaks(psd(x, FS, nperseg=NPERSEG))]
     assert len(found) == 3
     np.testing.assert_allclose(found, [-60e3, 10e3, 80e3], atol=FS / NPERSEG)
 
@@ -208,10 +209,10 @@ def test_match_frequencies_removes_a_common_offset():
     fa = np.array([-70e3, -20e3, 45e3, 90e3])
     offset = 1234.0
     fb = np.concatenate([fa[[0, 1, 2]] + offset + np.array([30.0, -40.0, 10.0]), [5e3]])  # one B-only signal
-    got, matches = cmp.match_frequencies(fa, fb, tolerance_hz=2000.0, max_offset_hz=5000.0)
+    got, matches = detection.match_frequencies(fa, fb, tolerance_hz=2000.0, max_offset_hz=5000.0)
     assert got == pytest.approx(offset + 10.0)  # median of the matched differences
     assert sorted(matches) == [(0, 0), (1, 1), (2, 2)]
-    none, m = cmp.match_frequencies(fa, np.array([]), tolerance_hz=100.0, max_offset_hz=100.0)
+    none, m = detection.match_frequencies(fa, np.array([]), tolerance_hz=100.0, max_offset_hz=100.0)
     assert none == 0.0 and m == []
 
 
@@ -355,8 +356,8 @@ def test_bad_inputs():
     with pytest.raises(ValueError, match="both paths"):
         cmp.compare_paths(p, [])
     with pytest.raises(ValueError, match="confidence"):
-        cmp.paired_t_interval([1.0, 2.0], confidence=1.5)
+        paired.paired_t_interval([1.0, 2.0], confidence=1.5)
     with pytest.raises(ValueError, match="false_alarm"):
-        cmp.detect_peaks(p[0], false_alarm=0.0)
+        detection.detect_peaks(p[0], false_alarm=0.0)
     with pytest.raises(ValueError, match="carrier"):
         onair.OnAirBand(carriers=())

@@ -7,7 +7,10 @@ import numpy as np
 import pytest
 
 from rxbench.cli import main
-from rxbench.recordings import write_sigmf
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.methods import compare as method
+from rxbench.output import json_safe
+from rxbench.recordings import open_capture, write_sigmf
 from rxbench.dsp import onair, synth
 from rxbench.dsp.onair import Carrier
 
@@ -80,6 +83,35 @@ def test_json_result_holds_the_truth(session, capsys):
     assert r["summary"].startswith("Path B costs")
     assert r["confidence"] == 0.95 and r["false_alarm"] == 0.01
     assert isinstance(r["warnings"], list)
+
+
+def test_method_result_is_what_the_command_prints(session, capsys):
+    # The command is a renderer of the method's result: the same captures through the method give
+    # the same JSON document (the command adds only the plot's name when it draws one).
+    folder, a, b, _ = session
+    code, printed, _ = _json(capsys, ["compare", "--a", *a, "--b", *b, "--alpha", "0.1"])
+    ra, rb = method.read_paths([open_capture(x) for x in a], [open_capture(x) for x in b])
+    res = method.compare_paths(ra, rb, alpha=0.1)
+    assert code == 0
+    assert json.loads(json.dumps(json_safe(res.to_dict()))) == printed
+    assert isinstance(res.warnings, tuple) and printed["warnings"] == list(res.warnings)
+    assert res.headline.method == printed["method"] and res.classification == printed["classification"]
+    with pytest.raises(AttributeError):  # frozen
+        res.alpha = 0.2
+
+
+def test_method_refuses_bad_settings_and_unlike_captures(session, tmp_path):
+    folder, a, b, _ = session
+    ra, rb = method.read_paths([open_capture(x) for x in a[:2]], [open_capture(x) for x in b[:2]])
+    for bad in (dict(alpha=0.7), dict(false_alarm=0.0), dict(tolerance_hz=-1.0), dict(method="mean")):
+        with pytest.raises(UsageError):
+            method.compare_paths(ra, rb, **bad)
+    with pytest.raises(UsageError):
+        method.read_paths([], [open_capture(b[0])])
+    s = _simulate(n_pairs=1)
+    a2, b2 = _write(tmp_path, s, prefix="rate-", rate_b=2 * FS)
+    with pytest.raises(MeasurementError, match="sample rate"):
+        method.read_paths([open_capture(x) for x in a2], [open_capture(x) for x in b2])
 
 
 def test_human_table_and_alpha(session, capsys):

@@ -1,0 +1,1 @@
+"""The measurement methods: from readings and settings to frozen results with ``to_dict()``."""
