@@ -12,7 +12,7 @@ import numpy as np
 
 from rxbench import keys
 from rxbench._engine import InOrder
-from rxbench.errors import CaptureError, MeasurementError, UsageError
+from rxbench.errors import CaptureError, MeasurementError, UnlikeCapturesError, UsageError
 from rxbench.recordings import Capture
 from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
 from rxbench.dsp.health import Health, HealthAccumulator
@@ -360,13 +360,13 @@ def setup_difference(a: Capture, b: Capture, *, tuning: bool = True, gain: bool 
 
 
 def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> list[str]:
-    """Refuse captures that were not taken alike (:func:`setup_difference`) with a MeasurementError
+    """Refuse captures that were not taken alike (:func:`setup_difference`) with an UnlikeCapturesError
     naming both files; return warnings for what the metadata does not let us check."""
     captures = list(captures)
     for cap in captures[1:]:
         why = setup_difference(cap, captures[0], tuning=tuning, gain=gain)
         if why:
-            raise MeasurementError(f"{why}: compared captures must be taken with the same settings")
+            raise UnlikeCapturesError(f"{why}: compared captures must be taken with the same settings")
     warnings = []
     if len(captures) > 1:
         if tuning and any(c.center_hz is None for c in captures):
@@ -434,10 +434,10 @@ def signal_differences(readings, *, drift_ppm: float = DEFAULT_PPM) -> tuple[Sam
 
 def require_same_signal(readings, *, drift_ppm: float = DEFAULT_PPM) -> None:
     """Refuse compared readings whose tones are not one signal (:func:`signal_differences`) with a
-    MeasurementError naming each such capture, the reference capture and their offsets."""
+    UnlikeCapturesError naming each such capture, the reference capture and their offsets."""
     _, problems = signal_differences(readings, drift_ppm=drift_ppm)
     if problems:
-        raise MeasurementError("; ".join(problems) + ": compared captures must hold the same signal "
+        raise UnlikeCapturesError("; ".join(problems) + ": compared captures must hold the same signal "
                                "(a dongle still warming up drifts more: widen with --drift-ppm)")
 
 

@@ -9,12 +9,20 @@ from __future__ import annotations
 import argparse
 import gc
 import importlib
+import os
 import sys
+import traceback
 import warnings
 
 from rxbench import __version__, interrupts
-from rxbench.errors import RxbenchError, describe_foreign
+from rxbench.errors import MeasurementError, RxbenchError, describe_foreign
 from rxbench import files
+
+#: Exit codes: the input is valid but the captures do not give the number; bad input; interrupted
+#: (Ctrl-C; other signals give 128 + their number, :mod:`rxbench.interrupts`).
+EXIT_MEASUREMENT, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 1, 2, 130
+#: Environment variable that turns on --debug.
+DEBUG_ENV = "RXBENCH_DEBUG"
 
 #: Command modules, in the order ``rxbench --help`` lists them.
 COMMANDS = (
@@ -64,15 +72,27 @@ def build_parser(argv: list[str] | None = None) -> argparse.ArgumentParser:
         description="Measure what a passive device in the receive path costs, with an SDR dongle.",
     )
     parser.add_argument("--version", action="version", version=f"rxbench {__version__}")
+    parser.add_argument("--debug", action="store_true", help=DEBUG_HELP)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     for module in _command_modules(COMMANDS if chosen is None else (chosen,)):
         module.add_parser(sub)
+    for command_parser in sub.choices.values():  # also after the command: rxbench loss ... --debug
+        command_parser.add_argument("--debug", action="store_true", default=argparse.SUPPRESS, help=DEBUG_HELP)
     return parser
 
 
+DEBUG_HELP = f"on an error, print the traceback before the one-line message (or set {DEBUG_ENV}=1)"
+
+
+def debugging(args: argparse.Namespace) -> bool:
+    """--debug given, or RXBENCH_DEBUG set to anything but empty or 0."""
+    return bool(getattr(args, "debug", False)) or os.environ.get(DEBUG_ENV, "") not in ("", "0")
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Run one rxbench command; return its exit code (0 ok, 1 a measurement failed, 2 bad input)."""
+    """Run one rxbench command; return its exit code (0 ok, 1 the captures do not give the number,
+    2 bad input, 130 interrupted)."""
     argv = sys.argv[1:] if argv is None else list(argv)
     parser = build_parser(argv)
     if not argv:  # ``rxbench`` alone: the command list
@@ -93,6 +113,8 @@ def main(argv: list[str] | None = None) -> int:
         code, line = _one_line(exc)
         if line is None:
             raise
+        if debugging(args):  # --debug: the traceback the one line stands for, first
+            traceback.print_exc(file=sys.stderr)
         print(f"rxbench {args.command}: {line}", file=sys.stderr)
         return code
     finally:
@@ -105,8 +127,10 @@ def _one_line(exc: BaseException) -> tuple[int, str | None]:
     if isinstance(exc, KeyboardInterrupt) or (interrupts.received() is not None and isinstance(exc, Exception)):
         word, status = interrupts.describe(exc)  # a signal, perhaps surfaced as another exception
         return status, word
+    if isinstance(exc, MeasurementError):  # valid input; what the captures hold does not give the number
+        return EXIT_MEASUREMENT, f"error: {exc}"
     if isinstance(exc, (RxbenchError, ValueError)):  # ValueError: a value the numerics refuse
-        return 2, f"error: {exc}"
+        return EXIT_BAD_INPUT, f"error: {exc}"
     if isinstance(exc, OSError):  # disk full, permission denied, device gone: no traceback
         where = f"{exc.filename}: " if exc.filename else ""
         return 2, f"error: {where}{exc.strerror or exc}"

@@ -1,6 +1,8 @@
 """The exception tree of the shell.
 
-The command line turns any :class:`RxbenchError` into one line on stderr and exit code 2.
+The command line turns any :class:`RxbenchError` into one line on stderr and an exit code: 1 for a
+:class:`MeasurementError` (the input is valid, but what the captures hold does not give the number),
+2 for every other (bad input: options, files, metadata, plans, captures that do not go together).
 """
 
 from __future__ import annotations
@@ -33,8 +35,14 @@ class DeviceError(RxbenchError):
     """The dongle (or its library) is missing or refused a setting."""
 
 
+class UnlikeCapturesError(UsageError):
+    """Captures given together that were not taken alike (sample rate, tuning, gain) or do not hold
+    the same signal: the wrong set of files, so bad input (exit 2)."""
+
+
 class MeasurementError(RxbenchError):
-    """The captures do not support the requested measurement (e.g. DUT outside the ladder)."""
+    """Valid input whose captures do not give the requested number (no tone above the noise, the DUT
+    outside the ladder, hot not above cold, no signal heard in both paths): exit 1."""
 
 
 def _library_errors() -> tuple[type, ...]:

@@ -1,6 +1,7 @@
 """The bad-input matrix: every command, every kind of bad input -> one line on stderr naming the file
-or option and the problem, exit code 2, no traceback, nothing on stdout; or, where a number can still
-be given, the number with a warning."""
+or option and the problem, exit code 2, no traceback, nothing on stdout; valid input whose captures
+do not give the number -> the same, with exit code 1; --debug shows the traceback; an interrupt is
+exit code 130; or, where a number can still be given, the number with a warning."""
 
 from __future__ import annotations
 
@@ -152,11 +153,7 @@ ERRORS = [
     ("loss: rates differ", ["loss", "--thru", "{thru}", "--dut", "{other_rate}"], "sample rate"),
     ("loss: centres differ", ["loss", "--thru", "{thru}", "--dut", "{other_centre}"], "centre frequency"),
     ("loss: missing DUT file", ["loss", "--thru", "{thru}", "--dut", "{missing}"], "no such file"),
-    ("loss: tone absent", ["loss", "--thru", "{no_tone}", "--dut", "{dut}"], "tone"),
     ("loss: duplicated ladder step", ["loss", "--step", "0={thru}", "--step", "0={dut}", "--dut", "{dut}"], "once"),
-    ("loss: non-monotonic ladder", ["loss", "--step", "0={dut}", "--step", "3={thru}", "--dut", "{dut}"], "fall"),
-    ("loss: DUT outside the ladder", ["loss", "--step", "0={thru}", "--step", "3={dut}", "--dut", "{deep}"],
-     "ladder"),
     ("ladder: too few steps", ["ladder", "--step", "0={thru}"], "at least"),
     ("nf: malformed ENR table", ["nf", "--hot", "{thru}", "--cold", "{dut}", "--enr-table", "{enr_bad}"], "line 3"),
     ("nf: no ENR", ["nf", "--hot", "{thru}", "--cold", "{dut}"], "ENR"),
@@ -265,6 +262,56 @@ def test_bad_input_is_one_line_and_exit_2(files, capsys, argv, needle):
     assert io.out == ""
     assert io.err.count("\n") == 1 and "Traceback" not in io.err
     assert needle in io.err
+
+
+# Valid input whose captures do not give the number: one line, exit code 1 (README, "Exit codes").
+UNMEASURABLE = [
+    ("loss: tone absent", ["loss", "--thru", "{no_tone}", "--dut", "{dut}"], "tone"),
+    ("loss: non-monotonic ladder", ["loss", "--step", "0={dut}", "--step", "3={thru}", "--dut", "{dut}"], "fall"),
+    ("loss: DUT outside the ladder", ["loss", "--step", "0={thru}", "--step", "3={dut}", "--dut", "{deep}"],
+     "ladder"),
+]
+
+
+@pytest.mark.parametrize("argv, needle", [pytest.param(a, n, id=i) for i, a, n in UNMEASURABLE])
+def test_unmeasurable_is_one_line_and_exit_1(files, capsys, argv, needle):
+    code = main([a.format(**files) for a in argv])
+    io = capsys.readouterr()
+    assert code == 1, io.err
+    assert io.out == ""
+    assert io.err.count("\n") == 1 and "Traceback" not in io.err
+    assert needle in io.err
+
+
+def test_debug_shows_the_traceback(files, capsys, monkeypatch):
+    monkeypatch.delenv("RXBENCH_DEBUG", raising=False)
+    for argv in (["--debug", "loss", "--thru", files["no_tone"], "--dut", files["dut"]],
+                 ["loss", "--thru", files["no_tone"], "--dut", files["dut"], "--debug"]):
+        assert main(argv) == 1
+        err = capsys.readouterr().err
+        assert err.startswith("Traceback (most recent call last):") and "MeasurementError" in err
+        assert err.rstrip("\n").splitlines()[-1].startswith("rxbench loss: error:")  # the one line, last
+    monkeypatch.setenv("RXBENCH_DEBUG", "1")
+    assert main(["inspect", files["missing"]]) == 2
+    assert "Traceback" in capsys.readouterr().err
+    monkeypatch.setenv("RXBENCH_DEBUG", "0")
+    assert main(["inspect", files["missing"]]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err and err.count("\n") == 1
+
+
+def test_interrupt_is_one_line_and_exit_130(files, capsys, monkeypatch):
+    import rxbench.commands.inspect as inspect_command
+
+    def interrupted(args):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(inspect_command, "run", interrupted)
+    monkeypatch.delenv("RXBENCH_DEBUG", raising=False)
+    assert main(["inspect", files["thru"]]) == 130
+    io = capsys.readouterr()
+    assert io.err.count("\n") == 1 and io.err.startswith("rxbench inspect: ") and io.out == ""
+    assert "Traceback" not in io.err
 
 
 # Where a number can still be given: the number, with a warning.

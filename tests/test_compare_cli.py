@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from rxbench.cli import main
-from rxbench.errors import MeasurementError, UsageError
+from rxbench.errors import UnlikeCapturesError, UsageError
 from rxbench.methods import compare as method
 from rxbench.output import json_safe
 from rxbench.recordings import open_capture, write_sigmf
@@ -110,7 +110,7 @@ def test_method_refuses_bad_settings_and_unlike_captures(session, tmp_path):
         method.read_paths([], [open_capture(b[0])])
     s = _simulate(n_pairs=1)
     a2, b2 = _write(tmp_path, s, prefix="rate-", rate_b=2 * FS)
-    with pytest.raises(MeasurementError, match="sample rate"):
+    with pytest.raises(UnlikeCapturesError, match="sample rate"):
         method.read_paths([open_capture(x) for x in a2], [open_capture(x) for x in b2])
 
 

@@ -61,6 +61,8 @@ def run(args: argparse.Namespace) -> int:
     dbs = [db for db, _ in steps]
     if len(set(dbs)) != len(dbs):
         raise UsageError(f"--step: each attenuator setting may appear once, got {dbs}")
+    if len(dbs) < 3:
+        raise UsageError(f"--step: a ladder check needs at least 3 steps, got {len(dbs)}")
     readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg,
                                     drift_ppm=args.drift_ppm)
     values = [tone_db(r) for r in readings]

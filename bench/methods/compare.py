@@ -201,9 +201,9 @@ def compare_paths(
     Raises
     ------
     UsageError
-        A setting out of range.
+        A setting out of range; UnlikeCapturesError (a UsageError): captures not taken alike.
     MeasurementError
-        Captures not taken alike, or a comparison that cannot be formed from them.
+        A comparison that cannot be formed from these captures.
     """
     check_settings(alpha, false_alarm, max_offset_hz, tolerance_hz, snr_bandwidth_hz, method)
     readings_a, readings_b = list(readings_a), list(readings_b)
