@@ -469,32 +469,3 @@ def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = 
     for r in readings:
         warnings.extend(r.warnings)
     return readings, warnings
-
-
-#: Where each SWR of a loss budget's mismatch terms comes from, per front end.
-SWR_FROM_OPTIONS = {key: "--" + key.replace("_", "-") for key in keys.SWRS}
-SWR_FROM_PLAN = {key: f"[match] {key}" for key in keys.SWRS}
-
-
-def mismatch_budget(swr, loss_db: float, given_by: dict[str, str]) -> tuple[list, str | None]:
-    """The mismatch components of an insertion-loss budget, and a warning or None.
-
-    ``swr`` maps ``source_swr``, ``load_swr`` and ``dut_swr`` to the values known (missing or None:
-    unknown); ``given_by`` names where the user gives each (:data:`SWR_FROM_OPTIONS`,
-    :data:`SWR_FROM_PLAN`). What cannot be assessed stays in the budget as a zero line that says
-    so, never silently out of it.
-    """
-    from rxbench.dsp.ladder import mismatch_components  # here: dsp.ladder is 4 ms of inspect's start-up
-    from rxbench.dsp.uncertainty import Component
-
-    known = {k: v for k, v in dict(swr).items() if v is not None}
-    comps = mismatch_components(*(known.get(key) for key in keys.SWRS), loss_db)
-    if comps:
-        if keys.DUT_SWR not in known:
-            comps.append(Component.not_assessed("mismatch at the DUT's ports", f"give {given_by[keys.DUT_SWR]}"))
-        return comps, None
-    warning = None
-    if known:
-        warning = (f"mismatch is not in the budget: it needs both {given_by[keys.SOURCE_SWR]} and "
-                   f"{given_by[keys.LOAD_SWR]}")
-    return [Component.not_assessed("mismatch", f"give {', '.join(given_by.values())}")], warning

@@ -268,13 +268,13 @@ def plot_bands(analysis, path) -> bool:
     marks = {"direct": "s", "substitution": "D"}
     seen = set()
     for x in analysis.losses:  # tone losses beside the noise-source curves
-        if x.get("frequency_hz") is None:
+        if x.frequency_hz is None:
             continue
-        lab = x.get("device") or "device"
-        key = (lab, x["method"])
-        ax1.errorbar([x["frequency_hz"] / 1e6], [x["insertion_loss_db"]], yerr=[x["expanded_uncertainty_db"]],
-                     fmt=marks.get(x["method"], "o"), color=colour.get(lab, "#555555"), ms=6, capsize=3,
-                     label=None if key in seen else f"{lab}, tone {x['method']} (±U)")
+        lab = x.device or "device"
+        key = (lab, x.method)
+        ax1.errorbar([x.frequency_hz / 1e6], [x.insertion_loss_db], yerr=[x.expanded_uncertainty_db],
+                     fmt=marks.get(x.method, "o"), color=colour.get(lab, "#555555"), ms=6, capsize=3,
+                     label=None if key in seen else f"{lab}, tone {x.method} (±U)")
         seen.add(key)
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Loss against frequency, amateur bands shaded", pad=14)

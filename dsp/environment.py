@@ -453,3 +453,55 @@ def fit_knee(loss_db, density, *, u_density=None, load_density=None, u_load_dens
         residuals_db=residuals_db,
         n_points=int(n),
     )
+
+
+# --------------------------------------------------------------------------------------------
+# Noise densities compared
+
+
+def mean_density(density, u_density) -> tuple[float, float]:
+    """Mean of repeated noise-density readings and its standard uncertainty.
+
+    The readings are taken as independent, each with its own standard uncertainty: u(mean) =
+    sqrt(sum u_i^2)/n (GUM 5.1.2 with sensitivities 1/n).
+    """
+    d = np.atleast_1d(np.asarray(density, dtype=float))
+    u = np.atleast_1d(np.asarray(u_density, dtype=float))
+    if d.size == 0 or d.shape != u.shape:
+        raise ValueError(f"density and u_density must be alike and not empty, got {density!r}, {u_density!r}")
+    return float(d.mean()), float(np.sqrt(np.sum(u**2)) / d.size)
+
+
+def density_ratio_db(numerator, u_numerator, denominator, u_denominator):
+    """10*log10(numerator/denominator) and its standard uncertainty, dB.
+
+    For independent inputs the first-order law of propagation (GUM 5.1.2) gives
+    u = (10/ln 10) * sqrt((u_a/a)^2 + (u_b/b)^2). Works on arrays alike.
+    """
+    a, ua, b, ub = (np.asarray(v, dtype=float) for v in (numerator, u_numerator, denominator, u_denominator))
+    if np.any(a <= 0) or np.any(b <= 0):
+        raise ValueError(f"densities must be > 0, got {numerator!r} and {denominator!r}")
+    ratio = 10.0 * np.log10(a / b)
+    u = 10.0 / np.log(10.0) * np.hypot(ua / a, ub / b)
+    if ratio.ndim == 0:
+        return float(ratio), float(u)
+    return ratio, u
+
+
+def snr_cost_from_excess_db(loss_db, excess_db, u_loss_db=0.0, u_excess_db=0.0):
+    """The SNR a loss costs behind an antenna-noise excess X, and its standard uncertainty, dB.
+
+    ΔSNR = 10*log10(1 + (L - 1)/X) (ITU-R P.372 noise power added through a matched loss at T0;
+    Friis 1944), the loss taken at 0 dB when below it. Its uncertainty by the first-order law of
+    propagation (GUM 5.1.2) with the analytic sensitivities
+    d(ΔSNR)/d(L_dB) = L/(X + L - 1) and d(ΔSNR)/d(X_dB) = -(L - 1)/(X + L - 1). Works on arrays.
+    """
+    loss = 10 ** (np.maximum(np.asarray(loss_db, dtype=float), 0.0) / 10)
+    x = 10 ** (np.asarray(excess_db, dtype=float) / 10)
+    cost = 10.0 * np.log10(1.0 + (loss - 1.0) / x)
+    c_loss = np.where(np.asarray(loss_db, dtype=float) > 0, loss / (x + loss - 1.0), 0.0)
+    c_x = -(loss - 1.0) / (x + loss - 1.0)
+    u = np.hypot(c_loss * np.asarray(u_loss_db, dtype=float), c_x * np.asarray(u_excess_db, dtype=float))
+    if cost.ndim == 0:
+        return float(cost), float(u)
+    return cost, u

@@ -380,6 +380,33 @@ def mismatch_components(source_swr=None, load_swr=None, dut_swr=None, loss_db=0.
             if gd is not None or j >= 2]
 
 
+def drift_component(change_db, u_change_db, labels=None):
+    """The drift a re-read reveals, as a budget line.
+
+    Parameters
+    ----------
+    change_db, u_change_db : array_like
+        For each re-read: reading after minus reading before (dB), and its standard uncertainty.
+    labels : sequence of str, optional
+        What each re-read was, for the line's note.
+
+    Returns
+    -------
+    (Component, int, bool)
+        A rectangular line of half-width the largest change (GUM 4.3.7: the drift is known only to
+        lie within the change seen), the index of that change, and whether it exceeds twice its own
+        uncertainty (more than the readings' scatter explains).
+    """
+    change = np.atleast_1d(np.asarray(change_db, dtype=float))
+    u = np.atleast_1d(np.asarray(u_change_db, dtype=float))
+    if change.size == 0 or change.shape != u.shape or not np.isfinite(change).all() or not (u >= 0).all():
+        raise ValueError(f"changes and their uncertainties must be finite and alike, got {change_db!r}, {u_change_db!r}")
+    i = int(np.argmax(np.abs(change)))
+    label = "re-read" if labels is None else labels[i]
+    comp = Component.rectangular("generator drift", abs(float(change[i])), note=f"{label}: {change[i]:+.3f} dB")
+    return comp, i, bool(abs(change[i]) > 2 * u[i])
+
+
 def direct_loss(thru_dbfs, u_thru_db, dut_dbfs, u_dut_db, *, thru_after_dbfs=None,
                 u_thru_after_db=None, times_s=None, dof=(math.inf, math.inf, math.inf),
                 linearity_db=0.0, extra_components=(), k=DEFAULT_K):

@@ -95,10 +95,11 @@ def test_demo_truth_checks_can_fail(demo_run):
 def test_snr_cost_truth_follows_the_formula():
     # With the antenna no hotter than a resistor (X = 1) the cost equals the loss (REFERENCES.md,
     # "SNR cost of a loss", sanity check [calc]); 3 dB behind X = 10 dB: 10*log10(1 + 0.995/10).
-    from rxbench.session.external import _cost
+    from rxbench.dsp.environment import snr_cost_from_excess_db
 
-    assert _cost(0.0, 3.0) == pytest.approx(3.0, abs=1e-9)
-    assert _cost(10.0, 3.0) == pytest.approx(10 * math.log10(1 + (10 ** 0.3 - 1) / 10), abs=1e-9)
+    assert snr_cost_from_excess_db(3.0, 0.0)[0] == pytest.approx(3.0, abs=1e-9)
+    assert snr_cost_from_excess_db(3.0, 10.0)[0] == pytest.approx(10 * math.log10(1 + (10 ** 0.3 - 1) / 10),
+                                                                  abs=1e-9)
 
 
 def test_receiver_temperature_includes_quantisation():

@@ -167,7 +167,7 @@ duration_s = 0.1
     truth = BenchTruth(settle_s=0.0, drift_hz_per_s=0.0)
     run_session(plan, tmp_path / "s", SimulatedBench(truth, seed=31), yes=True)
     a = analyze_session(open_session(tmp_path / "s"))
-    direct = {round(x["frequency_hz"] / 1e5): x for x in a.losses if x["method"] == "direct"}
+    direct = {round(x["frequency_hz"] / 1e5): x for x in (y.to_dict() for y in a.losses) if x["method"] == "direct"}
     assert len(direct) == 4
     for f in (3.6e6, 14.2e6, 21.2e6, 28.4e6):
         x = direct[round(f / 1e5)]

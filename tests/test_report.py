@@ -9,6 +9,7 @@ import csv
 import io
 import json
 import struct
+from types import SimpleNamespace
 
 import pytest
 from test_session import lossy, noise_in, tone_in, write_capture
@@ -16,6 +17,7 @@ from test_session import lossy, noise_in, tone_in, write_capture
 from rxbench import report as rep
 from rxbench.cli import main
 from rxbench.session import analyze_session, open_session
+from rxbench.dsp.uncertainty import Budget, Component
 from rxbench.dsp.units import T0_K, power_from_db
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
@@ -166,8 +168,11 @@ def test_report_of_a_session_with_nothing_to_measure(tmp_path):
 
 
 def test_the_mismatch_sentence_follows_the_budgets():
-    assessed = {"budget": [{"name": "mismatch DUT-load", "u_db": 0.11}]}
-    missing = {"budget": [{"name": "mismatch", "u_db": 0.0, "note": "not assessed"}]}
+    def result(*components):  # what the sentence reads of a LossResult
+        return SimpleNamespace(loss=SimpleNamespace(budget=Budget(components)))
+
+    assessed = result(Component.u_shaped("mismatch DUT-load", 0.155))
+    missing = result(Component.not_assessed("mismatch", "give the SWRs"))
     assert "is in these budgets" in rep.document._mismatch_sentence([assessed])
     assert "not assessed in these budgets" in rep.document._mismatch_sentence([missing])
     assert "some of these budgets" in rep.document._mismatch_sentence([assessed, missing])

@@ -185,7 +185,7 @@ def test_session_leaves_out_a_capture_of_another_signal(tmp_path, capsys):
     a = sess.analyze_session(sess.open_session(tmp_path))
     left_out = [w for w in a.warnings if "left out 03-thru.sigmf-meta: tone at +31000 Hz is not the signal" in w]
     assert len(left_out) == 1 and "01-thru.sigmf-meta at +25000 Hz" in left_out[0]
-    (loss,) = a.losses
+    (loss,) = [x.to_dict() for x in a.losses]
     assert loss["captures"]["thru"] == ["01-thru"] and not loss["captures"].get("thru_after")
     assert loss["insertion_loss_db"] == pytest.approx(3.0, abs=0.3)
     # widening the ppm term far enough (6 kHz of 144.3 MHz is 42 ppm) takes the capture back in

@@ -146,7 +146,7 @@ def test_direct_loss_recovers_a_known_attenuation_and_removes_drift(tmp_path):
     write_capture(tmp_path, "02-dut", lossy(tone_in(-89.9, 2), 3.0, 2), role="dut", seed=12, time_s=10)
     write_capture(tmp_path, "03-thru", tone_in(-89.8, 3), role="thru", seed=13, time_s=20)
     a = analyse(tmp_path)
-    (loss,) = a.losses
+    (loss,) = [x.to_dict() for x in a.losses]
     assert loss["method"] == "direct"
     assert loss["captures"] == {"thru": ["01-thru"], "dut": ["02-dut"], "thru_after": ["03-thru"]}
     assert loss["drift_db"] == pytest.approx(0.2, abs=0.03)
@@ -173,8 +173,8 @@ def test_mismatch_terms_from_the_plan_enter_the_loss_budget(tmp_path):
         folder.mkdir()
         write_capture(folder, "01-thru", tone_in(-90.0, 1), role="thru", seed=11, time_s=0, **extra)
         write_capture(folder, "02-dut", lossy(tone_in(-90.0, 2), 3.0, 2), role="dut", seed=12, time_s=10, **extra)
-    (plain,) = analyse(tmp_path / "plain").losses
-    (matched,) = analyse(tmp_path / "matched").losses
+    (plain,) = [x.to_dict() for x in analyse(tmp_path / "plain").losses]
+    (matched,) = [x.to_dict() for x in analyse(tmp_path / "matched").losses]
     assert matched["insertion_loss_db"] == pytest.approx(plain["insertion_loss_db"], abs=1e-12)
     names = [c["name"] for c in matched["budget"]]
     expected = mismatch_components(1.1, 2.0, 1.5, matched["insertion_loss_db"])
@@ -195,7 +195,7 @@ def test_bad_swr_in_metadata_names_the_key(tmp_path):
 def test_back_to_back_pair_halves_the_loss(tmp_path):
     write_capture(tmp_path, "01-thru", tone_in(-90.0, 1), role="thru", seed=21)
     write_capture(tmp_path, "02-dut", lossy(tone_in(-90.0, 2), 1.0, 2), role="dut", seed=22, devices=2)
-    (loss,) = analyse(tmp_path).losses
+    (loss,) = [x.to_dict() for x in analyse(tmp_path).losses]
     assert loss["n_devices"] == 2
     assert loss["per_device_db"] == pytest.approx(loss["insertion_loss_db"] / 2)
     assert abs(loss["per_device_db"] - 0.5) <= loss["expanded_uncertainty_per_device_db"]
@@ -232,9 +232,9 @@ def test_substitution_is_immune_to_compression_where_direct_is_not(tmp_path):
     write_capture(tmp_path, "11-dut", lossy(tone_in(-84.0, 8), 3.0, 8), role="dut", seed=311, time_s=11,
                   dongle=squash, attenuation_db=0.0)
     a = analyse(tmp_path)
-    (lad,) = a.ladders
+    (lad,) = [x.to_dict() for x in a.ladders]
     assert lad["steps"][0]["region"] == "compressed" and lad["compression_db"] > 0.1
-    by = {x["method"]: x for x in a.losses}
+    by = {x["method"]: x for x in [x.to_dict() for x in a.losses]}
     sub, direct = by["substitution"], by["direct"]
     assert sub["bracket_db"] == [2.0, 4.0]
     assert abs(sub["insertion_loss_db"] - 3.0) <= sub["expanded_uncertainty_db"]
@@ -256,13 +256,13 @@ def test_a_step_re_read_after_the_dut_puts_the_drift_in_the_substitution_budget(
                       else tone_in(-90.0, 10), role="step", seed=20 + i, time_s=i, attenuation_db=float(att))
     write_capture(tmp_path, "10-dut", lossy(tone_in(-89.85, 30), 3.0, 30), role="dut", seed=31, time_s=10)
     a_plain = analyse(tmp_path)
-    (sub,) = [x for x in a_plain.losses if x["method"] == "substitution"]
+    (sub,) = [x for x in [x.to_dict() for x in a_plain.losses] if x["method"] == "substitution"]
     (line,) = [c for c in sub["budget"] if c["name"] == "generator drift"]
     assert line["u_db"] == 0 and "not assessed" in line["note"]
     write_capture(tmp_path, "11-step-again", lossy(tone_in(-89.7, 40), 4.0, 40), role="step", seed=41, time_s=20,
                   attenuation_db=4.0)
     a = analyse(tmp_path)
-    (sub,) = [x for x in a.losses if x["method"] == "substitution"]
+    (sub,) = [x for x in [x.to_dict() for x in a.losses] if x["method"] == "substitution"]
     (line,) = [c for c in sub["budget"] if c["name"] == "generator drift"]
     assert line["half_width_db"] == pytest.approx(0.3, abs=0.03)
     assert line["u_db"] == pytest.approx(line["half_width_db"] / math.sqrt(3))
@@ -278,7 +278,7 @@ def test_dut_outside_the_ladder_is_not_extrapolated(tmp_path):
         write_capture(tmp_path, f"{i:02d}-step", x, role="step", seed=420 + i, attenuation_db=float(att))
     write_capture(tmp_path, "10-dut", lossy(tone_in(-90.0, 9), 6.0, 9), role="dut", seed=430)
     a = analyse(tmp_path)
-    assert not [x for x in a.losses if x["method"] == "substitution"]
+    assert not [x for x in [x.to_dict() for x in a.losses] if x["method"] == "substitution"]
     assert any("extrapolated" in w for w in a.warnings)
 
 
@@ -468,5 +468,5 @@ def test_a_bad_capture_is_skipped_with_its_reason_and_the_rest_analysed(tmp_path
     assert "core:header_bytes" in skipped["04-negative.sigmf-meta"] and "-8" in skipped["04-negative.sigmf-meta"]
     assert "core:header_bytes" in skipped["05-text.sigmf-meta"] and "'x'" in skipped["05-text.sigmf-meta"]
     assert [e.name for e in a.session.entries] == ["01-thru", "02-dut"]
-    [loss] = a.losses
+    [loss] = [x.to_dict() for x in a.losses]
     assert loss["insertion_loss_db"] == pytest.approx(3.0, abs=0.3)

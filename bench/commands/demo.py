@@ -348,9 +348,10 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
                        "within": bool(abs(measured - true) <= expanded), "detail": detail})
 
     for x in analysis.losses:
-        add(f"insertion loss ({x['method']})", x["frequency_hz"], x["insertion_loss_db"],
-            x["expanded_uncertainty_db"], truth.dut_loss_db(x["frequency_hz"]))
-    for lad in analysis.ladders:
+        add(f"insertion loss ({x.method})", x.frequency_hz, x.insertion_loss_db, x.expanded_uncertainty_db,
+            truth.dut_loss_db(x.frequency_hz))
+    for result in analysis.ladders:
+        lad = result.to_dict()
         lin = [s for s in lad["steps"] if s["region"] == "linear"]
         if len(lin) >= 2:
             # The check states each step relative to a reference, with the dongle taken as linear

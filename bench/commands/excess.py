@@ -3,7 +3,9 @@ what that means for the antenna temperature, and how much loss the station can a
 
 Two captures on the same input, same gain and tuning: the antenna, and a 50-ohm load in its place.
 Optionally a ladder of antenna captures through known attenuation (``--antenna-step DB=C``), fitted
-to the lossy-network model to find the knee where added loss starts to cost SNR.
+to the lossy-network model to find the knee where added loss starts to cost SNR. This module parses
+the flags, reads the captures alike and renders the result of
+:func:`rxbench.methods.external.external_noise`, the method a session calls too.
 """
 
 from __future__ import annotations
@@ -11,36 +13,12 @@ from __future__ import annotations
 import argparse
 import math
 
-import numpy as np
-
 from rxbench.analyze import read_capture, require_comparable
 from rxbench.errors import MeasurementError, UsageError
+from rxbench.methods.external import external_noise
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, capture_from_args, step_capture_from_args
-from rxbench.dsp import environment as env
-from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 from rxbench.quantities import arg as quantity_arg
-
-#: SNR costs (dB) for which the affordable loss is reported.
-BUDGET_COSTS_DB = (0.5, 1.0)
-#: Losses (dB) for which the SNR cost is tabulated.
-EXAMPLE_LOSSES_DB = (1.0, 3.0, 6.0, 10.0)
-#: Below this excess (dB) the antenna noise is too close to the receiver's to say much about Ta.
-LOW_EXCESS_DB = 1.0
-#: Fit residual (RMS, dB) above which the ladder does not follow the model.
-MAX_RESIDUAL_RMS_DB = 0.5
-
-_DB = 10.0 / math.log(10.0)
-
-CAVEATS = (
-    "The excess is read over the capture's band at one time; band noise changes through the day and "
-    "with the season, so repeat the reading at the hours you listen.",
-    "The 50-ohm load is taken to be at 290 K and matched; the dongle's gain must be fixed (AGC off) "
-    "and the same for every capture.",
-    "The SNR cost of a loss follows from the excess alone; the noise figure is needed only to turn "
-    "the excess into an antenna temperature and Fa.",
-)
-
 
 def add_parser(subparsers) -> None:
     p = subparsers.add_parser(
@@ -62,22 +40,6 @@ def add_parser(subparsers) -> None:
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
-
-
-def _u_ratio_db(d1, u1, d2, u2) -> float:
-    return _DB * math.hypot(u1 / d1, u2 / d2)
-
-
-def _cost_table(excess_db: float) -> list[dict]:
-    ta_equiv = T0_K * 10 ** (excess_db / 10)  # excess X acts as Ta = X*T0 ahead of a noiseless receiver
-    costs = env.snr_degradation_db(np.array(EXAMPLE_LOSSES_DB), ta_equiv, 0.0)
-    return [{"loss_db": l, "snr_degradation_db": float(c)} for l, c in zip(EXAMPLE_LOSSES_DB, costs)]
-
-
-def _budget(excess_db: float) -> dict:
-    ta_equiv = T0_K * 10 ** (excess_db / 10)
-    losses = env.loss_for_snr_degradation_db(np.array(BUDGET_COSTS_DB), ta_equiv, 0.0)
-    return {f"snr_cost_{c:g}_db": float(l) for c, l in zip(BUDGET_COSTS_DB, losses)}
 
 
 def run(args: argparse.Namespace) -> int:
@@ -106,117 +68,17 @@ def run(args: argparse.Namespace) -> int:
             r = read_capture(cap, want_tone=False)
             readings[id(cap)] = r
             warnings.extend(r.warnings)
-
-    def dens(cap):
-        f = readings[id(cap)].floor
-        return f.density, f.u_density
-
-    trx_k = noise_temperature_from_nf_db(args.rx_nf_db) if args.rx_nf_db is not None else None
-    centre = all_caps[0].center_hz
-    result: dict = {
-        "frequency_hz": centre,
-        "sample_rate_hz": all_caps[0].sample_rate_hz,
-        "rx_nf_db": args.rx_nf_db,
-        "receiver_temperature_k": trx_k,
-    }
-
-    # The direct reading: antenna over load.
-    measured_excess_db = u_measured_db = None
-    if antenna is not None and load is not None:
-        (da, ua), (dl, ul) = dens(antenna), dens(load)
-        measured_excess_db = float(db_from_power(da / dl))
-        u_measured_db = _u_ratio_db(da, ua, dl, ul)
-        result["antenna_density_dbfs_per_hz"] = float(db_from_power(da))
-        result["load_density_dbfs_per_hz"] = float(db_from_power(dl))
-    result["measured_excess_db"] = measured_excess_db
-    result["u_measured_excess_db"] = u_measured_db
-
-    # The ladder fit (when there is a ladder).
-    ladder = None
-    if steps:
-        loss = np.array([db for db, _ in points])
-        d = np.array([dens(c)[0] for _, c in points])
-        u = np.array([dens(c)[1] for _, c in points])
-        kwargs = {}
-        if load is not None:
-            kwargs = {"load_density": dens(load)[0], "u_load_density": dens(load)[1]}
-        try:
-            fit = env.fit_knee(loss, d, u_density=u, receiver_temperature_k=trx_k, **kwargs)
-        except ValueError as exc:
-            raise MeasurementError(f"ladder fit: {exc}") from None
-        model = (fit.antenna_density - fit.load_density) / 10 ** (loss / 10) + fit.load_density
-        ladder = {
-            "steps": [
-                {"loss_db": float(l), "capture": str(c.path), "density_dbfs_per_hz": float(db_from_power(di)),
-                 "model_dbfs_per_hz": float(db_from_power(m)), "residual_db": float(db_from_power(di / m))}
-                for (l, c), di, m in zip(points, d, model)
-            ],
-            "residual_rms_db": fit.residual_rms_db,
-            "fitted_antenna_density_dbfs_per_hz": float(db_from_power(fit.antenna_density)),
-            "fitted_load_density_dbfs_per_hz": float(db_from_power(fit.load_density)),
-            "external_density_dbfs_per_hz": None,
-            "internal_density_dbfs_per_hz": None,
-            "max_step_db": float(loss.max()),
-        }
-        if trx_k is not None:
-            if fit.external_density > 0:
-                ladder["external_density_dbfs_per_hz"] = float(db_from_power(fit.external_density))
-            else:
-                warnings.append("the fitted external noise is not above zero: the ladder readings and "
-                                "the noise figure disagree")
-            ladder["internal_density_dbfs_per_hz"] = float(db_from_power(fit.internal_density))
-        if fit.n_points > 2 and fit.residual_rms_db > MAX_RESIDUAL_RMS_DB:
-            warnings.append(
-                f"the ladder readings depart from the lossy-network model by {fit.residual_rms_db:.2f} dB "
-                "RMS: check the attenuator steps, that the gain was fixed, and that the band noise was steady"
-            )
-        if fit.n_points == 2:
-            warnings.append("two readings fit the model exactly: add ladder steps to check it")
-        excess_db, u_excess_db = fit.excess_db, fit.u_excess_db
-    else:
-        excess_db, u_excess_db = measured_excess_db, u_measured_db
-    result["ladder"] = ladder
-    result["excess_db"] = excess_db
-    result["u_excess_db"] = u_excess_db
-
-    # What the excess means.
-    result["antenna_temperature_k"] = result["fa_db"] = None
-    if trx_k is not None:
-        try:
-            ta = env.antenna_temperature_from_excess(excess_db, trx_k)
-        except ValueError:
-            raise MeasurementError(
-                f"an excess of {excess_db:.2f} dB with --rx-nf-db {args.rx_nf_db:g} implies a negative "
-                "antenna temperature: the noise figure is too high for these captures, or the load "
-                "capture is not a matched load"
-            ) from None
-        result["antenna_temperature_k"] = ta
-        result["fa_db"] = env.fa_db_from_temperature(ta)
-    if excess_db < LOW_EXCESS_DB:
-        warnings.append(
-            f"the antenna noise is only {excess_db:.2f} dB above the dongle's own: almost every dB of loss "
-            "costs a dB of SNR here; a quieter receiver (or a preamplifier) would help more than less loss"
-        )
-    if u_excess_db is not None and math.isfinite(u_excess_db) and u_excess_db > 0.5:
-        warnings.append(f"the excess is uncertain by {u_excess_db:.2f} dB (standard): capture longer")
-    result["snr_cost"] = _cost_table(excess_db)
-    result["loss_budget_db"] = _budget(excess_db)
-    if ladder is not None:
-        for key, loss_db in result["loss_budget_db"].items():
-            if loss_db > ladder["max_step_db"]:
-                warnings.append(
-                    f"the loss for {key.replace('snr_cost_', '').replace('_db', '')} dB of SNR cost "
-                    f"({loss_db:.1f} dB) lies beyond the ladder's largest step ({ladder['max_step_db']:g} dB): "
-                    "it is extrapolated by the model"
-                )
-    p372 = None
-    if centre is not None and env.VALID_RANGE_HZ[0] <= centre <= env.VALID_RANGE_HZ[1]:
-        p372 = {name: env.man_made_fa_db(centre, name) for name in env.MAN_MADE_NOISE}
-    result["p372_fa_db"] = p372
-    result["caveats"] = list(CAVEATS)
-    result["warnings"] = warnings
-
-    emit(args, result, _human(result, args), warnings)
+    result = external_noise({db: [readings[id(cap)]] for db, cap in points},
+                            [readings[id(load)]] if load is not None else [], rx_nf_db=args.rx_nf_db)
+    if args.rx_nf_db is not None and result.antenna_temperature_k is None:
+        raise MeasurementError(
+            f"an excess of {result.excess_db:.2f} dB with --rx-nf-db {args.rx_nf_db:g} implies a negative "
+            "antenna temperature: the noise figure is too high for these captures, or the load capture is "
+            "not a matched load")
+    warnings += result.warnings
+    out = result.to_dict()
+    out["warnings"] = warnings
+    emit(args, out, _human(out, args), warnings)
     return 0
 
 
@@ -228,7 +90,7 @@ def _human(r: dict, args) -> str:
                      f"(u = {fmt_db(r['u_measured_excess_db'])} dB)")
         lines.append(f"  antenna {fmt_db(r['antenna_density_dbfs_per_hz'])} dBFS/Hz, "
                      f"load {fmt_db(r['load_density_dbfs_per_hz'])} dBFS/Hz")
-    lad = r["ladder"]
+    lad = r["knee"]
     if lad is not None:
         lines.append(f"ladder fit{where} (noise = external/L + T0*(1 - 1/L) + internal):")
         lines.append(f"  {'loss dB':>8} {'read dBFS/Hz':>13} {'model':>9} {'resid dB':>9}")

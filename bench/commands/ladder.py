@@ -1,7 +1,7 @@
 """``rxbench ladder --step DB=C ...``: check each attenuator step, and the dongle's linear range.
 
-The numerics are :func:`dsp.ladder.check_ladder`; reading the captures alike is shared with
-``rxbench loss``.
+This module parses the flags, reads the captures alike and renders the result of
+:func:`rxbench.methods.ladder.ladder_check`, the method a session calls too.
 """
 
 from __future__ import annotations
@@ -9,11 +9,12 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.analyze import add_drift_option, read_tones, tone_db
-from rxbench.errors import MeasurementError, UsageError
+from rxbench.analyze import add_drift_option, read_tones
+from rxbench.errors import UsageError
+from rxbench.methods.common import pool
+from rxbench.methods.ladder import DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, ladder_check
 from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, step_capture_from_args
-from rxbench.dsp.ladder import COMPRESSED, DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, NOISE_LIMITED, check_ladder
 from rxbench.quantities import arg as quantity_arg
 
 
@@ -45,10 +46,6 @@ def _signed(value: float) -> str:
     return f"{value:+.2f}" if math.isfinite(value) else "n/a"
 
 
-def _steps_text(values) -> str:
-    return ", ".join(f"{v:g}" for v in values) + " dB"
-
-
 def run(args: argparse.Namespace) -> int:
     if len(args.step) < 3:
         raise UsageError(f"a ladder check needs at least 3 --step DB=CAPTURE, got {len(args.step)}")
@@ -65,45 +62,18 @@ def run(args: argparse.Namespace) -> int:
         raise UsageError(f"--step: a ladder check needs at least 3 steps, got {len(dbs)}")
     readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg,
                                     drift_ppm=args.drift_ppm)
-    values = [tone_db(r) for r in readings]
-    try:
-        c = check_ladder(dbs, [v[0] for v in values], [v[1] for v in values], tolerance_db=args.tolerance_db,
-                         linearity_db=args.linearity_db, reference_db=args.reference_step)
-    except ValueError as exc:
-        raise MeasurementError(f"ladder check: {exc}") from None
-    # check_ladder sorts by nominal; the steps are sorted already, so c.order is the identity
-    compressed = [db for db, reg in zip(c.nominal_db, c.region) if reg == COMPRESSED]
-    noisy = [db for db, reg in zip(c.nominal_db, c.region) if reg == NOISE_LIMITED]
-    if compressed:
-        warnings.append(f"step(s) {_steps_text(compressed)}: the dongle compresses at the top of the ladder "
-                        f"({c.compression_db:.2f} dB short at {compressed[0]:g} dB); these steps say nothing "
-                        "about the attenuator")
-    if noisy:
-        warnings.append(f"step(s) {_steps_text(noisy)}: too close to the noise to check to "
-                        f"±{c.tolerance_db:g} dB")
-    steps_out = []
-    for i, r in enumerate(readings):
-        snr = None if r.tone is None else r.tone.snr_db
-        steps_out.append({
-            "nominal_db": float(c.nominal_db[i]), "measured_db": float(c.measured_db[i]),
-            "error_db": float(c.error_db[i]), "u_error_db": float(c.u_error_db[i]),
-            "flagged": bool(c.flagged[i]), "region": c.region[i],
-            "reading_dbfs": float(c.reading_dbfs[i]), "u_reading_db": float(c.u_reading_db[i]),
-            "snr_db": snr, "capture": str(r.capture.path)})
-    result = {
-        "steps": steps_out,
-        "tolerance_db": c.tolerance_db,
-        "reference": c.reference,
-        "offset_dbfs": c.offset_dbfs,
-        "n_flagged": int(c.flagged.sum()),
-        "compression_db": c.compression_db,
-        "usable_range_db": c.usable_range_db,
-        "usable_top_db": c.usable_top_db,
-        "usable_bottom_db": c.usable_bottom_db,
-        "top_limited_by": c.top_limited_by,
-        "bottom_limited_by": c.bottom_limited_by,
-        "warnings": warnings,
-    }
+    result = ladder_check({db: pool([r], missing_ok=True) for db, r in zip(dbs, readings)},
+                          tolerance_db=args.tolerance_db, linearity_db=args.linearity_db,
+                          reference_db=args.reference_step)
+    warnings += result.warnings
+    out = result.to_dict()
+    out["warnings"] = warnings
+    emit(args, out, _human(result, out["steps"]), warnings)
+    return 0
+
+
+def _human(result, steps_out) -> str:
+    c = result.check
     ref = "median of the linear steps" if c.reference == "median" else c.reference
     lines = [f"ladder check: {len(steps_out)} steps, reference {ref} "
              f"({c.offset_dbfs:.2f} dBFS at 0 dB), tolerance ±{c.tolerance_db:g} dB",
@@ -120,8 +90,7 @@ def run(args: argparse.Namespace) -> int:
     lines.append(f"usable linear range: {c.usable_range_db:g} dB{lower_bound}, steps {c.usable_top_db:g} .. "
                  f"{c.usable_bottom_db:g} dB (top: {limits[c.top_limited_by]}, bottom: "
                  f"{limits[c.bottom_limited_by]})")
-    n = result["n_flagged"]
+    n = int(c.flagged.sum())
     lines.append(f"{n} step{'s' if n != 1 else ''} outside ±{c.tolerance_db:g} dB" if n else
                  f"all linear-range steps within ±{c.tolerance_db:g} dB")
-    emit(args, result, "\n".join(lines), warnings)
-    return 0
+    return "\n".join(lines)

@@ -1,9 +1,8 @@
 """``rxbench loss``: insertion loss of a device, direct or by substitution, with its GUM budget.
 
 Direct: ``--thru C --dut C [--thru-after C] [--pair]``; substitution: ``--step DB=C ... --dut C
-[--dut-step DB]``. The numerics are in :mod:`dsp.ladder`; this module reads the captures, checks
-that they can be compared, and reports. The helpers that read a set of captures alike are shared
-with ``rxbench ladder``.
+[--dut-step DB]``. This module parses the flags, reads the captures alike and renders the result
+of :mod:`rxbench.methods.loss`, the method a session calls too.
 """
 
 from __future__ import annotations
@@ -13,12 +12,12 @@ import math
 
 import numpy as np
 
-from rxbench.analyze import add_drift_option, SWR_FROM_OPTIONS, capture_start_s, mismatch_budget, pool_tones, read_tones, tone_db
-from rxbench.errors import MeasurementError, UsageError
+from rxbench.analyze import add_drift_option, read_tones
+from rxbench.errors import UsageError
+from rxbench.methods.common import SWR_FROM_OPTIONS, has_tone, pool
+from rxbench.methods.loss import direct_loss, substitution_loss
 from rxbench.output import CAUTIONS, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args, step_capture_from_args
-from rxbench.dsp.ladder import direct_loss, substitution_loss
-from rxbench.dsp.uncertainty import coverage_factor
 from rxbench.quantities import arg as quantity_arg
 
 
@@ -65,34 +64,10 @@ def add_parser(sub) -> None:
     p.set_defaults(func=run)
 
 
-# --------------------------------------------------------------------------------------------
-# Shared with `rxbench ladder`
-
-
-def reading_dict(reading, **more) -> dict:
-    p, u, _ = tone_db(reading)
-    t = reading.tone
-    return {"capture": str(reading.capture.path), "power_dbfs": p, "u_power_db": u,
-            "offset_hz": None if t is None else t.offset_hz, "snr_db": None if t is None else t.snr_db,
-            "clip_fraction": reading.health.clip_fraction, **more}
-
-
-def _capture_time_s(cap):
-    """Mid-capture time from the metadata (s since the epoch), or None."""
-    start = capture_start_s(cap)
-    return None if start is None else start + cap.duration_s / 2
-
-
-def budget_rows(budget) -> list[dict]:
-    return [{"name": c.name, "type": c.kind, "distribution": c.distribution, "half_width_db": c.half_width,
-             "u_db": c.u, "sensitivity": c.sensitivity, "contribution_db": c.contribution, "dof": c.dof,
-             "note": c.note} for c in budget.components]
-
-
 def budget_table(budget) -> str:
     """The budget as a small fixed-width table (dB)."""
     lines = ["uncertainty budget (dB)",
-             f"  {'component':<34} {'type':<4} {'distribution':<12} {'a':>6} {'u':>7} {'c':>6} {'|c|u':>7}  note"]
+             f"  {'component':<34} {'kind':<4} {'distribution':<12} {'a':>6} {'u':>7} {'c':>6} {'|c|u':>7}  note"]
     for c in budget.components:
         a = "-" if c.half_width is None else f"{c.half_width:.3f}"
         lines.append(f"  {c.name:<34} {c.kind:<4} {c.distribution:<12} {a:>6} {c.u:7.4f} "
@@ -138,112 +113,43 @@ def _check_options(args) -> str:
     return method
 
 
-def _mismatch(args, loss_db, warnings):
-    swr = {key: getattr(args, key) for key in SWR_FROM_OPTIONS}
-    comps, warning = mismatch_budget(swr, loss_db, SWR_FROM_OPTIONS)
-    if warning:
-        warnings.append(warning)
-    return comps
+def _swr(args) -> dict:
+    return {key: getattr(args, key) for key in SWR_FROM_OPTIONS}
 
 
-def _direct(args, readings, n_thru, n_dut, warnings):
+def _direct(args, readings, n_thru, n_dut):
     thru_r, dut_r, after_r = readings[:n_thru], readings[n_thru:n_thru + n_dut], readings[n_thru + n_dut:]
-    thru = pool_tones(thru_r, "thru")
-    dut = pool_tones(dut_r, "DUT")
-    kw = {}
-    times_from = None
+    p = {"thru": pool(thru_r, "thru"), "DUT": pool(dut_r, "DUT")}
     if after_r:
-        after = pool_tones(after_r, "thru-after")
-        caps = [r.capture for r in readings]
-        stamps = [_capture_time_s(c) for c in caps]
-        if all(s is not None for s in stamps):
-            times_from = "metadata"
-        else:
-            times_from = "order given"
-            if any(s is not None for s in stamps):
-                warnings.append("only some captures carry a start time; drift is interpolated by the order "
-                                "the captures were given")
-            stamps = list(range(len(caps)))
-        t = [float(np.mean(stamps[:n_thru])), float(np.mean(stamps[n_thru:n_thru + n_dut])),
-             float(np.mean(stamps[n_thru + n_dut:]))]
-        kw = dict(thru_after_dbfs=after[0], u_thru_after_db=after[1], times_s=t)
-        dof = (thru[2], dut[2], after[2])
-    else:
-        dof = (thru[2], dut[2], math.inf)
-    linearity = 0.0 if args.linearity_db is None else args.linearity_db
-    if args.linearity_db is None:
-        warnings.append("the direct method assumes the dongle is linear between the thru and DUT levels; "
-                        "that is not in the budget (give --linearity-db from a ladder check, or use "
-                        "substitution)")
-
-    def compute(extra):
-        try:
-            return direct_loss(thru[0], thru[1], dut[0], dut[1], dof=dof, linearity_db=linearity,
-                               extra_components=extra, **kw)
-        except ValueError as exc:
-            raise MeasurementError(str(exc)) from None
-
-    loss = compute(())
-    loss = compute(_mismatch(args, loss.loss_db, warnings))
-    if after_r and abs(loss.drift_db) > 2 * math.hypot(thru[1], after[1]):
-        warnings.append(f"the thru moved by {loss.drift_db:+.3f} dB between before and after; corrected by "
-                        "interpolating linearly in time")
-    detail = {"thru_dbfs": loss.reference_dbfs, "dut_dbfs": loss.dut_dbfs, "drift_db": loss.drift_db,
-              "times_from": times_from,
-              "readings": {"thru": [reading_dict(r) for r in thru_r], "dut": [reading_dict(r) for r in dut_r],
-                           "thru_after": [reading_dict(r) for r in after_r]}}
+        p["thru after"] = pool(after_r, "thru-after")
+    result = direct_loss(p["thru"], p["DUT"], p.get("thru after"), linearity_db=args.linearity_db, swr=_swr(args),
+                         n_devices=2 if args.pair else 1)
     if after_r:
-        rows = [("thru before", thru[0], thru[1], n_thru), ("DUT", dut[0], dut[1], n_dut),
-                ("thru after", after[0], after[1], len(after_r)),
-                ("thru at DUT time", loss.reference_dbfs, math.nan, None)]
+        rows = [("thru before", p["thru"], n_thru), ("DUT", p["DUT"], n_dut),
+                ("thru after", p["thru after"], len(after_r)),
+                ("thru at DUT time", (result.loss.reference_dbfs, math.nan), None)]
     else:
-        rows = [("thru", thru[0], thru[1], n_thru), ("DUT", dut[0], dut[1], n_dut)]
-    return loss, detail, rows
+        rows = [("thru", p["thru"], n_thru), ("DUT", p["DUT"], n_dut)]
+    return result, [(label, x if isinstance(x, tuple) else (x.dbfs, x.u_db), n) for label, x, n in rows]
 
 
-def _substitution(args, readings, steps_db, n_dut, warnings):
+def _substitution(args, readings, steps_db, n_dut):
     step_r, dut_r = readings[:len(steps_db)], readings[len(steps_db):]
-    dut = pool_tones(dut_r, "DUT")
-    nominal, reading, u, dof = [], [], [], []
+    warnings = []
+    steps = {}
     for db, r in zip(steps_db, step_r):
-        p, ur, nu = tone_db(r)
-        if not math.isfinite(p):
+        if not has_tone(r):
             warnings.append(f"{r.capture.path}: no tone at step {db:g} dB; that step is left out")
             continue
-        nominal.append(db)
-        reading.append(p)
-        u.append(ur)
-        dof.append(nu)
-    if len(nominal) < 2:
-        raise MeasurementError("substitution needs at least 2 ladder steps with a readable tone")
-    dut_step = 0.0 if args.dut_step is None else args.dut_step
-    tol = 0.0 if args.atten_tolerance_db is None else args.atten_tolerance_db
-    if args.atten_tolerance_db is None:
-        warnings.append("attenuator tolerance not given (--atten-tolerance-db): the uncertainty covers the "
-                        "readings only, not the attenuator the result rests on")
-
-    def compute(extra):
-        try:
-            return substitution_loss(nominal, reading, u, dut[0], dut[1], dut_step_db=dut_step,
-                                     atten_tolerance_db=tol, dof_dut=dut[2], dof_steps=dof,
-                                     extra_components=extra)
-        except ValueError as exc:
-            msg = str(exc)
-            if "outside the ladder" in msg:
-                msg += "; extend the ladder or capture the DUT at another --dut-step"
-            raise MeasurementError(msg) from None
-
-    loss = compute(())
-    loss = compute(_mismatch(args, loss.loss_db, warnings))
-    detail = {"attenuation_db": loss.attenuation_db, "bracket_db": list(loss.bracket_db),
-              "dut_step_db": dut_step, "dut_dbfs": loss.dut_dbfs,
-              "readings": {"steps": [reading_dict(r, nominal_db=db) for db, r in zip(steps_db, step_r)],
-                           "dut": [reading_dict(r) for r in dut_r]}}
-    lo, hi = loss.bracket_db
-    rows = [(f"step {lo:g} dB", reading[nominal.index(lo)], u[nominal.index(lo)], 1),
-            ("DUT", dut[0], dut[1], n_dut),
-            (f"step {hi:g} dB", reading[nominal.index(hi)], u[nominal.index(hi)], 1)]
-    return loss, detail, rows
+        steps[db] = pool([r])
+    dut = pool(dut_r, "DUT")
+    result = substitution_loss(steps, dut, dut_attenuation_db=0.0 if args.dut_step is None else args.dut_step,
+                               tolerance_db=args.atten_tolerance_db, swr=_swr(args),
+                               n_devices=2 if args.pair else 1)
+    lo, hi = result.loss.bracket_db
+    rows = [(f"step {lo:g} dB", (steps[lo].dbfs, steps[lo].u_db), 1), ("DUT", (dut.dbfs, dut.u_db), n_dut),
+            (f"step {hi:g} dB", (steps[hi].dbfs, steps[hi].u_db), 1)]
+    return result, rows, warnings
 
 
 def run(args: argparse.Namespace) -> int:
@@ -252,7 +158,7 @@ def run(args: argparse.Namespace) -> int:
         captures = [capture_from_args(p, args) for p in (*args.thru, *args.dut, *args.thru_after)]
         readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
                                         drift_ppm=args.drift_ppm)
-        loss, detail, rows = _direct(args, readings, len(args.thru), len(args.dut), warnings)
+        result, rows = _direct(args, readings, len(args.thru), len(args.dut))
     else:
         steps = [step_capture_from_args(s, args) for s in args.step]
         dbs = [db for db, _ in steps]
@@ -263,49 +169,32 @@ def run(args: argparse.Namespace) -> int:
         captures = [steps[i][1] for i in order] + [capture_from_args(p, args) for p in args.dut]
         readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
                                         drift_ppm=args.drift_ppm)
-        loss, detail, rows = _substitution(args, readings, dbs, len(args.dut), warnings)
+        result, rows, more = _substitution(args, readings, dbs, len(args.dut))
+        warnings += more
+    warnings += result.warnings
+    out = result.to_dict()
+    out["warnings"] = warnings
+    emit(args, out, "\n".join(_human(result, rows, args)), warnings)
+    return 0
 
-    U = loss.expanded_uncertainty_db
-    per_device = loss.loss_db / 2 if args.pair else loss.loss_db
-    per_device_u = U / 2 if args.pair else U
-    dof = loss.budget.dof_eff
-    if dof < 10:
-        warnings.append(f"only {dof:.1f} effective degrees of freedom behind the uncertainty: k = 2 covers "
-                        f"less than 95 % (the Student t factor for 95 % would be "
-                        f"{coverage_factor(dof, 0.95):.2f}); take more captures")
-    if loss.loss_db + U < 0:
-        warnings.append(f"the DUT reads stronger than the thru by more than the uncertainty "
-                        f"({-loss.loss_db:.3f} dB): a passive device cannot gain; check the set-up")
-    result = {
-        "method": method,
-        "insertion_loss_db": loss.loss_db,
-        "expanded_uncertainty_db": U,
-        "standard_uncertainty_db": loss.u_db,
-        "coverage_factor": loss.budget.k,
-        "effective_dof": loss.budget.dof_eff,
-        "pair": bool(args.pair),
-        "per_device_db": per_device,
-        "per_device_expanded_uncertainty_db": per_device_u,
-        "budget": budget_rows(loss.budget),
-        **detail,
-        "warnings": warnings,
-    }
+
+def _human(result, rows, args) -> list[str]:
+    loss, U = result.loss, result.expanded_uncertainty_db
     digits = 3 if U < 0.095 else 2
-    lines = [f"insertion loss, {method} method"]
-    for label, p, u, n in rows:
+    lines = [f"insertion loss, {result.method} method"]
+    for label, (p, u), n in rows:
         count = "" if n is None else f"  ({n} capture{'s' if n != 1 else ''})"
         unc = "" if not math.isfinite(u) else f"  u {u:.3f} dB"
         lines.append(f"  {label:<18} {fmt_db(p, 3):>9} dBFS{unc}{count}")
-    if method == "substitution":
-        lines.append(f"  {'ladder setting':<18} {loss.attenuation_db:9.3f} dB  (DUT at {detail['dut_step_db']:g} dB)")
+    if result.method == "substitution":
+        lines.append(f"  {'ladder setting':<18} {loss.attenuation_db:9.3f} dB  (DUT at {result.dut_attenuation_db:g} dB)")
     lines.append(f"  {'loss':<18} {loss.loss_db:9.{digits}f} dB  ± {U:.{digits}f} dB  (U, k = {loss.budget.k:g}, "
                  "about 95 %)")
     if args.pair:
-        lines.append(f"  {'per device':<18} {per_device:9.{digits}f} dB  ± {per_device_u:.{digits}f} dB  "
-                     "(pair / 2)")
+        lines.append(f"  {'per device':<18} {result.per_device_db:9.{digits}f} dB  ± "
+                     f"{result.expanded_uncertainty_per_device_db:.{digits}f} dB  (pair / 2)")
     if args.budget:
         lines += ["", budget_table(loss.budget)]
         if args.pair:
             lines.append("  (per device: half of each contribution)")
-    emit(args, result, "\n".join(lines), warnings)
-    return 0
+    return lines

@@ -22,11 +22,12 @@ from rxbench.style import fmt_hz_band
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
 from rxbench.dsp import noisefig as nfm
+from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.dsp.units import T0_K, db_from_power
 from rxbench.quantities import arg as quantity_arg
 
-#: Coverage factor of the expanded uncertainties printed (about 95 %).
-K_EXPANDED = 2.0
+#: Coverage factor of the expanded uncertainties printed (about 95 %), defined once.
+K_EXPANDED = COVERAGE_FACTOR
 #: Warn when one dB of error in Y moves the noise figure by more than this many dB.
 Y_SENSITIVITY_WARN = 2.0
 #: Warn when an expanded uncertainty (dB) exceeds this.

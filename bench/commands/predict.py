@@ -6,6 +6,7 @@ from __future__ import annotations
 import argparse
 
 from rxbench.errors import UsageError
+from rxbench.methods.snr_cost import snr_cost
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.style import band_of
 from rxbench.dsp import environment as env
@@ -76,6 +77,10 @@ def add_parser(subparsers) -> None:
     p.add_argument("--antenna-excess-db", type=quantity_arg("excess_db"), default=None, metavar="DB",
                    help="measured excess of antenna noise over a 50-ohm load (rxbench excess); "
                         "replaces the model")
+    p.add_argument("--loss-u-db", type=quantity_arg("tolerance_db"), default=0.0, metavar="DB",
+                   help="standard uncertainty of --loss-db, dB (with --antenna-excess-db; default 0)")
+    p.add_argument("--antenna-excess-u-db", type=quantity_arg("tolerance_db"), default=0.0, metavar="DB",
+                   help="standard uncertainty of --antenna-excess-db, dB (default 0)")
     add_json_option(p)
     p.set_defaults(func=run)
 
@@ -191,6 +196,12 @@ def run(args: argparse.Namespace) -> int:
             "rx_nf_db": args.rx_nf_db,
         }
         row.update(_row(ta_k, trx_k, args.loss_db))
+        # The cost and its uncertainty from the method a session's measured loss and excess go through.
+        cost = snr_cost(args.loss_db, args.antenna_excess_db, u_loss_db=args.loss_u_db,
+                        u_excess_db=args.antenna_excess_u_db, frequency_hz=row["frequency_hz"],
+                        rx_nf_db=args.rx_nf_db, provenance={"loss_source": "--loss-db"})
+        row.update(cost.to_dict())
+        warnings += cost.warnings
         rows = [row]
     else:
         environment = args.environment or "residential"

@@ -8,12 +8,14 @@ import math
 from rxbench.output import CAUTIONS
 from rxbench.report.plots import ENV_COLOURS
 from rxbench.report.text import _f, _mhz, _pm, _table, plan_title, summary_lines
+from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.session import Analysis
 
 
-def _mismatch_sentence(losses: list[dict]) -> str:
-    """What the loss budgets say about mismatch between generator, attenuator, device and dongle."""
-    assessed = [x for x in losses if any(c["name"].startswith("mismatch") and c["u_db"] > 0 for c in x["budget"])]
+def _mismatch_sentence(losses) -> str:
+    """What the loss budgets say about impedance mismatch between generator, attenuator, device and dongle."""
+    assessed = [x for x in losses
+                if any(c.name.startswith("mismatch") and c.u > 0 for c in x.loss.budget.components)]
     if len(assessed) == len(losses):
         return ("Mismatch between generator, attenuator, device and dongle is in these budgets, from the "
                 "plan's `[match]` SWRs (first-order terms, U-shaped; Harris & Warner 1981).")
@@ -50,33 +52,36 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
           "comparator (Kaylie 1966).\n\n")
         rows = []
         for x in analysis.losses:
-            rows.append([x["method"], f"{x['dut_attenuation_db']:g}", _mhz(x["frequency_hz"]), _f(x["insertion_loss_db"], 3),
-                         _f(x["expanded_uncertainty_db"], 3), x["n_devices"], _f(x["per_device_db"], 3),
-                         "" if x["drift_db"] is None else f"{x['drift_db']:+.3f}",
-                         "" if x["bracket_db"] is None else f"{x['bracket_db'][0]:g}–{x['bracket_db'][1]:g} dB"])
+            loss = x.loss
+            rows.append([x.method, f"{x.dut_attenuation_db:g}", _mhz(x.frequency_hz), _f(x.insertion_loss_db, 3),
+                         _f(x.expanded_uncertainty_db, 3), x.n_devices, _f(x.per_device_db, 3),
+                         "" if loss.drift_db is None else f"{loss.drift_db:+.3f}",
+                         "" if loss.bracket_db is None else f"{loss.bracket_db[0]:g}–{loss.bracket_db[1]:g} dB"])
         w(_table(["method", "device at (dB)", "frequency", "loss (dB)", "U (dB)", "devices", "per device (dB)",
                   "thru drift (dB)", "between steps"], rows) + "\n\n")
         w(_mismatch_sentence(analysis.losses) + "\n\n")
         for x in analysis.losses:
-            nu = x["dof_eff"]
+            budget = x.loss.budget
+            nu = budget.dof_eff
             nu_text = "> 1000" if nu is None or not math.isfinite(nu) or nu > 1000 else f"{nu:.0f}"
-            w(f"Budget, {x['method']} with the device at {x['dut_attenuation_db']:g} dB "
-              f"(u_c = {x['u_db']:.3f} dB, ν_eff = {nu_text}):\n\n")
+            w(f"Budget, {x.method} with the device at {x.dut_attenuation_db:g} dB "
+              f"(u_c = {x.u_db:.3f} dB, ν_eff = {nu_text}):\n\n")
             w(_table(["component", "u (dB)", "sensitivity", "contribution (dB)", "type", "note"],
-                     [[c["name"], f"{c['u_db']:.4f}", f"{c['sensitivity']:.3f}", f"{c['contribution_db']:.4f}",
-                       f"{c['kind']}, {c['distribution']}", c["note"]] for c in x["budget"]]) + "\n\n")
+                     [[c.name, f"{c.u:.4f}", f"{c.sensitivity:.3f}", f"{c.contribution:.4f}",
+                       f"{c.kind}, {c.distribution}", c.note] for c in budget.components]) + "\n\n")
 
     for lad, name in zip(analysis.ladders, plots.get("ladder", [])):
-        w(f"## Ladder check at {_mhz(lad['center_hz'])}\n\n")
-        w(f"Errors against a robust reference ({lad['reference']} of the linear steps); a step whose error "
-          f"exceeds ±{lad['tolerance_db']:g} dB in the dongle's linear range is flagged (the attenuator, "
-          f"not the dongle). The dongle read linearly from {lad['usable_top_db']:g} dB "
-          f"(limited by {lad['top_limited_by']}) to {lad['usable_bottom_db']:g} dB "
-          f"(limited by {lad['bottom_limited_by']}).\n\n")
+        c = lad.check
+        w(f"## Ladder check at {_mhz(lad.center_hz)}\n\n")
+        w(f"Errors against a robust reference ({c.reference} of the linear steps); a step whose error "
+          f"exceeds ±{c.tolerance_db:g} dB in the dongle's linear range is flagged (the attenuator, "
+          f"not the dongle). The dongle read linearly from {c.usable_top_db:g} dB "
+          f"(limited by {c.top_limited_by}) to {c.usable_bottom_db:g} dB "
+          f"(limited by {c.bottom_limited_by}).\n\n")
         w(_table(["nominal (dB)", "reading (dBFS)", "measured (dB)", "error (dB)", "U (dB)", "region", "flag"],
-                 [[f"{st['nominal_db']:g}", _f(st["reading_dbfs"], 2), _f(st["measured_db"], 3),
-                   f"{st['error_db']:+.3f}", f"{st['expanded_error_uncertainty_db']:.3f}", st["region"],
-                   "**off**" if st["flagged"] else ""] for st in lad["steps"]]) + "\n\n")
+                 [[f"{c.nominal_db[i]:g}", _f(float(c.reading_dbfs[i]), 2), _f(float(c.measured_db[i]), 3),
+                   f"{c.error_db[i]:+.3f}", f"{c.k * c.u_error_db[i]:.3f}", c.region[i],
+                   "**off**" if c.flagged[i] else ""] for i in range(len(c.nominal_db))]) + "\n\n")
         w(f"![ladder]({name})\n\n")
 
     if analysis.noise_figure:
@@ -90,7 +95,7 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
                          _pm(n["noise_figure_db"], n["expanded_uncertainty_db"]),
                          f"{n['noise_temperature_k']:.0f}",
                          _pm(n.get("insertion_loss_db"), n.get("expanded_uncertainty_loss_db")),
-                         _pm(n.get("dut_noise_figure_db"), 2 * n["u_dut_noise_figure_db"]
+                         _pm(n.get("dut_noise_figure_db"), COVERAGE_FACTOR * n["u_dut_noise_figure_db"]
                              if n.get("u_dut_noise_figure_db") is not None else None)])
         w(_table(["tuned to", "ENR (dB)", "Y (dB)", "receiver NF", "T_e (K)", "DUT loss", "DUT NF"], rows) + "\n\n")
     if "frequency" in plots:
@@ -117,19 +122,19 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
             if knee:
                 steps = ", ".join(f"{v:g}" for v in knee["steps_db"])
                 w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: the antenna through {steps} dB of attenuation "
-                  f"(and the load) fits the lossy-network model with an excess of {_pm(knee['excess_db'], 2 * knee['u_excess_db'])}, "
+                  f"(and the load) fits the lossy-network model with an excess of {_pm(knee['excess_db'], COVERAGE_FACTOR * knee['u_excess_db'])}, "
                   f"residuals {knee['residual_rms_db']:.2f} dB RMS.\n")
             td = ex.get("through_dut")
             if td:
                 w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: through the device the antenna noise drops by "
-                  f"{_pm(td['drop_db'], 2 * td['u_drop_db'])}.\n")
+                  f"{_pm(td['drop_db'], COVERAGE_FACTOR * td['u_drop_db'])}.\n")
         w("\n")
         if analysis.snr_cost:
             envs = list(ENV_COLOURS)
             rows = []
             for c in analysis.snr_cost:
                 pred = c["predicted"] or {}
-                rows.append([c["band"], _mhz(c["frequency_hz"]), _pm(c["loss_db"], 2 * c["u_loss_db"]),
+                rows.append([c["band"], _mhz(c["frequency_hz"]), _pm(c["loss_db"], COVERAGE_FACTOR * c["u_loss_db"]),
                              _pm(c["snr_degradation_db"], c["expanded_uncertainty_db"]),
                              _pm(c.get("snr_degradation_through_dut_db"), c.get("expanded_uncertainty_through_dut_db"))]
                             + [_f(pred.get(e)) for e in envs])

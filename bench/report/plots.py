@@ -6,6 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
+from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.report.text import _mhz, _pm
 from rxbench.spectra_pages import plot_spectra
 from rxbench.style import fmt_hz
@@ -37,18 +38,15 @@ def _save(fig, path: Path) -> None:
     fig.savefig(path, dpi=DPI)
 
 
-def plot_ladder(lad: dict, path: Path) -> None:
-    steps = lad["steps"]
-    nom = np.array([s["nominal_db"] for s in steps])
-    rd = np.array([s["reading_dbfs"] for s in steps])
-    err = np.array([s["error_db"] for s in steps])
-    uerr = np.array([s["expanded_error_uncertainty_db"] for s in steps])
-    region = [s["region"] for s in steps]
-    flagged = np.array([s["flagged"] for s in steps])
+def plot_ladder(lad, path: Path) -> None:
+    """Readings against the attenuator setting, and each step's error, of a LadderResult."""
+    c = lad.check
+    nom, rd, err, uerr = c.nominal_db, c.reading_dbfs, c.error_db, c.k * c.u_error_db
+    region, flagged = c.region, c.flagged
     fig = _figure(8.0, 7.0)
     ax1, ax2 = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
     span = np.linspace(nom.min(), nom.max(), 50)
-    ax1.plot(span, lad["offset_dbfs"] - span, color=C_GREY, lw=1, ls="--", label="ideal (reading = reference − step)")
+    ax1.plot(span, c.offset_dbfs - span, color=C_GREY, lw=1, ls="--", label="ideal (reading = reference − step)")
     styles = {"linear": (C_TRACE, "o", "linear"), "compressed": (C_FLOOR, "s", "compressed (dongle)"),
               "noise-limited": (C_GREY, "D", "noise-limited")}
     for reg, (col, mk, lab) in styles.items():
@@ -61,16 +59,16 @@ def plot_ladder(lad: dict, path: Path) -> None:
         ax2.plot(nom[flagged], err[flagged], "o", mfc="none", mec=C_BAD, ms=13, mew=2)
         for x, y in zip(nom[flagged], err[flagged]):
             ax2.annotate(f"{y:+.2f} dB", (x, y), textcoords="offset points", xytext=(8, 6), color=C_BAD, fontsize=9)
-    tol = lad["tolerance_db"]
+    tol = c.tolerance_db
     ax2.axhspan(-tol, tol, color="#DDDDDD", alpha=0.6, label=f"tolerance ±{tol:g} dB")
     ax2.axhline(0, color=C_GREY, lw=0.8)
     ax1.set_ylabel("tone reading (dBFS)")
-    ax1.set_title(f"Ladder at {_mhz(lad['center_hz'])}: readings against the attenuator setting")
+    ax1.set_title(f"Ladder at {_mhz(lad.center_hz)}: readings against the attenuator setting")
     ax1.legend(fontsize=8)
     ax1.grid(True, lw=0.3)
     ax2.set_xlabel("nominal attenuation (dB)")
     ax2.set_ylabel("error: measured − nominal (dB)")
-    ax2.set_title(f"step errors with ±{lad['k']:g}u bars", fontsize=10)
+    ax2.set_title(f"step errors with ±{c.k:g}u bars", fontsize=10)
     ax2.legend(fontsize=8, loc="best")
     ax2.grid(True, lw=0.3)
     _save(fig, path)
@@ -101,15 +99,15 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
     joining noisy points into a ripple that is not there), the tone losses beside them, and in the
     noise-figure panel the passive device's "NF = loss" reference at each tuning's whole-band loss."""
     curve = analysis.loss_vs_frequency
-    tone_losses = [x for x in analysis.losses if x["frequency_hz"] is not None]
+    tone_losses = [x for x in analysis.losses if x.frequency_hz is not None]
     if curve is None and not tone_losses:
         return False
     has_nf = curve is not None and bool(curve["frequency_hz"])
     fig = _figure(9.0, 7.5 if has_nf else 4.5)
     axes = fig.subplots(2 if has_nf else 1, 1, sharex=True, squeeze=False).ravel()
     ax1 = axes[0]
-    k = float(curve.get("k", 2.0)) if curve is not None else 2.0
-    xs = [x["frequency_hz"] / 1e6 for x in tone_losses]
+    k = COVERAGE_FACTOR
+    xs = [x.frequency_hz / 1e6 for x in tone_losses]
     if curve is not None and curve["has_loss"]:
         f = np.array(curve["frequency_hz"]) / 1e6
         xs += list(f)
@@ -119,19 +117,19 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
     markers = {"direct": ("s", C_FLOOR), "substitution": ("D", C_TONE)}
     seen = set()
     for x in tone_losses:
-        mk, col = markers.get(x["method"], ("o", C_GREY))
-        lab = None if x["method"] in seen else f"tone, {x['method']} (±U, k = 2)"
-        seen.add(x["method"])
-        ax1.errorbar([x["frequency_hz"] / 1e6], [x["insertion_loss_db"]], yerr=[x["expanded_uncertainty_db"]],
+        mk, col = markers.get(x.method, ("o", C_GREY))
+        lab = None if x.method in seen else f"tone, {x.method} (±U, k = 2)"
+        seen.add(x.method)
+        ax1.errorbar([x.frequency_hz / 1e6], [x.insertion_loss_db], yerr=[x.expanded_uncertainty_db],
                      fmt=mk, color=col, ms=7, capsize=4, label=lab, zorder=4)
     if len(set(np.round(xs, 6))) == 1:  # one frequency: a labelled point, not an empty axis
         for x in tone_losses:
-            ax1.annotate(f"{x['method']}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}",
-                         (x["frequency_hz"] / 1e6, x["insertion_loss_db"]), xytext=(10, 0),
+            ax1.annotate(f"{x.method}: {_pm(x.insertion_loss_db, x.expanded_uncertainty_db)}",
+                         (x.frequency_hz / 1e6, x.insertion_loss_db), xytext=(10, 0),
                          textcoords="offset points", va="center", fontsize=8)
         ax1.set_xlim(xs[0] - 0.075, xs[0] + 0.075)
-        centre = float(np.mean([x["insertion_loss_db"] for x in tone_losses]))
-        half = max(0.25, 3 * max(x["expanded_uncertainty_db"] for x in tone_losses))
+        centre = float(np.mean([x.insertion_loss_db for x in tone_losses]))
+        half = max(0.25, 3 * max(x.expanded_uncertainty_db for x in tone_losses))
         ax1.set_ylim(centre - half, centre + half)
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Insertion loss of the device under test against frequency")

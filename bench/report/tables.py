@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
+from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.session import Analysis
 
 
@@ -15,27 +16,27 @@ def csv_rows(analysis: Analysis) -> list[dict]:
     def add(section, quantity, frequency_hz, value, unit, expanded=None, method="", detail=""):
         rows.append({"section": section, "quantity": quantity, "frequency_hz": frequency_hz,
                      "value": value, "unit": unit, "expanded_uncertainty": expanded,
-                     "k": 2.0 if expanded is not None else None, "method": method, "detail": detail})
+                     "k": COVERAGE_FACTOR if expanded is not None else None, "method": method, "detail": detail})
 
     for c in analysis.captures:
         t = c.get("tone")
         if t and t.get("power_dbfs") is not None:
             u = t.get("u_power_db")
             add("capture", "tone_power", t.get("frequency_hz"), t["power_dbfs"], "dBFS",
-                None if u is None else 2 * u, "tone", c["name"])
+                None if u is None else COVERAGE_FACTOR * u, "tone", c["name"])
         if c.get("noise"):
             add("capture", "noise_density", c["center_hz"], c["noise"]["density_dbfs_per_hz"], "dBFS/Hz",
-                2 * c["noise"]["u_density_db"], "", c["name"])
+                COVERAGE_FACTOR * c["noise"]["u_density_db"], "", c["name"])
     for x in analysis.losses:
-        add("loss", "insertion_loss", x["frequency_hz"], x["insertion_loss_db"], "dB",
-            x["expanded_uncertainty_db"], x["method"])
-        if x["n_devices"] > 1:
-            add("loss", "insertion_loss_per_device", x["frequency_hz"], x["per_device_db"], "dB",
-                x["expanded_uncertainty_per_device_db"], x["method"])
+        add("loss", "insertion_loss", x.frequency_hz, x.insertion_loss_db, "dB", x.expanded_uncertainty_db, x.method)
+        if x.n_devices > 1:
+            add("loss", "insertion_loss_per_device", x.frequency_hz, x.per_device_db, "dB",
+                x.expanded_uncertainty_per_device_db, x.method)
     for lad in analysis.ladders:
-        for s in lad["steps"]:
-            add("ladder", "step_error", lad["frequency_hz"], s["error_db"], "dB", s["expanded_error_uncertainty_db"],
-                s["region"], f"nominal {s['nominal_db']:g} dB" + (" FLAGGED" if s["flagged"] else ""))
+        c = lad.check
+        for i, db in enumerate(c.nominal_db):
+            add("ladder", "step_error", lad.frequency_hz, float(c.error_db[i]), "dB", float(c.k * c.u_error_db[i]),
+                c.region[i], f"nominal {db:g} dB" + (" FLAGGED" if c.flagged[i] else ""))
     for n in analysis.noise_figure:
         add("noise_figure", "receiver_noise_figure", n["center_hz"], n["noise_figure_db"], "dB",
             n["expanded_uncertainty_db"], "y-factor", "whole band")
@@ -46,12 +47,12 @@ def csv_rows(analysis: Analysis) -> list[dict]:
     if curve is not None:
         for i, f in enumerate(curve["frequency_hz"]):
             add("vs_frequency", "receiver_noise_figure", f, curve["noise_figure_db"][i], "dB",
-                2 * curve["u_noise_figure_db"][i], "y-factor", "sub-band")
+                COVERAGE_FACTOR * curve["u_noise_figure_db"][i], "y-factor", "sub-band")
             if curve["insertion_loss_db"][i] is not None:
                 add("vs_frequency", "insertion_loss", f, curve["insertion_loss_db"][i], "dB",
-                    2 * curve["u_insertion_loss_db"][i], "noise source", "sub-band")
+                    COVERAGE_FACTOR * curve["u_insertion_loss_db"][i], "noise source", "sub-band")
                 add("vs_frequency", "dut_noise_figure", f, curve["dut_noise_figure_db"][i], "dB",
-                    2 * curve["u_dut_noise_figure_db"][i], "noise source", "sub-band")
+                    COVERAGE_FACTOR * curve["u_dut_noise_figure_db"][i], "noise source", "sub-band")
     for ex in analysis.external_noise:
         add("external_noise", "excess", ex["frequency_hz"], ex["excess_db"], "dB", ex["expanded_uncertainty_db"],
             "antenna/load", ex["band"])

@@ -48,21 +48,22 @@ def summary_lines(analysis: Analysis) -> list[str]:
     lines = []
     for x in analysis.losses:
         per = ""
-        if x["n_devices"] > 1:
-            per = f"; per device {_pm(x['per_device_db'], x['expanded_uncertainty_per_device_db'])}"
-        linear = x.get("dongle_linear") if x["method"] == "direct" else True
-        tags = headline_tags(x, clips, linear=linear)
-        lines.append(f"insertion loss ({x['method']}, device at {x['dut_attenuation_db']:g} dB) at "
-                     f"{_mhz(x['frequency_hz'])}: {_pm(x['insertion_loss_db'], x['expanded_uncertainty_db'])}{per}"
+        if x.n_devices > 1:
+            per = f"; per device {_pm(x.per_device_db, x.expanded_uncertainty_per_device_db)}"
+        linear = x.dongle_linear if x.method == "direct" else True
+        tags = headline_tags(x.to_dict(), clips, linear=linear)
+        lines.append(f"insertion loss ({x.method}, device at {x.dut_attenuation_db:g} dB) at "
+                     f"{_mhz(x.frequency_hz)}: {_pm(x.insertion_loss_db, x.expanded_uncertainty_db)}{per}"
                      f"{tags}")
     for lad in analysis.ladders:
-        flagged = [s for s in lad["steps"] if s["flagged"]]
-        text = (f"ladder at {_mhz(lad['center_hz'])}: {len(lad['steps'])} steps, dongle linear from "
-                f"{lad['usable_top_db']:g} to {lad['usable_bottom_db']:g} dB")
-        if lad["compression_db"] > 0:
-            text += f", compressed {lad['compression_db']:.2f} dB at the top"
-        if flagged:
-            text += "; off: " + ", ".join(f"{s['nominal_db']:g} dB ({s['error_db']:+.2f} dB)" for s in flagged)
+        c = lad.check
+        text = (f"ladder at {_mhz(lad.center_hz)}: {len(c.nominal_db)} steps, dongle linear from "
+                f"{c.usable_top_db:g} to {c.usable_bottom_db:g} dB")
+        if c.compression_db > 0:
+            text += f", compressed {c.compression_db:.2f} dB at the top"
+        if c.flagged.any():
+            text += "; off: " + ", ".join(f"{db:g} dB ({err:+.2f} dB)"
+                                          for db, err, f in zip(c.nominal_db, c.error_db, c.flagged) if f)
         lines.append(text)
     for n in analysis.noise_figure:
         text = (f"noise figure (receiver) at {_mhz(n['center_hz'])}: "

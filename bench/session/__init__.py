@@ -35,9 +35,8 @@ from rxbench.session.analysis import N_SUB_BANDS, Analysis, analyze_session
 from rxbench.session.bands import AMATEUR_BANDS, QUIET_GALACTIC, band_name
 from rxbench.session.external import loss_at
 from rxbench.session.folder import NOISE_ROLES, TONE_ROLES, Entry, Session, open_session
-from rxbench.session.tone import budget_dict
 
 __all__ = ["AMATEUR_BANDS", "N_SUB_BANDS", "NOISE_ROLES", "QUIET_GALACTIC", "TONE_ROLES", "Analysis",
-           "Entry", "Session", "analyze_session", "band_name", "budget_dict", "loss_at", "open_session"]
+           "Entry", "Session", "analyze_session", "band_name", "loss_at", "open_session"]
 
 

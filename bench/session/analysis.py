@@ -7,7 +7,9 @@ from dataclasses import dataclass, field
 from rxbench.analyze import Reading, noise_dict, read_capture, tone_dict
 from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
-from rxbench.dsp.uncertainty import DEFAULT_K
+from rxbench.methods.common import COVERAGE_FACTOR, N_SUB_BANDS
+from rxbench.methods.loss import LossResult
+from rxbench.dsp.units import db_from_power
 from rxbench.session.folder import TONE_ROLES, Entry, Session
 from rxbench.session.external import _external, _snr_costs
 from rxbench.session.grouping import _center_key, _groups
@@ -15,8 +17,6 @@ from rxbench.session.noise_source import _noise_source, _stitch
 from rxbench.session.tone import _tone_losses
 
 
-#: Sub-bands per capture for noise-source curves.
-N_SUB_BANDS = 8
 
 
 
@@ -27,8 +27,8 @@ class Analysis:
     session: Session
     readings: dict = field(default_factory=dict)  # Entry -> Reading
     captures: list = field(default_factory=list)
-    ladders: list = field(default_factory=list)
-    losses: list = field(default_factory=list)
+    ladders: list = field(default_factory=list)  # LadderResult
+    losses: list = field(default_factory=list)  # LossResult
     noise_figure: list = field(default_factory=list)
     loss_vs_frequency: dict | None = None
     devices: dict = field(default_factory=dict)  # device label -> stitched curve (several devices compared)
@@ -40,20 +40,20 @@ class Analysis:
     snr_cost: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
 
-    def best_loss(self, center_hz=None) -> dict | None:
+    def best_loss(self, center_hz=None) -> LossResult | None:
         """The tone-based loss with the smallest expanded uncertainty (at ``center_hz`` if given)."""
         cands = [x for x in self.losses
-                 if center_hz is None or _center_key(x["center_hz"]) == _center_key(center_hz)]
-        return min(cands, key=lambda x: x["expanded_uncertainty_db"], default=None)
+                 if center_hz is None or _center_key(x.center_hz) == _center_key(center_hz)]
+        return min(cands, key=lambda x: x.expanded_uncertainty_db, default=None)
 
     def summary(self) -> dict:
         best = self.best_loss()
         out = {
-            "insertion_loss_db": None if best is None else best["insertion_loss_db"],
-            "expanded_uncertainty_db": None if best is None else best["expanded_uncertainty_db"],
-            "method": None if best is None else best["method"],
-            "per_device_db": None if best is None else best["per_device_db"],
-            "frequency_hz": None if best is None else best["frequency_hz"],
+            "insertion_loss_db": None if best is None else best.insertion_loss_db,
+            "expanded_uncertainty_db": None if best is None else best.expanded_uncertainty_db,
+            "method": None if best is None else best.method,
+            "per_device_db": None if best is None else best.per_device_db,
+            "frequency_hz": None if best is None else best.frequency_hz,
         }
         nfs = [n for n in self.noise_figure if n.get("noise_figure_db") is not None]
         if nfs:
@@ -75,8 +75,8 @@ class Analysis:
             "captures": self.captures,
             "incomplete": [p.name for p in s.incomplete],
             "skipped": [{"file": p.name, "reason": why} for p, why in s.skipped],
-            "ladder": self.ladders,
-            "losses": self.losses,
+            "ladder": [x.to_dict() for x in self.ladders],
+            "losses": [x.to_dict() for x in self.losses],
             "noise_figure": self.noise_figure,
             "loss_vs_frequency": self.loss_vs_frequency,
             "devices": self.devices,
@@ -86,7 +86,7 @@ class Analysis:
             "retune_steps": self.retune_steps,
             "external_noise": self.external_noise,
             "snr_cost": self.snr_cost,
-            "coverage_factor": DEFAULT_K,
+            "coverage_factor": COVERAGE_FACTOR,
             "warnings": self.warnings,
         }
 

@@ -4,10 +4,9 @@ from __future__ import annotations
 
 
 from rxbench.dsp.bands import AMATEUR_BANDS
+from rxbench.methods.external import QUIET_GALACTIC
 
-
-#: Name of the prediction with galactic noise added to the quietest man-made category.
-QUIET_GALACTIC = "quiet-rural + galactic"
+__all__ = ["AMATEUR_BANDS", "QUIET_GALACTIC", "band_name"]
 
 
 def band_name(frequency_hz: float | None) -> str:

@@ -6,7 +6,7 @@ from rxbench.analyze import CENTER_TOLERANCE_HZ, setup_difference, signal_differ
 from rxbench.session.folder import Entry
 
 
-def mismatch(a: Entry, b: Entry) -> str | None:
+def not_alike(a: Entry, b: Entry) -> str | None:
     """Why two captures cannot be compared, or None when they were taken alike."""
     return setup_difference(a.capture, b.capture)
 
@@ -14,7 +14,7 @@ def mismatch(a: Entry, b: Entry) -> str | None:
 def _compatible(entries: list[Entry], ref: Entry, what: str, warnings: list[str]) -> list[Entry]:
     keep = []
     for e in entries:
-        why = mismatch(e, ref)
+        why = not_alike(e, ref)
         if why is None:
             keep.append(e)
         else:
