@@ -142,6 +142,7 @@ def run_console() -> None:
     interrupts.install()  # first: a signal from here on is one line and its own exit status
     try:
         code = main(sys.argv[1:])
+        interrupts.finished()
     except BaseException as exc:  # a signal during start-up (imports) or while parsing
         if interrupts.received() is None and not isinstance(exc, KeyboardInterrupt):
             raise

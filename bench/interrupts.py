@@ -46,6 +46,14 @@ def install() -> None:
         signal.signal(signum, _handler)
 
 
+def finished() -> None:
+    """The run's work is done: a signal from now on is ignored, so one that lands while the
+    interpreter shuts down (after Python has put the default handlers back) cannot turn a complete
+    run into a killed one."""
+    for signum in NAMES:
+        signal.signal(signum, signal.SIG_IGN)
+
+
 def received() -> int | None:
     """The first signal that arrived, or None."""
     return _received[0] if _received else None
@@ -61,4 +69,4 @@ def describe(exc: BaseException | None = None) -> tuple[str, int]:
     return NAMES.get(signum, "interrupted"), 128 + int(signum)
 
 
-__all__ = ["Signalled", "install", "received", "describe"]
+__all__ = ["Signalled", "install", "finished", "received", "describe"]

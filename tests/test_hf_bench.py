@@ -202,7 +202,7 @@ duration_s = 0.1
     truth = BenchTruth(settle_s=0.0, drift_hz_per_s=0.0)
     run_session(parse_plan(text), tmp_path / "s", SimulatedBench(truth, seed=32), yes=True)
     a = analyze_session(open_session(tmp_path / "s"))
-    direct = {(x["device"], round(x["frequency_hz"] / 1e5)): x for x in a.losses if x["method"] == "direct"}
+    direct = {(x.device, round(x.frequency_hz / 1e5)): x.to_dict() for x in a.losses if x.method == "direct"}
     assert len(direct) == 4  # the two devices' captures at one frequency are not pooled
     for (device, f10), x in direct.items():
         true = truth.dut_loss_db(f10 * 1e5, device)
