@@ -17,7 +17,7 @@ from rxbench.recordings import Capture
 from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
 from rxbench.dsp.health import Health, HealthAccumulator
 from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
-from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, same_signal
+from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, on_dc, same_signal
 from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
 from rxbench.dsp.units import db_from_power
 
@@ -223,7 +223,7 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: b
         )
     if psd.one_sided:
         return out
-    if abs(tone.offset_hz) <= floor.dc_halfwidth_hz + 4 * psd.bin_width_hz:
+    if on_dc(tone.offset_hz, psd.bin_width_hz, floor.dc_halfwidth_hz):
         out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz sits on the DC spike; tune it away from the centre")
     if abs(tone.offset_hz) > floor.edge_hz:
         out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz is near the band edge (anti-alias roll-off)")
