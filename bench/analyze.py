@@ -379,6 +379,15 @@ def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> l
     return warnings
 
 
+def add_noise_band_option(parser) -> None:
+    """``--noise-band LO HI``: where in the band the noise floor of every capture read is taken."""
+    from rxbench.quantities import arg as quantity_arg
+
+    parser.add_argument("--noise-band", type=quantity_arg("offset"), nargs=2, metavar=("LO", "HI"),
+                        help="take the noise floor between these offsets from centre, Hz (default: the whole band, "
+                             "or near the signals when the floor is not flat)")
+
+
 def add_drift_option(parser) -> None:
     """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`signal_differences`)."""
     parser.add_argument("--drift-ppm", type=float, default=DEFAULT_PPM, metavar="PPM",
@@ -442,9 +451,9 @@ def require_same_signal(readings, *, drift_ppm: float = DEFAULT_PPM) -> None:
 
 
 def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = None,
-               drift_ppm: float = DEFAULT_PPM):
-    """Read the tone of every capture alike (one FFT length, the tone of the first capture), and
-    refuse captures that are not the same signal (:func:`require_same_signal`).
+               drift_ppm: float = DEFAULT_PPM, noise_band_hz: tuple[float, float] | None = None):
+    """Read the tone of every capture alike (one FFT length, one noise band, the tone of the first
+    capture), and refuse captures that are not the same signal (:func:`require_same_signal`).
 
     Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
     """
@@ -455,7 +464,7 @@ def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = 
 
     def read(cap, near):
         try:
-            return read_capture(cap, near_hz=near, nperseg=nperseg)
+            return read_capture(cap, near_hz=near, nperseg=nperseg, noise_band_hz=noise_band_hz)
         except ValueError as exc:
             raise UsageError(f"{cap.path}: {exc}") from None
 

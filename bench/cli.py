@@ -7,6 +7,7 @@
 from __future__ import annotations
 
 import argparse
+import re
 import gc
 import importlib
 import os
@@ -43,7 +44,14 @@ COMMANDS = (
 
 
 class _Parser(argparse.ArgumentParser):
-    """An ArgumentParser whose errors are one line on stderr and exit code 2."""
+    """An ArgumentParser whose errors are one line on stderr and exit code 2, and which takes a
+    negative number in exponent form (``--near -60e3``, ``--noise-band -110e3 -20e3``) as a value:
+    argparse's own pattern for negative numbers knows only ``-60000`` and ``-6.0``, and reads
+    ``-60e3`` as an unknown option."""
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self._negative_number_matcher = re.compile(r"^-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$")
 
     def error(self, message):  # noqa: D102 - argparse hook
         self.exit(2, f"{self.prog}: error: {message}\n")

@@ -193,3 +193,41 @@ def test_session_leaves_out_a_capture_of_another_signal(tmp_path, capsys):
     assert not any("not the signal" in w for w in a.warnings)
     code = main(["analyze", str(tmp_path), "--drift-ppm", "-3"])
     assert code == 2 and "--drift-ppm" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------------------------
+# The methods themselves refuse: no view (command, session, Python API) can compare two signals
+
+
+def test_the_loss_and_ladder_methods_refuse_readings_of_two_signals(tmp_path):
+    from rxbench.errors import UnlikeCapturesError
+    from rxbench.methods.common import pool
+    from rxbench.methods.ladder import ladder_check
+    from rxbench.methods.loss import direct_loss, substitution_loss
+    from rxbench.recordings import open_capture
+
+    rng = np.random.default_rng(1208)
+    apart = 3 * BIN_HZ + 1e-6 * CENTER_HZ + BIN_HZ  # one bin beyond the tolerance
+
+    def reading(name, offset_hz, level_dbfs):
+        # each read on its own, as a notebook user would (no read_tones, so no check before the method)
+        from rxbench.analyze import read_capture
+
+        return read_capture(open_capture(__import__("pathlib").Path(_capture(
+            tmp_path, name, rng, offset_hz=offset_hz, level_dbfs=level_dbfs))), near_hz=offset_hz)
+
+    thru = pool([reading("thru", 25e3, -25.0)])
+    other = pool([reading("other", 25e3 + apart, -28.0)])
+    dut = pool([reading("dut", 25e3, -28.0)])
+    with pytest.raises(UnlikeCapturesError, match=r"other.sigmf-meta: tone at .* is not the signal of thru"):
+        direct_loss(thru, other)
+    assert direct_loss(thru, dut).insertion_loss_db == pytest.approx(3.0, abs=0.3)
+    assert direct_loss(thru, dut).settings["drift_ppm"] == 1.0
+    # widened by the caller, as --drift-ppm does (the 1-bin excess is 244 Hz = 1.7 ppm of 144.3 MHz)
+    assert direct_loss(thru, other, drift_ppm=5.0).insertion_loss_db == pytest.approx(3.0, abs=0.3)
+    steps = {0.0: thru, 10.0: pool([reading("s10", 25e3, -35.0)]), 20.0: pool([reading("s20", 25e3, -45.0)])}
+    with pytest.raises(UnlikeCapturesError, match="other.sigmf-meta"):
+        substitution_loss({**steps, 10.0: other}, dut)
+    with pytest.raises(UnlikeCapturesError, match="other.sigmf-meta"):
+        ladder_check({**steps, 30.0: other})
+    assert ladder_check(steps).settings["drift_ppm"] == 1.0

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.analyze import add_drift_option
+from rxbench.analyze import add_drift_option, add_noise_band_option
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.output import Progress, add_json_option, emit
 from rxbench.report import summary_lines, write_report
@@ -24,15 +24,16 @@ def add_parser(sub) -> None:
     p.add_argument("--overwrite", action="store_true",
                    help="write the report into report/ even if it exists, replacing the earlier report")
     add_drift_option(p)
+    add_noise_band_option(p)
     add_json_option(p)
     p.set_defaults(func=run)
 
 
 def analyze_and_report(folder, *, overwrite: bool = False, extra_markdown=None, extra_json=None, progress=None,
-                       drift_ppm: float = DEFAULT_PPM):
+                       drift_ppm: float = DEFAULT_PPM, noise_band_hz=None):
     """Open, analyse and report a session; returns (analysis, report folder)."""
     session = open_session(folder)
-    analysis = analyze_session(session, progress=progress, drift_ppm=drift_ppm)
+    analysis = analyze_session(session, progress=progress, drift_ppm=drift_ppm, noise_band_hz=noise_band_hz)
     report_dir = write_report(analysis, overwrite=overwrite, extra_markdown=extra_markdown, extra_json=extra_json)
     return analysis, report_dir
 
@@ -44,7 +45,7 @@ def run(args: argparse.Namespace) -> int:
         show.update(f"reading {name}", i, n)
 
     analysis, report_dir = analyze_and_report(args.session, overwrite=args.overwrite, progress=progress,
-                                              drift_ppm=args.drift_ppm)
+                                              drift_ppm=args.drift_ppm, noise_band_hz=args.noise_band)
     show.clear()
     result = analysis.to_dict()
     result["report_dir"] = str(report_dir)

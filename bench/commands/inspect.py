@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.analyze import INTERMITTENT_BELOW, noise_dict, read_capture, tone_dict
+from rxbench.analyze import INTERMITTENT_BELOW, add_noise_band_option, noise_dict, read_capture, tone_dict
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
@@ -21,9 +21,7 @@ def add_parser(sub) -> None:
     p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--snr-bandwidth", type=quantity_arg("bandwidth"), default=DEFAULT_SNR_BANDWIDTH_HZ, metavar="HZ",
                    help="noise bandwidth for the SNR, Hz (default %(default)g)")
-    p.add_argument("--noise-band", type=quantity_arg("offset"), nargs=2, metavar=("LO", "HI"),
-                   help="take the noise floor between these offsets from centre, Hz (default: the whole band, "
-                        "or near the signals when the floor is not flat)")
+    add_noise_band_option(p)
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
     add_capture_options(p)
     add_json_option(p)

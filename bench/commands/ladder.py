@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.analyze import add_drift_option, read_tones
+from rxbench.analyze import add_drift_option, add_noise_band_option, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import pool
 from rxbench.methods.ladder import DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, ladder_check
@@ -37,6 +37,7 @@ def add_parser(sub) -> None:
     p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
     add_drift_option(p)
+    add_noise_band_option(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
@@ -61,10 +62,10 @@ def run(args: argparse.Namespace) -> int:
     if len(dbs) < 3:
         raise UsageError(f"--step: a ladder check needs at least 3 steps, got {len(dbs)}")
     readings, warnings = read_tones([cap for _, cap in steps], near_hz=args.near, nperseg=args.nperseg,
-                                    drift_ppm=args.drift_ppm)
+                                    drift_ppm=args.drift_ppm, noise_band_hz=args.noise_band)
     result = ladder_check({db: pool([r], missing_ok=True) for db, r in zip(dbs, readings)},
                           tolerance_db=args.tolerance_db, linearity_db=args.linearity_db,
-                          reference_db=args.reference_step)
+                          reference_db=args.reference_step, drift_ppm=args.drift_ppm)
     warnings += result.warnings
     out = result.to_dict()
     out["warnings"] = warnings

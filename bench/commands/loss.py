@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 
-from rxbench.analyze import add_drift_option, read_tones
+from rxbench.analyze import add_drift_option, add_noise_band_option, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import SWR_FROM_OPTIONS, has_tone, pool
 from rxbench.methods.loss import direct_loss, substitution_loss
@@ -59,6 +59,7 @@ def add_parser(sub) -> None:
     p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
     add_drift_option(p)
+    add_noise_band_option(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
@@ -123,7 +124,7 @@ def _direct(args, readings, n_thru, n_dut):
     if after_r:
         p["thru after"] = pool(after_r, "thru-after")
     result = direct_loss(p["thru"], p["DUT"], p.get("thru after"), linearity_db=args.linearity_db, swr=_swr(args),
-                         n_devices=2 if args.pair else 1)
+                         n_devices=2 if args.pair else 1, drift_ppm=args.drift_ppm)
     if after_r:
         rows = [("thru before", p["thru"], n_thru), ("DUT", p["DUT"], n_dut),
                 ("thru after", p["thru after"], len(after_r)),
@@ -145,7 +146,7 @@ def _substitution(args, readings, steps_db, n_dut):
     dut = pool(dut_r, "DUT")
     result = substitution_loss(steps, dut, dut_attenuation_db=0.0 if args.dut_step is None else args.dut_step,
                                tolerance_db=args.atten_tolerance_db, swr=_swr(args),
-                               n_devices=2 if args.pair else 1)
+                               n_devices=2 if args.pair else 1, drift_ppm=args.drift_ppm)
     lo, hi = result.loss.bracket_db
     rows = [(f"step {lo:g} dB", (steps[lo].dbfs, steps[lo].u_db), 1), ("DUT", (dut.dbfs, dut.u_db), n_dut),
             (f"step {hi:g} dB", (steps[hi].dbfs, steps[hi].u_db), 1)]
@@ -157,7 +158,7 @@ def run(args: argparse.Namespace) -> int:
     if method == "direct":
         captures = [capture_from_args(p, args) for p in (*args.thru, *args.dut, *args.thru_after)]
         readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
-                                        drift_ppm=args.drift_ppm)
+                                        drift_ppm=args.drift_ppm, noise_band_hz=args.noise_band)
         result, rows = _direct(args, readings, len(args.thru), len(args.dut))
     else:
         steps = [step_capture_from_args(s, args) for s in args.step]
@@ -168,7 +169,7 @@ def run(args: argparse.Namespace) -> int:
         dbs = [dbs[i] for i in order]
         captures = [steps[i][1] for i in order] + [capture_from_args(p, args) for p in args.dut]
         readings, warnings = read_tones(captures, near_hz=args.near, nperseg=args.nperseg,
-                                        drift_ppm=args.drift_ppm)
+                                        drift_ppm=args.drift_ppm, noise_band_hz=args.noise_band)
         result, rows, more = _substitution(args, readings, dbs, len(args.dut))
         warnings += more
     warnings += result.warnings

@@ -10,7 +10,8 @@ from typing import Mapping
 import numpy as np
 
 from rxbench import keys
-from rxbench.analyze import capture_start_s, pool_tones, tone_db
+from rxbench.analyze import capture_start_s, pool_tones, require_same_signal, tone_db
+from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.ladder import mismatch_components
 from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
 
@@ -115,6 +116,17 @@ def pool(readings, role: str = "", *, missing_ok: bool = False) -> PooledTone:
 def has_tone(reading) -> bool:
     """Does the reading hold a tone above the noise?"""
     return reading is not None and math.isfinite(tone_db(reading)[0])
+
+
+def require_one_signal(*groups: PooledTone | None, drift_ppm: float = DEFAULT_PPM) -> None:
+    """Refuse pooled readings whose tones are not one signal: a tone elsewhere than the others' (beyond
+    3 bins + ``drift_ppm``) or on the DC spike raises UnlikeCapturesError naming the captures
+    (:func:`rxbench.analyze.require_same_signal`). Every tone method calls this on its inputs, so no
+    view (command, session, Python API) can compare two different signals; readings without a tone
+    are the pooling's business (:func:`pool`)."""
+    readings = [r for g in groups if g is not None for r in g.readings if has_tone(r)]
+    if readings:
+        require_same_signal(readings, drift_ppm=drift_ppm)
 
 
 def reading_row(reading, **more) -> dict:

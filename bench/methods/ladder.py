@@ -13,7 +13,8 @@ import numpy as np
 
 from rxbench.dsp import ladder as ladder_mod
 from rxbench.errors import MeasurementError
-from rxbench.methods.common import PooledTone
+from rxbench.dsp.same_signal import DEFAULT_PPM
+from rxbench.methods.common import PooledTone, require_one_signal
 
 #: Defaults of the check, defined once (:mod:`rxbench.dsp.ladder`).
 DEFAULT_TOLERANCE_DB = ladder_mod.DEFAULT_TOLERANCE_DB
@@ -86,11 +87,14 @@ class LadderResult:
 
 
 def ladder_check(steps: Mapping[float, PooledTone], *, tolerance_db: float = DEFAULT_TOLERANCE_DB,
-                 linearity_db: float = DEFAULT_LINEARITY_DB, reference_db: float | None = None) -> LadderResult:
+                 linearity_db: float = DEFAULT_LINEARITY_DB, reference_db: float | None = None,
+                 drift_ppm: float = DEFAULT_PPM) -> LadderResult:
     """Check a ladder: attenuator setting (dB) -> pooled thru readings, three settings or more.
 
-    Raises MeasurementError when the readings allow no check.
+    Raises UnlikeCapturesError when the steps' tones are not one signal (3 bins + ``drift_ppm``;
+    a step lost in the noise is allowed), MeasurementError when the readings allow no check.
     """
+    require_one_signal(*steps.values(), drift_ppm=drift_ppm)
     steps = dict(sorted(steps.items()))
     if len(steps) < 3:
         raise MeasurementError(f"{len(steps)} attenuator setting(s); the ladder check needs 3 or more")
@@ -116,5 +120,5 @@ def ladder_check(steps: Mapping[float, PooledTone], *, tolerance_db: float = DEF
     first = next(iter(steps.values()))
     return LadderResult(c, tuple(steps[float(db)] for db in c.nominal_db), first.center_hz,
                         settings={"tolerance_db": tolerance_db, "linearity_db": linearity_db,
-                                  "reference_db": reference_db},
+                                  "reference_db": reference_db, "drift_ppm": drift_ppm},
                         warnings=tuple(warnings))

@@ -17,8 +17,9 @@ from rxbench import keys
 from rxbench.dsp import ladder as ladder_mod
 from rxbench.dsp.uncertainty import Component, coverage_factor
 from rxbench.errors import MeasurementError
-from rxbench.methods.common import (SWR_FROM_OPTIONS, PooledTone, budget_rows, noted, pool,
-                                    reading_row, with_aliases, with_impedance_mismatch)
+from rxbench.dsp.same_signal import DEFAULT_PPM
+from rxbench.methods.common import (SWR_FROM_OPTIONS, PooledTone, budget_rows, noted, pool, reading_row,
+                                    require_one_signal, with_aliases, with_impedance_mismatch)
 
 #: Old key names of a loss result (old -> new), kept for one release.
 ALIASES = {"standard_uncertainty_db": "u_db", "k": "coverage_factor", "effective_dof": "dof_eff",
@@ -174,7 +175,7 @@ def direct_loss(thru: PooledTone, dut: PooledTone, thru_after: PooledTone | None
                 linearity_db: float | None = None, linearity_how: str = "give --linearity-db from a ladder "
                 "check, or use substitution", swr: Mapping | None = None,
                 swr_given_by: Mapping[str, str] = SWR_FROM_OPTIONS, n_devices: int = 1,
-                dut_attenuation_db: float = 0.0) -> LossResult:
+                dut_attenuation_db: float = 0.0, drift_ppm: float = DEFAULT_PPM) -> LossResult:
     """Direct insertion loss: the thru reading minus the DUT reading at one generator level.
 
     Parameters
@@ -193,12 +194,17 @@ def direct_loss(thru: PooledTone, dut: PooledTone, thru_after: PooledTone | None
         Identical devices in the path (2: a back-to-back pair).
     dut_attenuation_db : float
         The attenuator setting of both captures.
+    drift_ppm : float
+        How far the tone may move between the captures (ppm of the centre, on top of 3 bins).
 
     Raises
     ------
+    UnlikeCapturesError
+        The captures do not hold the same signal (:func:`~rxbench.methods.common.require_one_signal`).
     MeasurementError
         The readings cannot give a loss (e.g. the DUT does not lie between two thrus in time).
     """
+    require_one_signal(thru, dut, thru_after, drift_ppm=drift_ppm)
     warnings: list[str] = []
     kw: dict = {}
     times_from = None
@@ -232,7 +238,7 @@ def direct_loss(thru: PooledTone, dut: PooledTone, thru_after: PooledTone | None
         loss, n_devices, dut.center_hz, dut.offset_hz, dut_attenuation_db,
         captures={role: g.names for role, g in groups.items()},
         readings={role: [reading_row(r) for r in g.readings] for role, g in groups.items()},
-        settings={"linearity_db": linearity_db, **_swr_settings(swr)},
+        settings={"linearity_db": linearity_db, **_swr_settings(swr), "drift_ppm": drift_ppm},
         times_from=times_from, warnings=tuple(warnings))
 
 
@@ -270,7 +276,7 @@ def generator_drift(steps: Mapping[float, PooledTone], dut: PooledTone) -> tuple
 def substitution_loss(steps: Mapping[float, PooledTone], dut: PooledTone, *, dut_attenuation_db: float = 0.0,
                       tolerance_db: float | None = None, tolerance_how: str = "give --atten-tolerance-db",
                       swr: Mapping | None = None, swr_given_by: Mapping[str, str] = SWR_FROM_OPTIONS,
-                      n_devices: int = 1) -> LossResult:
+                      n_devices: int = 1, drift_ppm: float = DEFAULT_PPM) -> LossResult:
     """Insertion loss by substitution: the ladder setting that reads like the DUT, interpolated.
 
     Parameters
@@ -282,15 +288,18 @@ def substitution_loss(steps: Mapping[float, PooledTone], dut: PooledTone, *, dut
     tolerance_db : float or None
         The attenuator's setting tolerance, +/- dB (rectangular); None: not stated (warned, and the
         budget's attenuator lines say ``tolerance_how``).
-    swr, swr_given_by, n_devices
+    swr, swr_given_by, n_devices, drift_ppm
         As for :func:`direct_loss`.
 
     Raises
     ------
+    UnlikeCapturesError
+        The steps and the DUT do not hold the same signal.
     MeasurementError
         Fewer than two steps, a ladder that does not fall with attenuation, or a DUT reading
         outside the ladder (never extrapolated).
     """
+    require_one_signal(*steps.values(), dut, drift_ppm=drift_ppm)
     warnings: list[str] = []
     steps = dict(sorted(steps.items()))
     if len(steps) < 2:
@@ -327,5 +336,5 @@ def substitution_loss(steps: Mapping[float, PooledTone], dut: PooledTone, *, dut
         captures={"dut": dut.names, "ladder": {f"{db:g}": p.names for db, p in steps.items()}},
         readings={"steps": [reading_row(r, nominal_db=db) for db, p in steps.items() for r in p.readings],
                   "dut": [reading_row(r) for r in dut.readings]},
-        settings={"tolerance_db": tolerance_db, **_swr_settings(swr)},
+        settings={"tolerance_db": tolerance_db, **_swr_settings(swr), "drift_ppm": drift_ppm},
         warnings=tuple(warnings))

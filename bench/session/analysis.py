@@ -39,6 +39,7 @@ class Analysis:
     external_noise: list = field(default_factory=list)
     snr_cost: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
+    settings: dict = field(default_factory=dict)  # how the captures were read (noise band, drift tolerance)
 
     def best_loss(self, center_hz=None) -> LossResult | None:
         """The tone-based loss with the smallest expanded uncertainty (at ``center_hz`` if given)."""
@@ -87,6 +88,7 @@ class Analysis:
             "external_noise": self.external_noise,
             "snr_cost": self.snr_cost,
             "coverage_factor": COVERAGE_FACTOR,
+            "settings": self.settings,
             "warnings": self.warnings,
         }
 
@@ -109,7 +111,7 @@ def _capture_dict(e: Entry, r: Reading | None, error: str | None) -> dict:
 
 
 def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_ppm: float = DEFAULT_PPM,
-                    progress=None) -> Analysis:
+                    noise_band_hz: tuple[float, float] | None = None, progress=None) -> Analysis:
     """Read every capture of ``session`` once and run every method its roles support.
 
     Parameters
@@ -120,6 +122,8 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
     drift_ppm : float
         How far the tone may move between captures of one loss or ladder, ppm of the centre frequency
         on top of 3 bins; a capture whose tone lies farther off is left out with a warning.
+    noise_band_hz : (float, float), optional
+        Take every capture's noise floor between these offsets from centre, Hz (as ``--noise-band``).
     progress : callable, optional
         Called as ``progress(i, n, name)`` before each capture is read.
 
@@ -127,7 +131,8 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
     -------
     Analysis
     """
-    a = Analysis(session)
+    a = Analysis(session, settings={"n_sub_bands": n_sub_bands, "drift_ppm": drift_ppm,
+                                    "noise_band_hz": None if noise_band_hz is None else sorted(noise_band_hz)})
     a.warnings.extend(session.warnings)
     for e in session.entries:
         if e.dropped_samples:
@@ -138,7 +143,8 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
         if progress is not None:
             progress(i, n, e.name)
         try:
-            r = read_capture(e.capture, want_tone=e.role in TONE_ROLES, near_hz=e.tone_offset_hz)
+            r = read_capture(e.capture, want_tone=e.role in TONE_ROLES, near_hz=e.tone_offset_hz,
+                             noise_band_hz=noise_band_hz)
         except RxbenchError as exc:
             a.warnings.append(f"{e.name}: {exc}; skipped")
             a.captures.append(_capture_dict(e, None, str(exc)))

@@ -12,7 +12,8 @@ from dataclasses import replace
 
 from typing import TYPE_CHECKING
 
-from rxbench.errors import MeasurementError
+from rxbench.errors import MeasurementError, UnlikeCapturesError
+from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.methods.common import SWR_FROM_PLAN, PooledTone, has_tone, pool
 from rxbench.methods.ladder import LadderResult, ladder_check
 from rxbench.methods.loss import direct_loss, substitution_loss
@@ -27,7 +28,7 @@ def _pool(entries: list[Entry], readings: dict) -> PooledTone:
     return pool([readings[e] for e in entries])
 
 
-def _ladder(center, steps: list[Entry], readings, warnings) -> tuple[LadderResult | None, dict]:
+def _ladder(center, steps: list[Entry], readings, warnings, drift_ppm: float) -> tuple[LadderResult | None, dict]:
     """Check the ladder at one centre frequency; returns (result or None, pooled readings by dB)."""
     where = f"ladder at {_mhz(center)}"
     usable = []
@@ -46,8 +47,8 @@ def _ladder(center, steps: list[Entry], readings, warnings) -> tuple[LadderResul
         by_db.setdefault(e.attenuation_db, []).append(e)
     pooled = {db: _pool(es, readings) for db, es in sorted(by_db.items())}
     try:
-        result = ladder_check(pooled)
-    except MeasurementError as exc:
+        result = ladder_check(pooled, drift_ppm=drift_ppm)
+    except (MeasurementError, UnlikeCapturesError) as exc:
         warnings.append(f"{where}: no check: {exc}")
         return None, pooled
     warnings.extend(f"{where}: {w}" for w in result.warnings)
@@ -59,7 +60,7 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift
     where = f"loss at {_mhz(center)}"
     group = _same_signal(group, readings, where, warnings, drift_ppm)
     steps = [e for e in group if e.role == "step"]
-    ladder, pooled_ladder = _ladder(center, steps, readings, warnings) if steps else (None, {})
+    ladder, pooled_ladder = _ladder(center, steps, readings, warnings, drift_ppm) if steps else (None, {})
     if ladder is not None:
         analysis.ladders.append(ladder)
     duts_all = [e for e in group if e.role == "dut"]
@@ -80,7 +81,7 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift
         thrus = [e for e in thrus_all if e.attenuation_or_zero == att]
         thrus = _compatible(thrus, duts[0], f"direct {where}", warnings)
         if thrus:
-            _direct(center, att, dut, duts, thrus, readings, ladder, n_dev, swr, analysis, device)
+            _direct(center, att, dut, duts, thrus, readings, ladder, n_dev, swr, analysis, device, drift_ppm)
         elif not pooled_ladder:
             warnings.append(f"{where}: DUT captured at {att:g} dB but no thru at that setting and no ladder; "
                             "no loss")
@@ -100,8 +101,8 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift
             loss = substitution_loss(pooled_ladder, dut, dut_attenuation_db=att,
                                      tolerance_db=max(tols) if tols else None,
                                      tolerance_how="plan: [attenuator] tolerance_db", swr=swr,
-                                     swr_given_by=SWR_FROM_PLAN, n_devices=n_dev)
-        except MeasurementError as exc:
+                                     swr_given_by=SWR_FROM_PLAN, n_devices=n_dev, drift_ppm=drift_ppm)
+        except (MeasurementError, UnlikeCapturesError) as exc:
             warnings.append(f"substitution {where}: {exc}")
             continue
         warnings.extend(f"substitution {where}: {w}" for w in loss.warnings)
@@ -109,7 +110,7 @@ def _tone_losses(center, group: list[Entry], readings, analysis: Analysis, drift
 
 
 def _direct(center, att, dut: PooledTone, duts: list[Entry], thrus: list[Entry], readings, ladder, n_dev, swr,
-            analysis, device: str = "") -> None:
+            analysis, device: str = "", drift_ppm: float = DEFAULT_PPM) -> None:
     """The direct loss from the thrus at the DUT's setting: the thrus before the DUT, and those after
     it (when the captures give their times) to take out linear drift."""
     warnings = analysis.warnings
@@ -133,8 +134,9 @@ def _direct(center, att, dut: PooledTone, duts: list[Entry], thrus: list[Entry],
             how = "the ladder check does not show the dongle linear between these levels; prefer the substitution loss"
     try:
         loss = direct_loss(before, dut, after, linearity_db=linearity_db, linearity_how=how, swr=swr,
-                           swr_given_by=SWR_FROM_PLAN, n_devices=n_dev, dut_attenuation_db=att)
-    except MeasurementError as exc:
+                           swr_given_by=SWR_FROM_PLAN, n_devices=n_dev, dut_attenuation_db=att,
+                           drift_ppm=drift_ppm)
+    except (MeasurementError, UnlikeCapturesError) as exc:
         warnings.append(f"{where}: {exc}")
         return
     warnings.extend(f"{where}: {w}" for w in loss.warnings)
