@@ -93,3 +93,17 @@ def test_the_session_reads_every_capture_in_the_named_band(tmp_path, capsys):
         assert c["noise"]["band_hz"] == [pytest.approx(35e3, abs=1e3), pytest.approx(55e3, abs=1e3)]
     (loss,) = out["losses"]
     assert loss["insertion_loss_db"] == pytest.approx(3.0, abs=0.1)
+
+
+def test_the_gain_method_takes_its_noise_density_from_the_named_band(tmp_path, capsys):
+    # NF = P_in - C/N0 - kT0 (gain method): with the floor from the empty stopband, N0 reads 40 dB low and
+    # the NF 40 dB low with it; from the passband it is the truth's. The level is invented; only the
+    # difference between the two bands is checked against the filter's 40 dB.
+    rng = np.random.default_rng(1304)
+    tone = _capture(tmp_path, "tone", rng, -20.0)
+    inband = _json(capsys, "nf", "--tone", tone, "--level-dbm", "-60", "--noise-band", "35e3", "55e3")["gain_method"]
+    stop = _json(capsys, "nf", "--tone", tone, "--level-dbm", "-60", "--noise-band", "-110e3", "-20e3")["gain_method"]
+    assert inband["cn0_dbhz"] == pytest.approx(_truth_snr_db(-20.0), abs=0.5)
+    assert inband["noise_figure_db"] - stop["noise_figure_db"] == pytest.approx(40.0, abs=1.0)
+    code = main(["nf", "--hot", tone, "--cold", tone, "--enr-db", "15", "--noise-band", "1e3", "2e3"])
+    assert code == 2 and "--noise-band applies to the gain method" in capsys.readouterr().err

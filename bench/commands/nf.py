@@ -14,7 +14,8 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.analyze import accumulate, choose_nperseg, health_warnings, read_capture, require_same_signal
+from rxbench.analyze import (accumulate, add_noise_band_option, choose_nperseg, health_warnings, read_capture,
+                             require_same_signal)
 from rxbench.enr import read_enr_table
 from rxbench.files import check_output
 from rxbench.errors import MeasurementError, UsageError
@@ -69,6 +70,7 @@ def add_parser(subparsers) -> None:
     p.add_argument("--sub-bands", type=int, default=16, metavar="N",
                    help="sub-bands across each capture's usable band (default %(default)d)")
     p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default 4096, shorter for short captures)")
+    add_noise_band_option(p)  # the gain method's noise density (the Y-factor uses band powers)
     p.add_argument("--csv", metavar="FILE", help="write the curve (NF and loss against frequency) to this CSV file")
     p.add_argument("--overwrite", action="store_true", help="replace an existing --csv file")
     add_capture_options(p)
@@ -111,6 +113,9 @@ def _validate(args) -> None:
         raise UsageError("the gain method needs both --tone CAPTURE and --level-dbm DBM")
     if not args.hot and args.tone is None:
         raise UsageError("give --hot and --cold captures of a noise source, or --tone and --level-dbm")
+    if args.noise_band is not None and args.tone is None:
+        raise UsageError("--noise-band applies to the gain method (--tone); the Y-factor compares band powers "
+                         "over every sub-band")
     if args.hot and args.enr_db is not None and not math.isfinite(args.enr_db):
         raise UsageError(f"--enr-db must be a finite number, got {args.enr_db}")
     if not (math.isfinite(args.cold_k) and args.cold_k > 0):
@@ -311,7 +316,7 @@ def _mean_with_u(values, us):
 
 def _gain_method(args, warnings: list[str]) -> dict:
     cap = capture_from_args(args.tone, args)
-    r = read_capture(cap, nperseg=args.nperseg)
+    r = read_capture(cap, nperseg=args.nperseg, noise_band_hz=args.noise_band)
     warnings.extend(r.warnings)
     if r.tone is None or not r.tone.power > 0:
         raise MeasurementError(f"{cap.path}: no tone found above the noise; the gain method needs one")
