@@ -15,7 +15,7 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-from rxbench.analyze import Reading, pool_tones, read_capture
+from rxbench.reading import Reading, pool_tones, read_capture
 from rxbench.dsp.ladder import Loss
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 from rxbench.dsp.units import T0_K

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 from typing import Iterable, Mapping
 
-from rxbench.analyze import CLIP_NOTE_BELOW
+from rxbench.reading import CLIP_NOTE_BELOW
 
 NOT_ASSESSED = "not assessed"
 

@@ -22,7 +22,7 @@ import math
 from dataclasses import dataclass, field
 
 from rxbench.errors import RxbenchError
-from rxbench.analyze import CLIP_NOTE_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
+from rxbench.reading import CLIP_NOTE_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
 from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
 from rxbench.style import fmt_hz
 

@@ -11,7 +11,7 @@ import json
 import numpy as np
 import pytest
 
-from rxbench.analyze import read_capture
+from rxbench.reading import read_capture
 from rxbench.capture import LOG_NAME, PLAN_NAME, REPLACED_DIR, run_session, stdin_prompt
 from rxbench.cli import main
 from rxbench.errors import CaptureError, DeviceError, UsageError

@@ -108,7 +108,7 @@ def _child_pass() -> float:
 
 CHILD = textwrap.dedent("""
     import sys, numpy as np
-    from rxbench.analyze import accumulate
+    from rxbench.reading import accumulate
     from rxbench.recordings import memory_capture
     x = np.random.default_rng(0).standard_normal(2 * 8_000_000).astype(np.float32).view(np.complex64)
     print("ready", flush=True)

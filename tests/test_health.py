@@ -14,7 +14,7 @@ import json
 import numpy as np
 import pytest
 
-from rxbench.analyze import CLIP_NOTE_BELOW, health_warnings, read_capture
+from rxbench.reading import CLIP_NOTE_BELOW, health_warnings, read_capture
 from rxbench.cli import main
 from rxbench.recordings import memory_capture, write_sigmf
 from rxbench.dsp.health import PILEUP_MIN_SAMPLES, HealthAccumulator

@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 
-from rxbench.analyze import read_capture
+from rxbench.reading import read_capture
 from rxbench.cli import main
 from rxbench.recordings import memory_capture, write_sigmf
 from rxbench.dsp import synth

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, assume, given, settings, strategies as st
 
-from rxbench.analyze import read_capture
+from rxbench.reading import read_capture
 from rxbench.errors import PlanError
 from rxbench.plan import parse_plan
 from rxbench.recordings import memory_capture

@@ -15,7 +15,7 @@ import re
 import numpy as np
 import pytest
 
-from rxbench.analyze import choose_nperseg
+from rxbench.reading import choose_nperseg
 from rxbench.cli import main
 from rxbench.recordings import write_sigmf
 from rxbench.dsp import synth
@@ -211,7 +211,7 @@ def test_the_loss_and_ladder_methods_refuse_readings_of_two_signals(tmp_path):
 
     def reading(name, offset_hz, level_dbfs):
         # each read on its own, as a notebook user would (no read_tones, so no check before the method)
-        from rxbench.analyze import read_capture
+        from rxbench.reading import read_capture
 
         return read_capture(open_capture(__import__("pathlib").Path(_capture(
             tmp_path, name, rng, offset_hz=offset_hz, level_dbfs=level_dbfs))), near_hz=offset_hz)

@@ -403,7 +403,7 @@ def test_excess_without_a_loss_reports_no_cost(tmp_path):
 
 def test_stated_excess_uncertainty_covers_the_truth_about_95_percent_of_the_time():
     # Coverage of U = 2u over independent repeats (GUM 6.2: k = 2 for about 95 %).
-    from rxbench.analyze import read_capture
+    from rxbench.reading import read_capture
     from rxbench.recordings import memory_capture
 
     ta = T0_K * power_from_db(15.0)

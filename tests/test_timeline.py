@@ -8,7 +8,7 @@ import json
 import numpy as np
 import pytest
 
-from rxbench.analyze import noise_dict, read_capture, tone_dict
+from rxbench.reading import noise_dict, read_capture, tone_dict
 from rxbench.cli import main
 from rxbench.dsp import synth
 from rxbench.dsp.units import db_from_power

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from rxbench.analyze import read_capture
+from rxbench.reading import read_capture
 from rxbench.recordings import memory_capture
 from rxbench.dsp import synth
 from rxbench.dsp.floor import noise_floor

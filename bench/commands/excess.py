@@ -13,7 +13,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.analyze import read_capture, require_comparable
+from rxbench.reading import read_capture, require_comparable
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.methods.external import external_noise
 from rxbench.output import add_json_option, emit, fmt_db

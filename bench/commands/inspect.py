@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.analyze import INTERMITTENT_BELOW, add_noise_band_option, noise_dict, read_capture, tone_dict
+from rxbench.reading import INTERMITTENT_BELOW, add_noise_band_option, noise_dict, read_capture, tone_dict
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args

@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.analyze import add_drift_option, add_noise_band_option, read_tones
+from rxbench.reading import add_drift_option, add_noise_band_option, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import pool
 from rxbench.methods.ladder import DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, ladder_check

@@ -152,7 +152,7 @@ def readout(device, plan, cap, *, interval_s: float, updates: int, on_update, ne
     """Stream from ``device`` set up for ``cap``; call ``on_update(i, level, reading)`` after each
     ``interval_s`` of samples until Enter, Ctrl-C or ``updates`` updates (the tone read near
     ``near_hz``, or the strongest). Returns the updates shown."""
-    from rxbench.analyze import read_capture
+    from rxbench.reading import read_capture
     from rxbench.capture import round_up_512
     from rxbench.check import level_of
     from rxbench.recordings import ENCODINGS, decode, memory_capture

@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 
-from rxbench.analyze import add_drift_option, add_noise_band_option, read_tones
+from rxbench.reading import add_drift_option, add_noise_band_option, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import SWR_FROM_OPTIONS, has_tone, pool
 from rxbench.methods.loss import direct_loss, substitution_loss

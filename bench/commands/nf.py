@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rxbench.analyze import (accumulate, add_noise_band_option, choose_nperseg, health_warnings, read_capture,
+from rxbench.reading import (accumulate, add_noise_band_option, choose_nperseg, health_warnings, read_capture,
                              require_same_signal)
 from rxbench.enr import read_enr_table
 from rxbench.files import check_output

@@ -10,7 +10,7 @@ from typing import Mapping
 import numpy as np
 
 from rxbench import keys
-from rxbench.analyze import capture_start_s, pool_tones, require_same_signal, tone_db
+from rxbench.reading import capture_start_s, pool_tones, require_same_signal, tone_db
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.ladder import mismatch_components
 from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
@@ -69,7 +69,7 @@ class PooledTone:
     readings : tuple of Reading
     dbfs, u_db, dof : float
         Mean tone reading (dBFS), its standard uncertainty (dB) and degrees of freedom
-        (:func:`rxbench.analyze.pool_tones`).
+        (:func:`rxbench.reading.pool_tones`).
     offset_hz : float
         Mean tone offset from the centre, Hz.
     """
@@ -121,7 +121,7 @@ def has_tone(reading) -> bool:
 def require_one_signal(*groups: PooledTone | None, drift_ppm: float = DEFAULT_PPM) -> None:
     """Refuse pooled readings whose tones are not one signal: a tone elsewhere than the others' (beyond
     3 bins + ``drift_ppm``) or on the DC spike raises UnlikeCapturesError naming the captures
-    (:func:`rxbench.analyze.require_same_signal`). Every tone method calls this on its inputs, so no
+    (:func:`rxbench.reading.require_same_signal`). Every tone method calls this on its inputs, so no
     view (command, session, Python API) can compare two different signals; readings without a tone
     are the pooling's business (:func:`pool`)."""
     readings = [r for g in groups if g is not None for r in g.readings if has_tone(r)]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from rxbench.analyze import Reading, noise_dict, read_capture, tone_dict
+from rxbench.reading import Reading, noise_dict, read_capture, tone_dict
 from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.methods.common import COVERAGE_FACTOR, N_SUB_BANDS

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from rxbench import keys
-from rxbench.analyze import capture_start_s
+from rxbench.reading import capture_start_s
 from rxbench.errors import CaptureError, UsageError
 from rxbench.quantities import check as check_quantity
 from rxbench.recordings import META_SUFFIX, Capture, open_capture

@@ -1,4 +1,4 @@
-"""Small shared helpers of bench.analyze: the start time of a capture and pooled tone readings."""
+"""Small shared helpers of rxbench.reading: the start time of a capture and pooled tone readings."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from types import SimpleNamespace
 
 import pytest
 
-from rxbench.analyze import capture_start_s, pool_tones, tone_db
+from rxbench.reading import capture_start_s, pool_tones, tone_db
 from rxbench.errors import MeasurementError
 from rxbench.dsp.ladder import mean_reading
 

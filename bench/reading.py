@@ -1,0 +1,480 @@
+"""From captures to readings: one pass over a capture's blocks feeds the PSD and health accumulators,
+then :mod:`dsp` gives the noise floor and the tone. Everything rxbench reports starts here.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from rxbench import keys
+from rxbench._engine import InOrder
+from rxbench.errors import CaptureError, MeasurementError, UnlikeCapturesError, UsageError
+from rxbench.recordings import Capture
+from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
+from rxbench.dsp.health import Health, HealthAccumulator
+from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
+from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, on_dc, same_signal
+from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from rxbench.dsp.units import db_from_power
+
+#: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
+DEFAULT_NPERSEG = 4096
+MIN_NPERSEG = 256
+MIN_SEGMENTS = 4 * N_BATCHES
+#: Samples at a rail below this fraction are a note (a few spikes); from it up, clipping that compresses.
+CLIP_NOTE_BELOW = 1e-4
+#: Captures compared with each other must agree in sample rate to this fraction...
+RATE_TOLERANCE = 1e-6
+#: ...and in centre frequency to this many hertz.
+CENTER_TOLERANCE_HZ = 1.0
+#: A tone closer than this to the noise (peak bin over floor, dB) gets a low-SNR warning.
+LOW_SNR_DB = 10.0
+#: A tone present for less than this fraction of the capture is called intermittent.
+INTERMITTENT_BELOW = 0.9
+
+
+@dataclass(frozen=True)
+class Reading:
+    """Everything read from one capture."""
+
+    capture: Capture
+    psd: Psd
+    floor: NoiseFloor
+    tone: Tone | None
+    health: Health
+    warnings: list = field(default_factory=list)
+
+    @property
+    def clip_fraction(self) -> float:
+        return self.health.clip_fraction
+
+    @property
+    def dc_offset(self) -> complex:
+        return self.health.dc_offset
+
+
+def choose_nperseg(n_samples: int, requested: int | None = None) -> int:
+    """FFT length: ``requested``, or 4096 shortened (powers of two) until the capture holds
+    at least MIN_SEGMENTS half-overlapped segments."""
+    if requested is not None:
+        return int(requested)
+    nperseg = DEFAULT_NPERSEG
+    while nperseg > MIN_NPERSEG and n_samples < (MIN_SEGMENTS + 1) * nperseg // 2:
+        nperseg //= 2
+    return nperseg
+
+
+def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann",
+               progress=None) -> tuple[Psd, Health]:
+    """One streaming pass: averaged PSD and health of a capture. Raises CaptureError on bad samples.
+
+    ``progress``, when given, is called as ``progress(samples_done, n_samples)`` after each block.
+    """
+    n = choose_nperseg(capture.n_samples, nperseg)
+    if not 16 <= n <= 1 << 24:
+        raise CaptureError(capture.path, f"FFT segment length {n} is outside 16 .. 16777216")
+    if capture.n_samples < n:
+        raise CaptureError(capture.path, f"{capture.n_samples} samples is shorter than one {n}-point FFT segment")
+    runner = InOrder()  # both accumulators' work on the worker threads, applied in order
+    acc = PsdAccumulator(capture.sample_rate_hz, nperseg=n, window=window, one_sided=not capture.is_complex,
+                         expected_samples=capture.n_samples, runner=runner)
+    health = HealthAccumulator(capture.clip_level, capture.float_samples, runner=runner)
+    done = 0
+    try:
+        for block in capture.blocks():
+            health.update(block)
+            acc.update(block)
+            done += block.size
+            if progress is not None:
+                progress(done, capture.n_samples)
+    except BaseException:  # an interrupt or a bad block: no work left running behind us
+        runner.cancel()
+        raise
+    h = health.result()
+    if h.n_nonfinite:
+        raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")
+    if h.power - abs(h.dc_offset) ** 2 <= 1e-9 * h.power or h.power == 0:
+        raise CaptureError(capture.path, "all samples are equal: there is no signal or noise to measure")
+    return acc.result(), h
+
+
+def read_capture(
+    capture: Capture,
+    *,
+    near_hz: float | None = None,
+    nperseg: int | None = None,
+    snr_bandwidth_hz: float = DEFAULT_SNR_BANDWIDTH_HZ,
+    want_tone: bool = True,
+    noise_band_hz: tuple[float, float] | None = None,
+    progress=None,
+) -> Reading:
+    """Read a capture: PSD, noise floor, (optionally) the tone, health and warnings.
+
+    ``noise_band_hz`` (low, high), offsets in Hz, names where the noise floor is taken.
+    ``progress`` is passed to :func:`accumulate`.
+    """
+    psd, health = accumulate(capture, nperseg, progress=progress)
+    warnings: list[str] = []
+    name = capture.path.name
+    warnings.extend(health_warnings(name, health))
+    if psd.zero_fraction > 0:
+        warnings.append(
+            f"{name}: {100 * psd.zero_fraction:.3g} % of the capture is exactly zero (dropped transfers or "
+            "digital silence): left out of every reading"
+        )
+    try:
+        floor = noise_floor(psd, dc_halfwidth_hz=None if capture.is_complex else 0.0, band_hz=noise_band_hz,
+                            seed_hz=near_hz)
+    except ValueError as exc:
+        raise CaptureError(capture.path, f"no noise floor: {exc}") from None
+    if floor.density <= 0:
+        raise CaptureError(capture.path, "the noise floor is zero (constant or digitally generated samples?)")
+    warnings.extend(_floor_warnings(name, floor))
+    tone = None
+    if want_tone:
+        try:
+            tone = measure_tone(psd, floor, near_hz=near_hz, snr_bandwidth_hz=snr_bandwidth_hz)
+        except ValueError as exc:
+            warnings.append(f"{name}: {exc}")
+        if tone is not None:
+            warnings.extend(_tone_warnings(name, psd, floor, tone, chosen=near_hz is not None))
+    return Reading(capture, psd, floor, tone, health, warnings)
+
+
+def health_warnings(name: str, health: Health,
+                    effect: str = "readings are compressed; add attenuation or lower the gain") -> list[str]:
+    """What a capture's health says about its readings: float data not normalised to full scale (with
+    its peak, and the full scale the dBFS figures take), and samples at a rail value: a note with the
+    count below :data:`CLIP_NOTE_BELOW` of the samples, else clipping with ``effect``."""
+    out = []
+    if not health.normalised:
+        out.append(f"{name}: float samples reach {health.peak_magnitude:.4g}, beyond +/-1: not normalised to "
+                   f"full scale (raw converter counts?); dBFS figures take 1.0 as full scale, "
+                   f"{health.peak_dbfs:.1f} dB below the peak")
+    if health.n_clipped:
+        at = "at the rails" if health.normalised else \
+            f"piled up at the peak magnitude {health.peak_magnitude:.4g} (a converter's rail)"
+        if health.clip_fraction < CLIP_NOTE_BELOW:
+            out.append(f"{name}: note: {health.n_clipped} of {health.n_samples} samples {at}: too few to "
+                       "compress the readings")
+        else:
+            out.append(f"{name}: {100 * health.clip_fraction:.3g} % of samples {at} (clipping): {effect}")
+    return out
+
+
+def _floor_warnings(name: str, floor: NoiseFloor) -> list[str]:
+    out = []
+    if floor.steady_fraction < 1.0:
+        out.append(
+            f"{name}: the noise floor moves by {floor.time_range_db:.1f} dB during the capture: it is taken "
+            f"from the steady, quietest {100 * floor.steady_fraction:.0f} % of the time"
+        )
+    if floor.band_limited:
+        lo, hi = floor.band_hz
+        out.append(
+            f"{name}: the noise floor varies by {floor.band_range_db:.1f} dB across the band (band-limited "
+            f"recording?): taken where the signals are, {lo:.0f} .. {hi:.0f} Hz (--noise-band LO HI chooses)"
+        )
+    elif floor.band_hz is None and floor.band_range_db > BAND_RANGE_DB:
+        out.append(
+            f"{name}: the noise floor varies by {floor.band_range_db:.1f} dB across the band: taken over the "
+            "whole band (--noise-band LO HI chooses)"
+        )
+    return out
+
+
+def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: bool = False) -> list[str]:
+    out = []
+    tl = tone.timeline
+    varies = tl is not None and ((tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW)
+                                 or tl.level_change_db > 0)
+    if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW:
+        out.append(
+            f"{name}: intermittent: present in {100 * tl.on_fraction:.0f} % of the capture; power_dbfs "
+            f"({tone.power_dbfs:.2f} dBFS) is the average over the whole capture, on_power_dbfs "
+            f"({tone.on_power_dbfs:.2f} dBFS) the power while present"
+        )
+    if tl is not None and tl.level_change_db > 0:
+        how = (f"a drift of {tl.drift_db_per_s:+.3g} dB/s" if tl.drift_db_per_s is not None else "in steps")
+        out.append(f"{name}: the tone's level changes by {tl.level_change_db:.1f} dB during the capture "
+                   f"({how}): its power is an average over that change")
+    if tone.peak_to_floor_db < LOW_SNR_DB:
+        out.append(
+            f"{name}: tone only {tone.peak_to_floor_db:.1f} dB above the noise in one bin; "
+            f"its power is uncertain by ±{tone.u_power_db * 2:.2f} dB (95 %)"
+        )
+    if tone.power <= 0 or (tone.ci95_dbfs[0] == -np.inf and not varies):
+        out.append(f"{name}: tone power not distinguishable from the noise")
+    if tone.is_broad:
+        out.append(
+            f"{name}: a broad signal, not a tone (-3 dB width {tone.width_hz:.4g} Hz, a line here is "
+            f"{tone.line_width_hz:.3g} Hz): power reads as a band power over "
+            f"{(2 * BAND_HALFWIDTH_BINS + 1) * psd.bin_width_hz:.4g} Hz"
+        )
+    if tone.second_offset_hz is not None:
+        out.append(
+            f"{name}: a second line at {tone.second_offset_hz:+.0f} Hz within {abs(tone.second_db):.1f} dB of the "
+            f"one read at {tone.offset_hz:+.0f} Hz (two-tone keying?): "
+            + ("both lie near --near; narrow it" if chosen else "give --near HZ to choose")
+        )
+    if psd.one_sided:
+        return out
+    if on_dc(tone.offset_hz, psd.bin_width_hz, floor.dc_halfwidth_hz):
+        out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz sits on the DC spike; tune it away from the centre")
+    if abs(tone.offset_hz) > floor.edge_hz:
+        out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz is near the band edge (anti-alias roll-off)")
+    return out
+
+
+def _finite(x):
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+def tone_dict(tone, center_hz) -> dict:
+    """The JSON view of a tone reading (shared by every command that reports tones)."""
+    if tone is None:
+        names = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
+                 "snr_bandwidth_hz", "on_fraction", "on_power_dbfs", "on_cn0_dbhz", "time_resolution_s",
+                 "level_change_db", "drift_db_per_s", "width_hz", "line_width_hz", "second_offset_hz",
+                 "second_db")
+        return dict.fromkeys(names)
+    tl = tone.timeline
+    return {
+        "offset_hz": tone.offset_hz,
+        "frequency_hz": None if center_hz is None else center_hz + tone.offset_hz,
+        "power_dbfs": tone.power_dbfs,
+        "u_power_db": tone.u_power_db,
+        "ci95_dbfs": list(tone.ci95_dbfs),
+        "cn0_dbhz": tone.cn0_dbhz,
+        "snr_db": tone.snr_db,
+        "snr_bandwidth_hz": tone.snr_bandwidth_hz,
+        "on_fraction": tone.on_fraction,
+        "on_power_dbfs": _finite(tone.on_power_dbfs),
+        "on_cn0_dbhz": _finite(tone.on_cn0_dbhz),
+        "time_resolution_s": None if tl is None or tl.on_fraction is None else tl.slot_s,
+        "level_change_db": None if tl is None else tl.level_change_db,
+        "drift_db_per_s": None if tl is None else tl.drift_db_per_s,
+        "width_hz": _finite(tone.width_hz),
+        "line_width_hz": _finite(tone.line_width_hz),
+        "second_offset_hz": tone.second_offset_hz,
+        "second_db": tone.second_db,
+    }
+
+
+def noise_dict(reading: Reading) -> dict:
+    """The JSON view of a reading's noise floor (shared by inspect and the session)."""
+    fl = reading.floor
+    return {
+        "density_dbfs_per_hz": db_from_power(fl.density),
+        "u_density_db": 10 / math.log(10) * fl.u_density / fl.density,
+        "bins_used": fl.n_bins,
+        "time_range_db": fl.time_range_db,
+        "steady_fraction": fl.steady_fraction,
+        "band_range_db": fl.band_range_db,
+        "band_hz": None if fl.band_hz is None else list(fl.band_hz),
+        "zero_fraction": reading.psd.zero_fraction,
+    }
+
+
+def tone_db(reading: Reading) -> tuple[float, float, float]:
+    """(power dBFS, standard uncertainty dB, dof) of a reading's tone; (nan, nan, inf) when there is none."""
+    t = reading.tone
+    if t is None or not t.power > 0:
+        return math.nan, math.nan, math.inf
+    return t.power_dbfs, t.u_power_db, t.dof_u
+
+
+def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
+    """Pool the tones of repeated captures of one role (several thru captures, say).
+
+    Returns the mean reading (dBFS), its Type A standard uncertainty (dB) and degrees of freedom, by
+    :func:`dsp.ladder.mean_reading` (the larger of the estimators' and the scatter's uncertainty).
+    Raises MeasurementError naming a capture whose tone could not be read.
+    """
+    readings = list(readings)
+    values = [tone_db(r) for r in readings]
+    for r, (p, _, _) in zip(readings, values):
+        if not math.isfinite(p):
+            what = f"{role} tone" if role else "tone"
+            raise MeasurementError(f"{r.capture.path}: no {what} could be read (none above the noise)")
+    p, u, dof = zip(*values)
+    from rxbench.dsp.ladder import mean_reading  # here: dsp.ladder is 4 ms of every inspect's start-up
+
+    return mean_reading(p, u, dof)
+
+
+def capture_start_s(capture: Capture) -> float | None:
+    """Start of a capture from its metadata (ISO 8601; UTC when it names no zone), s since the epoch;
+    None when the metadata gives no readable time."""
+    text = capture.datetime
+    if not isinstance(text, str) or not text:
+        return None
+    try:
+        start = _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    if start.tzinfo is None:
+        start = start.replace(tzinfo=_dt.timezone.utc)
+    return start.timestamp()
+
+
+def noise_density_dbfs_per_hz(reading: Reading) -> float:
+    return db_from_power(reading.floor.density)
+
+
+# --------------------------------------------------------------------------------------------
+# Comparing captures with each other
+
+
+def _gain(capture: Capture):
+    g = capture.extra.get(keys.GAIN_DB)
+    try:
+        return None if g is None else float(g)
+    except (TypeError, ValueError):
+        return None
+
+
+def setup_difference(a: Capture, b: Capture, *, tuning: bool = True, gain: bool = True) -> str | None:
+    """Why two captures cannot be compared with each other, or None when they were taken alike.
+
+    Sample rate and sample type must agree; with ``tuning`` the centre frequencies (where both are
+    known), with ``gain`` the dongle gains (where both are recorded).
+    """
+    if abs(a.sample_rate_hz - b.sample_rate_hz) > RATE_TOLERANCE * b.sample_rate_hz:
+        return (f"sample rate {a.sample_rate_hz:g} Hz of {a.path.name} differs from {b.sample_rate_hz:g} Hz "
+                f"of {b.path.name}")
+    if a.is_complex != b.is_complex:
+        return f"{a.path.name} and {b.path.name}: one holds complex IQ, the other real samples"
+    if tuning and a.center_hz is not None and b.center_hz is not None \
+            and abs(a.center_hz - b.center_hz) > CENTER_TOLERANCE_HZ:
+        return (f"centre frequency {a.center_hz:.0f} Hz of {a.path.name} differs from {b.center_hz:.0f} Hz "
+                f"of {b.path.name}")
+    ga, gb = _gain(a), _gain(b)
+    if gain and ga is not None and gb is not None and ga != gb:
+        return f"gain {ga:g} dB of {a.path.name} differs from {gb:g} dB of {b.path.name}"
+    return None
+
+
+def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> list[str]:
+    """Refuse captures that were not taken alike (:func:`setup_difference`) with an UnlikeCapturesError
+    naming both files; return warnings for what the metadata does not let us check."""
+    captures = list(captures)
+    for cap in captures[1:]:
+        why = setup_difference(cap, captures[0], tuning=tuning, gain=gain)
+        if why:
+            raise UnlikeCapturesError(f"{why}: compared captures must be taken with the same settings")
+    warnings = []
+    if len(captures) > 1:
+        if tuning and any(c.center_hz is None for c in captures):
+            unknown = [c.path.name for c in captures if c.center_hz is None]
+            warnings.append(f"no centre frequency on {', '.join(unknown)}: cannot check the captures were "
+                            "tuned alike (give --center HZ)")
+        if gain and any(_gain(c) is None for c in captures):
+            warnings.append("the gain is not recorded in every capture: make sure it was fixed (AGC off) "
+                            "and the same for all")
+    return warnings
+
+
+def add_noise_band_option(parser) -> None:
+    """``--noise-band LO HI``: where in the band the noise floor of every capture read is taken."""
+    from rxbench.quantities import arg as quantity_arg
+
+    parser.add_argument("--noise-band", type=quantity_arg("offset"), nargs=2, metavar=("LO", "HI"),
+                        help="take the noise floor between these offsets from centre, Hz (default: the whole band, "
+                             "or near the signals when the floor is not flat)")
+
+
+def add_drift_option(parser) -> None:
+    """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`signal_differences`)."""
+    parser.add_argument("--drift-ppm", type=float, default=DEFAULT_PPM, metavar="PPM",
+                        help="how far the tone may move between captures, ppm of the centre frequency, on top of "
+                             f"{DEFAULT_BINS:g} FFT bins (default %(default)g; widen for a dongle still warming up)")
+
+
+def _offset(hz: float) -> str:
+    return f"{hz:+.0f} Hz"
+
+
+def signal_differences(readings, *, drift_ppm: float = DEFAULT_PPM) -> tuple[SameSignal, list[str]]:
+    """Which readings are not of the same signal as the others (:func:`dsp.same_signal.same_signal`),
+    and one sentence per such capture naming it, the reference capture and both tone offsets.
+
+    The tolerance is 3 bins plus ``drift_ppm`` of the centre frequency (of the tone's own frequency
+    for real captures; left out where the centre is unknown).
+    """
+    if not (math.isfinite(drift_ppm) and drift_ppm >= 0):
+        raise UsageError(f"--drift-ppm must be a finite number >= 0, got {drift_ppm}")
+    readings = list(readings)
+    offsets = [None if r.tone is None else r.tone.offset_hz for r in readings]
+    first = readings[0]
+    bin_hz = max(r.psd.bin_width_hz for r in readings)
+    if first.capture.is_complex:
+        ref_hz = first.capture.center_hz
+    else:
+        ref_hz = max((abs(o) for o in offsets if o is not None), default=None)
+    check = same_signal(offsets, bin_hz, ref_hz, dc_halfwidth_hz=max(r.floor.dc_halfwidth_hz for r in readings),
+                        ppm=drift_ppm)
+    ref = None if check.reference is None else readings[check.reference]
+    named = "" if ref is None else f"the signal of {ref.capture.path.name} at {_offset(ref.tone.offset_hz)}"
+    problems = {}
+    for i in check.absent:
+        r = readings[i]
+        try:
+            strongest = f"; its strongest peak is at {_offset(measure_tone(r.psd, r.floor).offset_hz)}"
+        except ValueError:
+            strongest = ""
+        near = "" if ref is None else f" near {_offset(ref.tone.offset_hz)}, {named}"
+        problems[i] = f"{r.capture.path.name}: no tone{near}{strongest}"
+    for i in check.on_dc:
+        r = readings[i]
+        problems[i] = f"{r.capture.path.name}: its tone at {_offset(r.tone.offset_hz)} is the DC spike" + \
+            ("" if ref is None else f", not {named}")
+    for i, diff in check.disagree:
+        r = readings[i]
+        problems[i] = (f"{r.capture.path.name}: tone at {_offset(r.tone.offset_hz)} is not {named} "
+                       f"({abs(diff):.0f} Hz apart; tolerance {check.tolerance_hz:.0f} Hz = {DEFAULT_BINS:g} bins "
+                       f"+ {drift_ppm:g} ppm)")
+    return check, [problems[i] for i in sorted(problems)]
+
+
+def require_same_signal(readings, *, drift_ppm: float = DEFAULT_PPM) -> None:
+    """Refuse compared readings whose tones are not one signal (:func:`signal_differences`) with a
+    UnlikeCapturesError naming each such capture, the reference capture and their offsets."""
+    _, problems = signal_differences(readings, drift_ppm=drift_ppm)
+    if problems:
+        raise UnlikeCapturesError("; ".join(problems) + ": compared captures must hold the same signal "
+                               "(a dongle still warming up drifts more: widen with --drift-ppm)")
+
+
+def read_tones(captures, *, near_hz: float | None = None, nperseg: int | None = None,
+               drift_ppm: float = DEFAULT_PPM, noise_band_hz: tuple[float, float] | None = None):
+    """Read the tone of every capture alike (one FFT length, one noise band, the tone of the first
+    capture), and refuse captures that are not the same signal (:func:`require_same_signal`).
+
+    Returns ``(readings, warnings)``. A first capture without a tone is an error (nothing to follow).
+    """
+    warnings = require_comparable(captures)
+    if nperseg is not None and nperseg < 16:
+        raise UsageError(f"--nperseg must be at least 16, got {nperseg}")
+    nperseg = choose_nperseg(min(c.n_samples for c in captures), nperseg)
+
+    def read(cap, near):
+        try:
+            return read_capture(cap, near_hz=near, nperseg=nperseg, noise_band_hz=noise_band_hz)
+        except ValueError as exc:
+            raise UsageError(f"{cap.path}: {exc}") from None
+
+    first = read(captures[0], near_hz)
+    if first.tone is None:
+        where = "; give --near HZ" if near_hz is None else f" near {near_hz:g} Hz"
+        raise MeasurementError(f"{captures[0].path}: no tone found above the noise{where}")
+    near = first.tone.offset_hz
+    readings = [first] + [read(cap, near) for cap in captures[1:]]
+    require_same_signal(readings, drift_ppm=drift_ppm)
+    for r in readings:
+        warnings.extend(r.warnings)
+    return readings, warnings
