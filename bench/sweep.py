@@ -37,14 +37,15 @@ import dataclasses
 import itertools
 import math
 
+from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.keys import ROLES
 from rxbench.plan import (DIRECT_SAMPLING_HIGH_HZ, NOISE_SOURCE_ROLES, TONE_ROLES, _NAME_RE, Plan, Step)
 
 #: Fraction of each capture's band the analysis leaves out at each edge (dsp.floor.usable_mask's default).
 EDGE_FRACTION = 0.1
 #: Neighbouring captures share this fraction of the usable width: one sub-band of the noise-source
-#: analysis (bench.session.N_SUB_BANDS = 8 per capture), so that their sub-bands fall on one grid.
-OVERLAP_FRACTION = 1.0 / 8
+#: analysis (:data:`rxbench.dsp.subbands.N_SUB_BANDS` per capture), so that their sub-bands fall on one grid.
+OVERLAP_FRACTION = 1.0 / N_SUB_BANDS
 #: The components of a capture's physical state, in the nesting order preferred on a tie.
 COMPONENTS = ("filter", "source", "path", "noise", "attenuation", "generator")
 

@@ -1,22 +1,23 @@
-"""Noise figure: Y-factor, second-stage correction, Friis cascade, passive loss, gain method, and the
-noise-source loss of a device bin by bin.
+"""Noise figure formulas: Y-factor, second-stage correction, Friis cascade, passive loss, gain method,
+and a DUT's gain and noise factor from noise-source readings, each with its standard uncertainty.
 
 A broadband noise source switched between a hot and a cold state gives, from the ratio of the two
 noise powers (the Y-factor), the receive system's noise factor. With a device under test (DUT) in
-front of the receiver, the change of the hot-minus-cold excess gives the DUT's gain at every
-frequency in the capture (its insertion loss), and the second-stage correction gives the DUT's own
-noise figure. A tone of known absolute level gives the noise figure without a noise source (the
-gain method).
+front of the receiver, the change of the hot-minus-cold excess gives the DUT's gain (its insertion
+loss), and the second-stage correction gives the DUT's own noise figure. A tone of known absolute
+level gives the noise figure without a noise source (the gain method).
 
 Noise powers here are linear and may be in any unit (full-scale power per Hz, say) as long as the
 numbers compared share it; noise factors and gains are linear; dB only in the ``*_db`` views.
+From spectra: :mod:`rxbench.dsp.subbands` (mean density per sub-band and its degrees of freedom),
+:mod:`rxbench.dsp.stitch` (curves of several tunings into one), :mod:`rxbench.dsp.noise_source` (a
+whole noise-source measurement at one tuning).
 
 References
 ----------
 Friis, H. T., "Noise figures of radio receivers", Proc. IRE 32(7), 1944.
 Bedrosian, E., "The output noise temperature of a lossy network", RAND, 1960.
 Pozar, D. M., *Microwave Engineering*, noise chapter (Y-factor method) [from memory].
-Welch, P. D., IEEE Trans. Audio Electroacoust. AU-15(2), 1967 (degrees of freedom of a PSD).
 """
 
 from __future__ import annotations
@@ -26,13 +27,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rxbench.dsp.floor import usable_mask
-from rxbench.dsp.spectrum import Psd, band_power
 from rxbench.dsp.units import KT0_DBM_PER_HZ, T0_K, db_from_power, power_from_db, scalar_or_array
 
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # dB per unit of relative power change
-
-
 
 
 def _positive(name: str, value):
@@ -225,46 +222,6 @@ def dut_gain(n_hot_dut, n_cold_dut, n_hot, n_cold):
     if np.any(d1 <= 0):
         raise ValueError("the hot reading through the DUT does not exceed the cold one")
     return scalar_or_array(d1 / d2)
-
-
-def band_dof(dof_per_bin, n_bins, window) -> np.ndarray:
-    """Equivalent degrees of freedom of the mean density over ``n_bins`` neighbouring PSD bins.
-
-    Parameters
-    ----------
-    dof_per_bin : float
-        Degrees of freedom of one bin of the averaged PSD (``Psd.dof``).
-    n_bins : int or array_like
-        Contiguous bins averaged.
-    window : ndarray
-        The DFT window the PSD was made with (``Psd.window``).
-
-    Returns
-    -------
-    ndarray or float
-        nu_band = nu * n^2 / [n + 2*sum_{m=1}^{n-1} (n - m)*rho(m)^2].
-
-    Notes
-    -----
-    Neighbouring bins of a windowed DFT of white noise are correlated; the correlation of bins m
-    apart is rho(m) = |sum w^2 exp(-2j*pi*m*k/N)| / sum w^2 (Hann: 2/3 at m = 1, 1/6 at m = 2), and
-    the power estimates are correlated by rho^2. Time overlap is already in ``dof_per_bin``; taking
-    the two as separable is an approximation good to a few per cent for Hann at 50 % overlap.
-    """
-    w2 = np.asarray(window, dtype=float) ** 2
-    rho2 = (np.abs(np.fft.fft(w2)) / w2.sum()) ** 2
-    scalar = np.ndim(n_bins) == 0
-    n = np.atleast_1d(np.asarray(n_bins, dtype=float))
-    out = np.zeros_like(n)
-    for i, ni in enumerate(n):
-        if ni < 1:
-            out[i] = 0.0
-            continue
-        # Lags beyond N/2 would only meet again round the circle (through +/-fs/2, which the
-        # usable band never spans).
-        m = np.arange(1, int(min(ni, w2.size // 2)))
-        out[i] = dof_per_bin * ni**2 / (ni + 2.0 * np.sum((ni - m) * rho2[m]))
-    return float(out[0]) if scalar else out
 
 
 def _propagate(func: Callable, values: Sequence, rel_u: Sequence):
@@ -469,344 +426,6 @@ def dut_from_noise(n_hot, n_cold, n_hot_dut, n_cold_dut, enr, *, t_cold_k=T0_K,
     u_f1 = _propagate(model_f1, readings + [enr], rel)
     u_g = _propagate(lambda h, c, hd, cd: (hd - cd) / (h - c), readings, rel[:4])
     return DutFromNoise(gain=gain, u_gain=u_g, noise_factor=f1, u_noise_factor=u_f1, system=system)
-
-
-# --------------------------------------------------------------------------------------------------
-# From spectra: the usable band, sub-bands, and stitching several centre frequencies
-# --------------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class SubBands:
-    """Mean densities of several spectra over common sub-bands (offsets from the centre, Hz).
-
-    Attributes
-    ----------
-    low_hz, high_hz, center_hz : ndarray
-        Sub-band limits and centres; the last entry of each array is the whole usable band.
-    density : list of ndarray
-        Per spectrum: mean density over the usable bins of each sub-band (FS**2/Hz).
-    dof : list of ndarray
-        Per spectrum: degrees of freedom of each mean (:func:`band_dof`).
-    n_bins : list of ndarray
-        Per spectrum: bins in each sub-band.
-    enr : ndarray
-        ENR (linear) of each sub-band, weighted by the first spectrum's density.
-    """
-
-    low_hz: np.ndarray
-    high_hz: np.ndarray
-    center_hz: np.ndarray
-    density: list
-    dof: list
-    n_bins: list
-    enr: np.ndarray
-
-
-def sub_band_densities(spectra: Sequence[Psd], *, n_sub_bands: int = 16, edge_fraction: float = 0.1,
-                       dc_halfwidth_hz: float | None = None, enr_db=None) -> SubBands:
-    """Mean density of each spectrum over ``n_sub_bands`` equal sub-bands of the common usable band.
-
-    Parameters
-    ----------
-    spectra : sequence of Psd
-        Spectra to compare (e.g. cold, hot, cold through the DUT, hot through the DUT). They may
-        differ in sample rate and segment length: the sub-bands are fixed in Hz.
-    n_sub_bands : int
-        Number of sub-bands across the usable band.
-    edge_fraction, dc_halfwidth_hz
-        Band edges and DC spike left out, as in :func:`dsp.floor.usable_mask` (the widest
-        exclusion among the spectra applies to all).
-    enr_db : float or callable, optional
-        ENR in dB, constant or a function of offset frequency (Hz, array) -> dB. Each sub-band's
-        ENR is its mean weighted by the first spectrum's density (the cold one), which is exact
-        when the receiver's noise temperature is flat over the sub-band.
-
-    Returns
-    -------
-    SubBands
-        The last entry of every array is the whole usable band.
-
-    Notes
-    -----
-    Uses :func:`dsp.spectrum.band_power` on each spectrum: mean density = integral of the masked
-    density / integral of the mask. Sub-band intervals are half-open [low, high) except the last.
-    """
-    if not spectra:
-        raise ValueError("need at least one spectrum")
-    n_sub_bands = int(n_sub_bands)
-    if n_sub_bands < 1:
-        raise ValueError(f"{n_sub_bands=} must be >= 1")
-    masks, dc_hw, edge = [], 0.0, np.inf
-    for s in spectra:
-        m, d, e = usable_mask(s, edge_fraction=edge_fraction, dc_halfwidth_hz=dc_halfwidth_hz)
-        masks.append(m)
-        dc_hw, edge = max(dc_hw, d), min(edge, e)
-    one_sided = any(s.one_sided for s in spectra)
-    masks = [m & (np.abs(s.frequency_hz) <= edge) & (np.abs(s.frequency_hz) > dc_hw)
-             for m, s in zip(masks, spectra)]
-    low_edge = dc_hw if one_sided else -edge
-    edges = np.linspace(low_edge, edge, n_sub_bands + 1)
-    low = np.append(edges[:-1], low_edge)
-    high = np.append(edges[1:], edge)
-    # Half-open sub-bands so that a bin on an edge is counted once.
-    high_open = np.append(np.nextafter(edges[1:-1], -np.inf), [edge, edge])
-
-    def means(s, mask, values):
-        num = np.array([band_power(s, lo, hi, density=values * mask) for lo, hi in zip(low, high_open)])
-        den = np.array([band_power(s, lo, hi, density=mask.astype(float)) for lo, hi in zip(low, high_open)])
-        return num, den
-
-    density, dof, n_bins = [], [], []
-    for s, mask in zip(spectra, masks):
-        num, den = means(s, mask, s.density)
-        n = np.rint(den / s.bin_width_hz)
-        if np.any(n < 1):
-            raise ValueError(
-                f"a sub-band holds no usable bins ({n_sub_bands=} is too many for "
-                f"{s.bin_width_hz:g} Hz bins)")
-        density.append(num / den)
-        n_bins.append(n.astype(int))
-        dof.append(np.asarray(band_dof(s.dof, n, s.window), dtype=float).reshape(n.shape))
-    if enr_db is None:
-        enr = np.full(low.size, np.nan)
-    else:
-        s0, m0 = spectra[0], masks[0]
-        enr_bins = power_from_db(enr_db(s0.frequency_hz) if callable(enr_db)
-                                 else np.full(s0.frequency_hz.shape, float(enr_db)))
-        weighted, _ = means(s0, m0, s0.density * enr_bins)
-        plain, _ = means(s0, m0, s0.density)
-        enr = weighted / plain
-    return SubBands(low_hz=low, high_hz=high, center_hz=(low + high) / 2.0, density=density, dof=dof,
-                    n_bins=n_bins, enr=enr)
-
-
-def stitch_masks(center_hz: Sequence[float], frequency_hz: Sequence, coverage_hz: Sequence) -> list:
-    """Which points of several curves to keep when stitching them into one across frequency.
-
-    Parameters
-    ----------
-    center_hz : sequence of float
-        Centre (tuning) frequency of each capture, Hz.
-    frequency_hz : sequence of array_like
-        Absolute frequencies of each curve's points, Hz.
-    coverage_hz : sequence of (low_hz, high_hz)
-        Usable range of each capture, absolute Hz.
-
-    Returns
-    -------
-    list of ndarray of bool
-        Per curve, the points to keep: a point is dropped when another capture that also covers it
-        is tuned closer to it (ties go to the earlier capture). Overlapping edges are thereby
-        trimmed at the midpoint between neighbouring centres, where each capture is furthest from
-        its own band edge.
-    """
-    centers = np.asarray(center_hz, dtype=float)
-    if not (len(centers) == len(frequency_hz) == len(coverage_hz)):
-        raise ValueError("center_hz, frequency_hz and coverage_hz must have one entry per capture")
-    keep = []
-    for i, f in enumerate(frequency_hz):
-        f = np.asarray(f, dtype=float)
-        mask = np.ones(f.shape, dtype=bool)
-        di = np.abs(f - centers[i])
-        for j, (lo, hi) in enumerate(coverage_hz):
-            if j == i:
-                continue
-            covered = (f >= lo) & (f <= hi)
-            dj = np.abs(f - centers[j])
-            closer = (dj < di) | ((dj == di) & (j < i))
-            mask &= ~(covered & closer)
-        keep.append(mask)
-    return keep
-
-
-def stitch_offsets(center_hz: Sequence[float], offset_hz: Sequence, band_hz: Sequence) -> tuple[list, list]:
-    """Absolute frequencies of sub-bands measured at several tunings, and which to keep in one curve.
-
-    Parameters
-    ----------
-    center_hz : sequence of float
-        Centre (tuning) frequency of each capture, Hz.
-    offset_hz : sequence of array_like
-        Per tuning, the sub-band centres as offsets from its centre frequency, Hz.
-    band_hz : sequence of (low_hz, high_hz)
-        Per tuning, its usable band as offsets from its centre frequency, Hz.
-
-    Returns
-    -------
-    frequency_hz : list of ndarray
-        Per tuning, the absolute sub-band centres, Hz.
-    keep : list of ndarray of bool
-        Per tuning, the sub-bands to keep (:func:`stitch_masks`: each frequency from the capture tuned
-        closest to it).
-    """
-    centers = [float(c) for c in center_hz]
-    freqs = [c + np.asarray(o, dtype=float) for c, o in zip(centers, offset_hz)]
-    cover = [(c + float(lo), c + float(hi)) for c, (lo, hi) in zip(centers, band_hz)]
-    return freqs, stitch_masks(centers, freqs, cover)
-
-
-# --------------------------------------------------------------------------------------------------
-# A noise-source measurement from its spectra
-# --------------------------------------------------------------------------------------------------
-
-
-def _where(func: Callable, valid: np.ndarray, n_out: int, *arrays) -> list:
-    """``func`` applied to the elements where ``valid`` (arrays indexed, scalars passed as they are);
-    NaN elsewhere. Returns ``n_out`` arrays shaped like ``valid``."""
-    outs = [np.full(valid.shape, np.nan) for _ in range(n_out)]
-    if valid.any():
-        res = func(*[np.asarray(a)[valid] if np.ndim(a) else a for a in arrays])
-        for o, r in zip(outs, res):
-            o[valid] = r
-    return outs
-
-
-@dataclass(frozen=True)
-class NoiseSourceResult:
-    """A noise-source measurement at one tuning, per sub-band; the last entry of every array is the
-    whole usable band.
-
-    Attributes
-    ----------
-    low_hz, high_hz, center_hz : ndarray
-        Sub-band limits and centres, offsets from the centre frequency, Hz.
-    enr : ndarray
-        ENR of each sub-band, linear.
-    t_cold_k, u_enr_db : float
-        Cold-state temperature (K) and the ENR's standard uncertainty (dB) used.
-    n_cold, n_hot : ndarray
-        Mean density of the pooled cold and hot captures (FS**2/Hz).
-    dof_cold, dof_hot : ndarray
-        Their degrees of freedom.
-    valid : ndarray of bool
-        Sub-bands where the cold reading is above zero and the hot one above it: the Y-factor
-        exists there.
-    receiver : YFactor
-        The receive system's Y-factor and noise factor, arrays; NaN where not ``valid``.
-    n_cold_dut, n_hot_dut, dof_cold_dut, dof_hot_dut : ndarray or None
-        The same for the captures through the DUT (None without them).
-    valid_dut : ndarray of bool or None
-        Sub-bands ``valid`` where the hot reading through the DUT is also above the cold one.
-    dut : DutFromNoise or None
-        The DUT's gain and noise factor, arrays; NaN where not ``valid_dut``. Its ``system`` is the
-        Y-factor through the DUT.
-    """
-
-    low_hz: np.ndarray
-    high_hz: np.ndarray
-    center_hz: np.ndarray
-    enr: np.ndarray
-    t_cold_k: float
-    u_enr_db: float
-    n_cold: np.ndarray
-    n_hot: np.ndarray
-    dof_cold: np.ndarray
-    dof_hot: np.ndarray
-    valid: np.ndarray
-    receiver: YFactor
-    n_cold_dut: np.ndarray | None = None
-    n_hot_dut: np.ndarray | None = None
-    dof_cold_dut: np.ndarray | None = None
-    dof_hot_dut: np.ndarray | None = None
-    valid_dut: np.ndarray | None = None
-    dut: DutFromNoise | None = None
-
-
-def noise_source_analysis(cold: Sequence[Psd], hot: Sequence[Psd], cold_dut: Sequence[Psd] = (),
-                          hot_dut: Sequence[Psd] = (), *, enr_db, n_sub_bands: int = 16, t_cold_k=T0_K,
-                          u_enr_db: float = 0.0, dc_halfwidth_hz: float | None = None,
-                          edge_fraction: float = 0.1) -> NoiseSourceResult:
-    """Y-factor noise figure per sub-band, and with captures through a DUT its gain and noise figure.
-
-    Parameters
-    ----------
-    cold, hot : sequence of Psd
-        Spectra of the receiver alone with the source off and on; repeated captures of one state
-        are pooled.
-    cold_dut, hot_dut : sequence of Psd, optional
-        Spectra with the DUT between the source and the receiver; both or neither.
-    enr_db : float or callable
-        ENR in dB, constant or a function of offset frequency (Hz, array) -> dB
-        (:func:`sub_band_densities`).
-    n_sub_bands : int
-        Sub-bands across the common usable band.
-    t_cold_k : float
-        Physical temperature of the source when off, K.
-    u_enr_db : float
-        Standard uncertainty of the ENR, dB.
-    dc_halfwidth_hz, edge_fraction
-        DC spike and band edges left out (:func:`dsp.floor.usable_mask`).
-
-    Returns
-    -------
-    NoiseSourceResult
-
-    Raises
-    ------
-    ValueError
-        A sub-band holds no usable bin (too many sub-bands), a state has no spectrum, or only one of
-        the two DUT states is given.
-
-    Notes
-    -----
-    Each spectrum's mean density per sub-band comes from :func:`sub_band_densities` (ENR weighted
-    by the first cold spectrum's density). Repeats of one state are pooled as the mean density,
-    whose degrees of freedom are the sum of theirs (independent chi-squared estimates of one
-    density). Then :func:`y_factor`, F = [ENR - Y*(T_cold/T0 - 1)]/(Y - 1), and with the DUT
-    :func:`dut_from_noise`, G = (Nh,dut - Nc,dut)/(Nh - Nc) and F1 = F12 - (F2 - 1)/G, each in the
-    sub-bands where its excess is positive; NaN elsewhere.
-
-    References
-    ----------
-    Pozar, *Microwave Engineering*, noise chapter (Y-factor method) [from memory].
-    Friis, "Noise figures of radio receivers", Proc. IRE 32, 1944.
-    """
-    groups = [list(cold), list(hot), list(cold_dut), list(hot_dut)]
-    if not groups[0] or not groups[1]:
-        raise ValueError(f"need at least one cold and one hot spectrum, got {len(groups[0])} and {len(groups[1])}")
-    with_dut = bool(groups[2]) or bool(groups[3])
-    if with_dut and not (groups[2] and groups[3]):
-        raise ValueError(f"the DUT needs both cold and hot spectra, got {len(groups[2])} and {len(groups[3])}")
-    if enr_db is None:
-        raise ValueError("enr_db is needed")
-    sb = sub_band_densities([s for g in groups for s in g], n_sub_bands=n_sub_bands, edge_fraction=edge_fraction,
-                            dc_halfwidth_hz=dc_halfwidth_hz, enr_db=enr_db)
-    if not np.all(np.isfinite(sb.enr) & (sb.enr > 0)):
-        raise ValueError(f"enr_db={enr_db!r} gives a non-finite ENR")
-    pooled, start = [], 0
-    for g in groups:
-        idx = range(start, start + len(g))
-        start += len(g)
-        pooled.append((np.mean([sb.density[i] for i in idx], axis=0), np.sum([sb.dof[i] for i in idx], axis=0))
-                      if g else (None, None))
-    (n_c, d_c), (n_h, d_h), (n_cd, d_cd), (n_hd, d_hd) = pooled
-    t_cold_k, u_enr_db = float(t_cold_k), float(u_enr_db)
-
-    def y_fn(h, c, e, dh, dc):
-        r = y_factor(h, c, e, t_cold_k=t_cold_k, dof_hot=dh, dof_cold=dc, u_enr_db=u_enr_db)
-        return r.y, r.noise_factor, r.u_noise_factor
-
-    valid = (n_c > 0) & (n_h > n_c)
-    y, f, u_f = _where(y_fn, valid, 3, n_h, n_c, sb.enr, d_h, d_c)
-    receiver = YFactor(y=y, enr=sb.enr, t_cold_k=t_cold_k, noise_factor=f, u_noise_factor=u_f)
-    dut = valid_d = None
-    if with_dut:
-        def dut_fn(h, c, hd, cd, e, d0, d1, d2, d3):
-            d = dut_from_noise(h, c, hd, cd, e, t_cold_k=t_cold_k, dof=(d0, d1, d2, d3), u_enr_db=u_enr_db)
-            s = d.system
-            return d.gain, d.u_gain, d.noise_factor, d.u_noise_factor, s.y, s.noise_factor, s.u_noise_factor
-
-        valid_d = valid & (n_cd > 0) & (n_hd > n_cd)
-        gain, u_gain, f1, u_f1, y12, f12, u_f12 = _where(dut_fn, valid_d, 7, n_h, n_c, n_hd, n_cd, sb.enr,
-                                                         d_h, d_c, d_hd, d_cd)
-        dut = DutFromNoise(gain=gain, u_gain=u_gain, noise_factor=f1, u_noise_factor=u_f1,
-                           system=YFactor(y=y12, enr=sb.enr, t_cold_k=t_cold_k, noise_factor=f12,
-                                          u_noise_factor=u_f12))
-    return NoiseSourceResult(
-        low_hz=sb.low_hz, high_hz=sb.high_hz, center_hz=sb.center_hz, enr=sb.enr, t_cold_k=t_cold_k,
-        u_enr_db=u_enr_db, n_cold=n_c, n_hot=n_h, dof_cold=d_c, dof_hot=d_h, valid=valid, receiver=receiver,
-        n_cold_dut=n_cd, n_hot_dut=n_hd, dof_cold_dut=d_cd, dof_hot_dut=d_hd, valid_dut=valid_d, dut=dut)
 
 
 def excess_u_db(n_hot, n_cold, dof_hot, dof_cold):

@@ -14,6 +14,7 @@ from rxbench.cli import main
 from rxbench.enr import EnrTableError, parse_enr_table
 from rxbench.recordings import write_sigmf
 from rxbench.dsp import synth
+from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.units import T0_K, power_from_db, w_from_dbm
 
 FS = 250e3
@@ -69,7 +70,7 @@ def test_noise_figure_within_0_15_db(tmp_path, capsys):
     assert res["y_db"] == pytest.approx(y_true, abs=0.1)
     assert 0 < res["noise_figure_expanded_uncertainty_db"] < 0.15
     assert res["warnings"] == [] and err == ""
-    assert len(res["curve"]) == 16
+    assert len(res["curve"]) == N_SUB_BANDS  # the one default (dsp.subbands)
     assert all(abs(row["noise_figure_db"] - 6.0) < 0.15 + 2 * row["noise_figure_u_db"] * 2 for row in res["curve"])
     assert "insertion_loss_db" not in res
 

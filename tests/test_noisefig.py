@@ -1,5 +1,6 @@
-"""Noise figure formulas (worked examples with their sources) and the noise-source method on
-synthetic spectra with known receiver noise temperature, ENR and DUT loss."""
+"""Noise figure formulas (dsp.noisefig: worked examples with their sources) and the noise-source
+method (dsp.subbands, dsp.noise_source, dsp.stitch) on synthetic spectra with known receiver noise
+temperature, ENR and DUT loss."""
 
 from __future__ import annotations
 
@@ -10,7 +11,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from rxbench.dsp import noise_source as nsm
 from rxbench.dsp import noisefig as nfm
+from rxbench.dsp import stitch as stm
+from rxbench.dsp import subbands as sbm
 from rxbench.dsp import synth
 from rxbench.dsp.spectrum import get_window, psd
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_k, power_from_db
@@ -143,16 +147,16 @@ def test_band_dof_of_hann_bins():
     # (from the window's spectrum, -1/4, 1/2, -1/4 taps; Harris 1978). Two bins then carry
     # nu * 4 / (2 + 2 * (4/9)) degrees of freedom; many bins tend to nu * n / (1 + 2*(4/9 + 1/36)).
     w = get_window("hann", 4096)
-    assert nfm.band_dof(10.0, 1, w) == pytest.approx(10.0)
-    assert nfm.band_dof(10.0, 2, w) == pytest.approx(10.0 * 4 / (2 + 8 / 9))
-    assert nfm.band_dof(10.0, 2000, w) == pytest.approx(10.0 * 2000 / (1 + 2 * (4 / 9 + 1 / 36)), rel=1e-3)
+    assert sbm.band_dof(10.0, 1, w) == pytest.approx(10.0)
+    assert sbm.band_dof(10.0, 2, w) == pytest.approx(10.0 * 4 / (2 + 8 / 9))
+    assert sbm.band_dof(10.0, 2000, w) == pytest.approx(10.0 * 2000 / (1 + 2 * (4 / 9 + 1 / 36)), rel=1e-3)
 
 
 def test_stitch_trims_overlaps_at_the_midpoint():
     centers = [100e6, 100.15e6]
     cover = [(99.9e6, 100.1e6), (100.05e6, 100.25e6)]
     f = [np.linspace(99.9e6, 100.1e6, 21), np.linspace(100.05e6, 100.25e6, 21)]
-    keep = nfm.stitch_masks(centers, f, cover)
+    keep = stm.stitch_masks(centers, f, cover)
     kept = np.sort(np.concatenate([fi[k] for fi, k in zip(f, keep)]))
     # Everything from the first up to the midpoint 100.075 MHz, the second beyond it; no duplicates.
     assert f[0][keep[0]].max() <= 100.075e6
@@ -182,7 +186,7 @@ def test_sub_band_densities_read_the_known_noise_density():
     # the cold reading sits at k*(T0 + Te)*gain (synth.Dongle.noise_density_dbfs_per_hz).
     rng = np.random.default_rng(1)
     cold, hot = _spectra(rng)
-    sb = nfm.sub_band_densities([cold, hot], n_sub_bands=8, enr_db=15.0)
+    sb = sbm.sub_band_densities([cold, hot], n_sub_bands=8, enr_db=15.0)
     expected = power_from_db(RX.noise_density_dbfs_per_hz(T0_K))
     whole = sb.density[0][-1]
     assert db_from_power(whole / expected) == pytest.approx(0.0, abs=0.03)  # 8-bit quantisation adds ~0.01 dB here
@@ -194,7 +198,7 @@ def test_noise_figure_from_synthetic_noise_source():
     # What must be shown: NF within 0.15 dB of the receiver's known noise figure (synthetic).
     rng = np.random.default_rng(2)
     cold, hot = _spectra(rng)
-    sb = nfm.sub_band_densities([cold, hot], n_sub_bands=8, enr_db=15.0)
+    sb = sbm.sub_band_densities([cold, hot], n_sub_bands=8, enr_db=15.0)
     r = nfm.y_factor(sb.density[1], sb.density[0], sb.enr, dof_hot=sb.dof[1], dof_cold=sb.dof[0])
     assert r.nf_db[-1] == pytest.approx(RX.noise_figure_db, abs=0.15)
     assert np.all(np.abs(r.nf_db[:-1] - RX.noise_figure_db) < 0.15 + 3 * r.u_nf_db[:-1])
@@ -207,7 +211,7 @@ def test_cold_source_at_another_temperature():
     x_cold = synth.thermal_noise(N, FS, 370.0, rng)
     x_hot = synth.noise_source(N, FS, 15.0, True, rng)
     cold, hot = (psd(RX.receive(x, FS, rng), FS, nperseg=1024) for x in (x_cold, x_hot))
-    sb = nfm.sub_band_densities([cold, hot], n_sub_bands=1, enr_db=15.0)
+    sb = sbm.sub_band_densities([cold, hot], n_sub_bands=1, enr_db=15.0)
     r = nfm.y_factor(sb.density[1][-1], sb.density[0][-1], sb.enr[-1], t_cold_k=370.0)
     assert r.nf_db == pytest.approx(RX.noise_figure_db, abs=0.15)
     wrong = nfm.y_factor(sb.density[1][-1], sb.density[0][-1], sb.enr[-1])  # assuming 290 K misleads
@@ -220,7 +224,7 @@ def test_passive_dut_loss_and_noise_figure():
     rng = np.random.default_rng(4)
     cold, hot = _spectra(rng)
     cold_d, hot_d = _spectra(rng, loss_db=3.5)
-    sb = nfm.sub_band_densities([cold, hot, cold_d, hot_d], n_sub_bands=8, enr_db=15.0)
+    sb = sbm.sub_band_densities([cold, hot, cold_d, hot_d], n_sub_bands=8, enr_db=15.0)
     d = nfm.dut_from_noise(sb.density[1], sb.density[0], sb.density[3], sb.density[2], sb.enr,
                            dof=(sb.dof[1], sb.dof[0], sb.dof[3], sb.dof[2]))
     assert d.insertion_loss_db[-1] == pytest.approx(3.5, abs=0.15)
@@ -237,7 +241,7 @@ def test_sloped_dut_recovered_across_the_band():
     rng = np.random.default_rng(5)
     cold, hot = _spectra(rng, enr_db=20.0)
     cold_d, hot_d = _spectra(rng, enr_db=20.0, loss_db=slope)
-    sb = nfm.sub_band_densities([cold, hot, cold_d, hot_d], n_sub_bands=12, enr_db=20.0)
+    sb = sbm.sub_band_densities([cold, hot, cold_d, hot_d], n_sub_bands=12, enr_db=20.0)
     d = nfm.dut_from_noise(sb.density[1], sb.density[0], sb.density[3], sb.density[2], sb.enr,
                            dof=(sb.dof[1], sb.dof[0], sb.dof[3], sb.dof[2]))
     truth = slope(sb.center_hz[:-1])
@@ -255,7 +259,7 @@ def test_stated_uncertainty_matches_the_scatter(enr_db):
     nfs, us = [], []
     for _ in range(60):
         cold, hot = _spectra(rng, enr_db=enr_db, n=8192, dongle=dongle, nperseg=256)
-        sb = nfm.sub_band_densities([cold, hot], n_sub_bands=1, enr_db=enr_db)
+        sb = sbm.sub_band_densities([cold, hot], n_sub_bands=1, enr_db=enr_db)
         r = nfm.y_factor(sb.density[1][-1], sb.density[0][-1], sb.enr[-1], dof_hot=sb.dof[1][-1],
                          dof_cold=sb.dof[0][-1])
         nfs.append(r.nf_db)
@@ -277,8 +281,8 @@ def test_noise_source_analysis_pools_repeats_and_recovers_the_truth():
     c2, h2 = _spectra(rng)
     cd1, hd1 = _spectra(rng, loss_db=3.5)
     cd2, hd2 = _spectra(rng, loss_db=3.5)
-    ns = nfm.noise_source_analysis([c1, c2], [h1, h2], [cd1, cd2], [hd1, hd2], enr_db=15.0, n_sub_bands=8)
-    one = nfm.noise_source_analysis([c1], [h1], enr_db=15.0, n_sub_bands=8)
+    ns = nsm.noise_source_analysis([c1, c2], [h1, h2], [cd1, cd2], [hd1, hd2], enr_db=15.0, n_sub_bands=8)
+    one = nsm.noise_source_analysis([c1], [h1], enr_db=15.0, n_sub_bands=8)
     assert ns.valid.all() and ns.valid_dut.all()
     assert ns.receiver.nf_db[-1] == pytest.approx(RX.noise_figure_db, abs=0.15)
     assert ns.dut.insertion_loss_db[-1] == pytest.approx(3.5, abs=0.15)
@@ -296,9 +300,9 @@ def test_noise_source_analysis_agrees_with_the_per_call_functions():
     c1, h1 = _spectra(rng, enr_db=12.0)
     c2, h2 = _spectra(rng, enr_db=12.0)
     cd, hd = _spectra(rng, enr_db=12.0, loss_db=2.0)
-    ns = nfm.noise_source_analysis([c1, c2], [h1, h2], [cd], [hd], enr_db=12.0, n_sub_bands=6,
+    ns = nsm.noise_source_analysis([c1, c2], [h1, h2], [cd], [hd], enr_db=12.0, n_sub_bands=6,
                                    t_cold_k=300.0, u_enr_db=0.1)
-    sb = nfm.sub_band_densities([c1, c2, h1, h2, cd, hd], n_sub_bands=6, enr_db=12.0)
+    sb = sbm.sub_band_densities([c1, c2, h1, h2, cd, hd], n_sub_bands=6, enr_db=12.0)
     n_c, n_h = (sb.density[0] + sb.density[1]) / 2, (sb.density[2] + sb.density[3]) / 2
     dof_c, dof_h = sb.dof[0] + sb.dof[1], sb.dof[2] + sb.dof[3]
     y = nfm.y_factor(n_h, n_c, sb.enr, t_cold_k=300.0, dof_hot=dof_h, dof_cold=dof_c, u_enr_db=0.1)
@@ -323,8 +327,8 @@ def test_noise_source_analysis_leaves_out_sub_bands_without_excess():
     hot_bad = replace(hot, density=np.where(top, 0.9 * cold.density, hot.density))
     top_d = hot_d.frequency_hz < -0.5 * FS / 2 * 0.9
     hot_d_bad = replace(hot_d, density=np.where(top_d, 0.9 * cold_d.density, hot_d.density))
-    ns = nfm.noise_source_analysis([cold], [hot_bad], [cold_d], [hot_d_bad], enr_db=15.0, n_sub_bands=8)
-    good = nfm.noise_source_analysis([cold], [hot], [cold_d], [hot_d], enr_db=15.0, n_sub_bands=8)
+    ns = nsm.noise_source_analysis([cold], [hot_bad], [cold_d], [hot_d_bad], enr_db=15.0, n_sub_bands=8)
+    good = nsm.noise_source_analysis([cold], [hot], [cold_d], [hot_d], enr_db=15.0, n_sub_bands=8)
     assert ns.valid.tolist() == [True] * 6 + [False, False, True]
     assert ns.valid_dut.tolist() == [False, False] + [True] * 4 + [False, False, True]
     assert np.all(np.isnan(ns.receiver.nf_db[~ns.valid]))
@@ -338,19 +342,19 @@ def test_noise_source_analysis_refuses_half_a_dut_pair():
     rng = np.random.default_rng(10)
     cold, hot = _spectra(rng, n=20_000, nperseg=256)
     with pytest.raises(ValueError, match="both cold and hot"):
-        nfm.noise_source_analysis([cold], [hot], [cold], enr_db=15.0)
+        nsm.noise_source_analysis([cold], [hot], [cold], enr_db=15.0)
     with pytest.raises(ValueError, match="one cold and one hot"):
-        nfm.noise_source_analysis([], [hot], enr_db=15.0)
+        nsm.noise_source_analysis([], [hot], enr_db=15.0)
     with pytest.raises(ValueError, match="too many"):
-        nfm.noise_source_analysis([cold], [hot], enr_db=15.0, n_sub_bands=10_000)
+        nsm.noise_source_analysis([cold], [hot], enr_db=15.0, n_sub_bands=10_000)
 
 
 def test_stitch_offsets_is_stitch_masks_on_absolute_frequencies():
     centers = [100e6, 100.15e6]
     offsets = [np.linspace(-0.1e6, 0.1e6, 21)] * 2
     bands = [(-0.1e6, 0.1e6)] * 2
-    freqs, keep = nfm.stitch_offsets(centers, offsets, bands)
-    want = nfm.stitch_masks(centers, [c + o for c, o in zip(centers, offsets)],
+    freqs, keep = stm.stitch_offsets(centers, offsets, bands)
+    want = stm.stitch_masks(centers, [c + o for c, o in zip(centers, offsets)],
                             [(c - 0.1e6, c + 0.1e6) for c in centers])
     for f, c, o, k, w in zip(freqs, centers, offsets, keep, want):
         np.testing.assert_array_equal(f, c + o)

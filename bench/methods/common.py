@@ -13,14 +13,12 @@ from rxbench import keys
 from rxbench.reading import capture_start_s, pool_tones, require_same_signal, tone_db
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.ladder import mismatch_components
+from rxbench.dsp.subbands import N_SUB_BANDS  # noqa: F401  (the one default, re-exported)
 from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
 
 #: Coverage factor of every expanded uncertainty rxbench reports (about 95 %; JCGM 100:2008, 6.2).
 COVERAGE_FACTOR = DEFAULT_K
 
-#: Sub-bands per capture for a session's noise-source curves (``rxbench nf`` still defaults to 16; the sweep
-#: planner's grid: neighbouring tunings overlap by one sub-band, :mod:`rxbench.sweep`).
-N_SUB_BANDS = 8
 
 #: Where each SWR of a loss budget's impedance-mismatch terms comes from, per front end.
 SWR_FROM_OPTIONS = {key: "--" + key.replace("_", "-") for key in keys.SWRS}

@@ -1,0 +1,487 @@
+"""Noise-source methods: the receive system's noise figure by the Y-factor method, and with the same
+pair captured through a device its insertion loss and noise figure across frequency, stitched over
+several tunings and summarised per amateur band.
+
+Two steps, each a function to a frozen result:
+
+- :func:`y_factor_band` -- the captures of one tuning (repeats of a role pooled): Y, the noise
+  figure, and with the DUT its loss and noise figure, per sub-band and over the whole usable band
+  (:class:`NoiseSourceBand`);
+- :func:`noise_figure_curve` -- the bands of one device at every tuning: the noise figure pooled
+  over the tunings, the curve stitched across frequency, the per-band tables
+  (:class:`NoiseFigureResult`; its ``to_dict()`` is what ``rxbench nf --json`` prints).
+
+``rxbench nf`` (flags) and a session (``hot``/``cold`` captures by role) call both. The numerics
+are :mod:`rxbench.dsp.noise_source` (per tuning), :mod:`rxbench.dsp.stitch` and
+:mod:`rxbench.dsp.bands`. The gain method (a tone of known level) is in :mod:`rxbench.methods.gain`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import Callable, NamedTuple, Sequence
+
+import numpy as np
+
+from rxbench.dsp import noise_source as nsm
+from rxbench.dsp.noisefig import excess_u_db, y_sensitivity
+from rxbench.dsp.spectrum import Psd
+from rxbench.dsp.stitch import stitch_offsets
+from rxbench.dsp.subbands import N_SUB_BANDS
+from rxbench.dsp.units import T0_K, db_from_power
+from rxbench.errors import MeasurementError, UsageError
+from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
+from rxbench.recordings import Capture
+
+#: Warn when one dB of error in Y moves the noise figure by more than this many dB.
+Y_SENSITIVITY_WARN = 2.0
+#: Warn when an expanded uncertainty (dB) exceeds this.
+U_WARN_DB = 0.5
+#: The roles of one tuning, in the order the analysis takes them.
+ROLES = ("cold", "hot", "cold_dut", "hot_dut")
+#: Old key names of a band (old -> new), kept for one release: ``rxbench nf``'s ``bands`` used the
+#: first, a session's ``noise_figure`` the second.
+BAND_ALIASES = {"noise_figure_u_db": "u_noise_figure_db", "usable_band_hz": "band_hz",
+                "insertion_loss_u_db": "u_insertion_loss_db", "dut_noise_figure_u_db": "u_dut_noise_figure_db"}
+
+_DB_PER_NEPER = 10.0 / math.log(10.0)
+
+
+class Spectrum(NamedTuple):
+    """One capture's averaged spectrum (a :class:`rxbench.reading.Reading` serves as well)."""
+
+    capture: Capture
+    psd: Psd
+
+
+def _db(x) -> float:
+    return float(db_from_power(x)) if x is not None and np.isfinite(x) and x > 0 else math.nan
+
+
+def _u_db(u, x) -> float:
+    return float(_DB_PER_NEPER * u / x) if np.isfinite(x) and x > 0 else math.nan
+
+
+def _names(spectra) -> str:
+    return " + ".join(s.capture.path.name for s in spectra)
+
+
+def _mean_with_u(values, us) -> tuple[float, float]:
+    """Mean of independent values and its standard uncertainty."""
+    v, u = np.asarray(values, float), np.asarray(us, float)
+    return float(v.mean()), float(np.sqrt(np.sum(u**2)) / v.size)
+
+
+def _list(a) -> list:
+    return np.asarray(a, dtype=float).tolist()
+
+
+@dataclass(frozen=True, eq=False)
+class NoiseSourceBand:
+    """The noise-source measurement at one tuning.
+
+    Attributes
+    ----------
+    center_hz : float or None
+        The captures' tuning (None: unknown; offsets only).
+    sample_rate_hz : float
+    nperseg : int
+        FFT length of the spectra.
+    numbers : rxbench.dsp.noise_source.NoiseSourceResult
+        Per sub-band, the whole usable band last.
+    captures : dict
+        Role -> capture names.
+    device : str
+        The DUT's device label (several devices compared), else "".
+    n_devices : int
+        Identical devices in the path (2: a back-to-back pair).
+    warnings : tuple of str
+    """
+
+    center_hz: float | None
+    sample_rate_hz: float
+    nperseg: int
+    numbers: nsm.NoiseSourceResult
+    captures: dict = field(default_factory=dict)
+    device: str = ""
+    n_devices: int = 1
+    warnings: tuple = ()
+
+    @property
+    def has_dut(self) -> bool:
+        return self.numbers.dut is not None
+
+    @property
+    def noise_factor(self) -> float:
+        return float(self.numbers.receiver.noise_factor[-1])
+
+    @property
+    def u_noise_factor(self) -> float:
+        return float(self.numbers.receiver.u_noise_factor[-1])
+
+    @property
+    def y(self) -> float:
+        return float(self.numbers.receiver.y[-1])
+
+    @property
+    def enr(self) -> float:
+        return float(self.numbers.enr[-1])
+
+    @property
+    def noise_figure_db(self) -> float:
+        return _db(self.noise_factor)
+
+    @property
+    def u_noise_figure_db(self) -> float:
+        return _u_db(self.u_noise_factor, self.noise_factor)
+
+    @property
+    def expanded_uncertainty_db(self) -> float:
+        return COVERAGE_FACTOR * self.u_noise_figure_db
+
+    @property
+    def sensitivity(self) -> float:
+        """d(NF_dB)/d(Y_dB) over the whole band (:func:`rxbench.dsp.noisefig.y_sensitivity`)."""
+        return float(y_sensitivity(self.y, self.enr, t_cold_k=self.numbers.t_cold_k))
+
+    @property
+    def band_hz(self) -> list[float]:
+        return [float(self.numbers.low_hz[-1]), float(self.numbers.high_hz[-1])]
+
+    def _dut(self, name: str) -> float | None:
+        d = self.numbers.dut
+        return None if d is None else float(np.asarray(getattr(d, name))[-1])
+
+    @property
+    def insertion_loss_db(self) -> float | None:
+        g = self._dut("gain")
+        return None if g is None else -_db(g)
+
+    @property
+    def u_insertion_loss_db(self) -> float | None:
+        g = self._dut("gain")
+        return None if g is None else _u_db(self._dut("u_gain"), g)
+
+    @property
+    def dut_noise_figure_db(self) -> float | None:
+        f = self._dut("noise_factor")
+        return None if f is None else _db(f)
+
+    @property
+    def u_dut_noise_figure_db(self) -> float | None:
+        f = self._dut("noise_factor")
+        return None if f is None else _u_db(self._dut("u_noise_factor"), f)
+
+    def sub_bands(self) -> dict:
+        """Per sub-band (the whole band left out): offsets from the centre (Hz) and the numbers, as lists."""
+        ns = self.numbers
+        rx = ns.receiver
+        f = np.asarray(rx.noise_factor)[:-1]
+        out = {"offset_hz": _list(ns.center_hz[:-1]), "low_hz": _list(ns.low_hz[:-1]),
+               "high_hz": _list(ns.high_hz[:-1]), "width_hz": _list((ns.high_hz - ns.low_hz)[:-1]),
+               "enr_db": [_db(v) for v in ns.enr[:-1]], "y_db": [_db(v) for v in np.asarray(rx.y)[:-1]],
+               "noise_figure_db": [_db(v) for v in f],
+               "u_noise_figure_db": [_u_db(u, v) for u, v in zip(np.asarray(rx.u_noise_factor)[:-1], f)],
+               "noise_temperature_k": _list(T0_K * (f - 1.0))}
+        d = ns.dut
+        if d is not None:
+            g, f1 = np.asarray(d.gain)[:-1], np.asarray(d.noise_factor)[:-1]
+            own = np.asarray(excess_u_db(ns.n_hot_dut, ns.n_cold_dut, ns.dof_hot_dut, ns.dof_cold_dut), float)
+            out.update({"insertion_loss_db": [-_db(v) for v in g],
+                        "u_insertion_loss_db": [_u_db(u, v) for u, v in zip(np.asarray(d.u_gain)[:-1], g)],
+                        "u_insertion_loss_own_db": _list(np.where(np.isfinite(g), own[:-1], np.nan)),
+                        "dut_noise_figure_db": [_db(v) for v in f1],
+                        "u_dut_noise_figure_db": [_u_db(u, v) for u, v in
+                                                  zip(np.asarray(d.u_noise_factor)[:-1], f1)]})
+        return out
+
+    def to_dict(self) -> dict:
+        ns = self.numbers
+        il, u_il = self.insertion_loss_db, self.u_insertion_loss_db
+        out = {
+            "center_hz": self.center_hz, "sample_rate_hz": self.sample_rate_hz, "nperseg": self.nperseg,
+            "band_hz": self.band_hz, "dof_hot": float(ns.dof_hot[-1]), "dof_cold": float(ns.dof_cold[-1]),
+            "y_db": _db(self.y), "enr_db": _db(self.enr), "u_enr_db": ns.u_enr_db, "t_cold_k": ns.t_cold_k,
+            "noise_figure_db": self.noise_figure_db, "u_noise_figure_db": self.u_noise_figure_db,
+            "expanded_uncertainty_db": self.expanded_uncertainty_db,
+            "noise_temperature_k": T0_K * (self.noise_factor - 1.0),
+            "u_noise_temperature_k": T0_K * self.u_noise_factor, "nf_per_y_db": self.sensitivity,
+            "insertion_loss_db": il, "u_insertion_loss_db": u_il,
+            "expanded_uncertainty_loss_db": None if u_il is None else COVERAGE_FACTOR * u_il,
+            "dut_noise_figure_db": self.dut_noise_figure_db, "u_dut_noise_figure_db": self.u_dut_noise_figure_db,
+            "device": self.device, "n_devices": self.n_devices, "coverage_factor": COVERAGE_FACTOR,
+            "captures": self.captures, "sub_bands": self.sub_bands(), "warnings": list(self.warnings),
+        }
+        return with_aliases(out, BAND_ALIASES)
+
+
+def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_dut: Sequence = (), *,
+                  enr_db: float | Callable, n_sub_bands: int = N_SUB_BANDS, t_cold_k: float = T0_K,
+                  u_enr_db: float = 0.0, require_dut: bool = True, device: str = "",
+                  n_devices: int = 1) -> NoiseSourceBand:
+    """The Y-factor noise figure at one tuning, and with the DUT pair its loss and noise figure.
+
+    Parameters
+    ----------
+    cold, hot : sequence of Spectrum (or Reading)
+        The receiver alone with the source off and on; repeats are pooled.
+    cold_dut, hot_dut : sequence of Spectrum, optional
+        The same with the DUT between source and dongle; both or neither.
+    enr_db : float or callable
+        The source's ENR, dB: a number or a function of offset frequency (Hz, array) -> dB.
+    n_sub_bands : int
+        Sub-bands across the usable band (:data:`rxbench.dsp.subbands.N_SUB_BANDS`).
+    t_cold_k, u_enr_db : float
+        The source's temperature when off (K), and the ENR's standard uncertainty (dB).
+    require_dut : bool
+        With the DUT pair given but no excess through it: MeasurementError (True), or a warning and
+        the receiver's noise figure alone (False).
+    device, n_devices
+        The DUT's label and how many identical devices are in the path.
+
+    Raises
+    ------
+    MeasurementError
+        The hot reading is not above the cold one over the band (or through the DUT, see above).
+    UsageError
+        Too many sub-bands for the spectra's bins, or only one of the two DUT states.
+    """
+    groups = [list(g) for g in (cold, hot, cold_dut, hot_dut)]
+    warnings: list[str] = []
+    first = groups[1][0].capture if groups[1] else groups[0][0].capture
+    kw = dict(enr_db=enr_db, n_sub_bands=n_sub_bands, t_cold_k=t_cold_k, u_enr_db=u_enr_db,
+              dc_halfwidth_hz=None if first.is_complex else 0.0)
+    try:
+        ns = nsm.noise_source_analysis(*([s.psd for s in g] for g in groups), **kw)
+    except ValueError as exc:
+        raise UsageError(f"{n_sub_bands} sub-bands: {exc}") from None
+    if not ns.valid[-1]:
+        raise MeasurementError(
+            f"{_names(groups[1])} (hot) reads {_db(ns.n_hot[-1] / ns.n_cold[-1]):.3f} dB against "
+            f"{_names(groups[0])} (cold): the hot reading must be the higher; are the captures swapped, "
+            "or was the source off?")
+    if not ns.valid[:-1].all():
+        warnings.append(f"{_names(groups[1])}: in {int((~ns.valid[:-1]).sum())} sub-band(s) the hot reading is "
+                        "not above the cold one; no noise figure there")
+    if ns.dut is not None and not ns.valid_dut[-1]:
+        msg = (f"{_names(groups[3])} (hot-dut) is not above {_names(groups[2])} (cold-dut): no noise-source "
+               "excess came through the DUT")
+        if require_dut:
+            raise MeasurementError(msg)
+        warnings.append(msg + "; no loss")
+        groups[2:] = [[], []]
+        ns = nsm.noise_source_analysis(*([s.psd for s in g] for g in groups), **kw)
+    elif ns.dut is not None and not ns.valid_dut[:-1].all():
+        warnings.append(f"{_names(groups[3])}: in {int((~ns.valid_dut[:-1]).sum())} sub-band(s) no excess "
+                        "came through the DUT; no loss there")
+    nperseg = next(s for g in groups for s in g).psd.window.size
+    band = NoiseSourceBand(
+        first.center_hz, first.sample_rate_hz, int(nperseg), ns,
+        captures={role: [s.capture.name for s in g] for role, g in zip(ROLES, groups) if g},
+        device=device if ns.dut is not None else "", n_devices=n_devices if ns.dut is not None else 1)
+    at = "" if band.center_hz is None else f" at {band.center_hz / 1e6:g} MHz"
+    u95 = band.expanded_uncertainty_db
+    if abs(band.sensitivity) > Y_SENSITIVITY_WARN or u95 > U_WARN_DB:
+        warnings.append(
+            f"Y = {_db(band.y):.2f} dB{at} is small for a trustworthy noise figure: NF uncertain by "
+            f"±{u95:.2f} dB (95 %) from averaging alone, and every 0.1 dB of error in Y (gain drift, the "
+            f"source's match changing between on and off) moves it by {abs(band.sensitivity) * 0.1:.2f} dB; "
+            "use a source with more ENR")
+    return replace(band, warnings=tuple(warnings))
+
+
+def _curve_rows(bands: Sequence[NoiseSourceBand]) -> list[dict]:
+    """Sub-band rows of every tuning, overlaps trimmed (each frequency from the tuning nearest to it),
+    in ascending frequency; offsets from the centre when a tuning is unknown."""
+    absolute = all(b.center_hz is not None for b in bands)
+    with_dut = any(b.has_dut for b in bands)
+    subs = [b.sub_bands() for b in bands]
+    keep = [np.ones(len(s["offset_hz"]), bool) for s in subs]
+    if absolute and len(bands) > 1:
+        _, keep = stitch_offsets([b.center_hz for b in bands], [s["offset_hz"] for s in subs],
+                                 [b.band_hz for b in bands])
+    rows = []
+    for b, s, k in zip(bands, subs, keep):
+        c = b.center_hz if absolute else 0.0
+        for i in np.flatnonzero(k):
+            row = {"frequency_hz" if absolute else "offset_hz": c + s["offset_hz"][i],
+                   "low_hz": c + s["low_hz"][i], "high_hz": c + s["high_hz"][i],
+                   "tuned_hz": b.center_hz, "enr_db": s["enr_db"][i], "y_db": s["y_db"][i],
+                   "noise_figure_db": s["noise_figure_db"][i], "noise_figure_u_db": s["u_noise_figure_db"][i],
+                   "noise_temperature_k": s["noise_temperature_k"][i], "width_hz": s["width_hz"][i]}
+            if with_dut and "insertion_loss_db" not in s:  # this tuning's DUT pair gave no loss
+                row.update(dict.fromkeys(("insertion_loss_db", "insertion_loss_u_db", "insertion_loss_own_u_db",
+                                          "dut_noise_figure_db", "dut_noise_figure_u_db"), math.nan))
+            elif with_dut:
+                row.update(insertion_loss_db=s["insertion_loss_db"][i], insertion_loss_u_db=s["u_insertion_loss_db"][i],
+                           insertion_loss_own_u_db=s["u_insertion_loss_own_db"][i],
+                           dut_noise_figure_db=s["dut_noise_figure_db"][i],
+                           dut_noise_figure_u_db=s["u_dut_noise_figure_db"][i])
+            rows.append(row)
+    key = "frequency_hz" if absolute else "offset_hz"
+    rows.sort(key=lambda row: row[key])
+    return rows
+
+
+@dataclass(frozen=True, eq=False)
+class NoiseFigureResult:
+    """The noise-source measurement of one device over every tuning.
+
+    Attributes
+    ----------
+    bands : tuple of NoiseSourceBand
+        One per tuning, in ascending frequency.
+    curve : tuple of dict
+        The sub-bands of every tuning stitched into one curve (:func:`noise_figure_curve`).
+    enr : str
+        How the ENR was given (for the reader).
+    u_enr_db, t_cold_k : float
+    per_band, per_band_noise_figure : tuple of dict
+        The curve's loss and noise figure per amateur band (absolute frequencies only).
+    warnings : tuple of str
+    """
+
+    bands: tuple
+    curve: tuple
+    enr: str
+    u_enr_db: float
+    t_cold_k: float
+    per_band: tuple = ()
+    per_band_noise_figure: tuple = ()
+    warnings: tuple = ()
+
+    @property
+    def device(self) -> str:
+        return next((b.device for b in self.bands if b.has_dut), "")
+
+    @property
+    def has_dut(self) -> bool:
+        """Does any tuning give the DUT's loss? (The pooled loss is over those that do.)"""
+        return any(b.has_dut for b in self.bands)
+
+    @property
+    def absolute(self) -> bool:
+        return all(b.center_hz is not None for b in self.bands)
+
+    def _pooled(self, value: str, u: str) -> tuple[float, float]:
+        return _mean_with_u([getattr(b, value) for b in self.bands], [getattr(b, u) for b in self.bands])
+
+    @property
+    def noise_factor(self) -> tuple[float, float]:
+        """The noise factor pooled over the tunings, and its standard uncertainty."""
+        return self._pooled("noise_factor", "u_noise_factor")
+
+    @property
+    def noise_figure_db(self) -> float:
+        return _db(self.noise_factor[0])
+
+    @property
+    def u_noise_figure_db(self) -> float:
+        return _u_db(self.noise_factor[1], self.noise_factor[0])
+
+    @property
+    def expanded_uncertainty_db(self) -> float:
+        return COVERAGE_FACTOR * self.u_noise_figure_db
+
+    def _dut_pooled(self, name: str) -> tuple[float, float]:
+        d = [b.numbers.dut for b in self.bands if b.has_dut]
+        return _mean_with_u([float(np.asarray(getattr(x, name))[-1]) for x in d],
+                            [float(np.asarray(getattr(x, "u_" + name))[-1]) for x in d])
+
+    @property
+    def insertion_loss_db(self) -> float | None:
+        if not self.has_dut:
+            return None
+        g, _ = self._dut_pooled("gain")
+        return -_db(g)
+
+    @property
+    def u_insertion_loss_db(self) -> float | None:
+        if not self.has_dut:
+            return None
+        g, u = self._dut_pooled("gain")
+        return _u_db(u, g)
+
+    def columns(self) -> dict | None:
+        """The stitched curve as columns (a session's ``loss_vs_frequency``): points with a noise figure
+        only, missing values None; None without absolute frequencies."""
+        if not self.absolute:
+            return None
+        rows = [r for r in self.curve if math.isfinite(r["noise_figure_db"])]
+        names = {"frequency_hz": "frequency_hz", "width_hz": "width_hz", "noise_figure_db": "noise_figure_db",
+                 "u_noise_figure_db": "noise_figure_u_db", "insertion_loss_db": "insertion_loss_db",
+                 "u_insertion_loss_db": "insertion_loss_u_db", "u_insertion_loss_own_db": "insertion_loss_own_u_db",
+                 "dut_noise_figure_db": "dut_noise_figure_db", "u_dut_noise_figure_db": "dut_noise_figure_u_db"}
+        out = {k: [None if r.get(v) is None or not math.isfinite(r[v]) else r[v] for r in rows]
+               for k, v in names.items()}
+        out["k"] = COVERAGE_FACTOR
+        out["has_loss"] = any(v is not None for v in out["insertion_loss_db"])
+        return out
+
+    def to_dict(self) -> dict:
+        f, u_f = self.noise_factor
+        y = float(np.mean([b.y for b in self.bands]))
+        enr = float(np.mean([b.enr for b in self.bands]))
+        out = {
+            "method": "y-factor", "noise_figure_db": self.noise_figure_db, "noise_figure_u_db": self.u_noise_figure_db,
+            "noise_figure_expanded_uncertainty_db": self.expanded_uncertainty_db,
+            "noise_temperature_k": T0_K * (f - 1.0), "noise_temperature_u_k": T0_K * u_f,
+            "y_db": _db(y), "enr_db": _db(enr), "enr": self.enr, "enr_u_db": self.u_enr_db, "t_cold_k": self.t_cold_k,
+            "coverage_factor": COVERAGE_FACTOR, "device": self.device,
+        }
+        if self.has_dut:
+            f1, u_f1 = self._dut_pooled("noise_factor")
+            out.update(insertion_loss_db=self.insertion_loss_db, insertion_loss_u_db=self.u_insertion_loss_db,
+                       insertion_loss_expanded_uncertainty_db=COVERAGE_FACTOR * self.u_insertion_loss_db,
+                       dut_noise_figure_db=_db(f1), dut_noise_figure_u_db=_u_db(u_f1, f1))
+        out["bands"] = [b.to_dict() for b in self.bands]
+        out["curve"] = [dict(r) for r in self.curve]
+        if self.absolute:
+            if self.has_dut:
+                out["per_band"] = list(self.per_band)
+            out["per_band_noise_figure"] = list(self.per_band_noise_figure)
+        out["warnings"] = list(self.warnings)
+        return out
+
+
+def noise_figure_curve(bands: Sequence[NoiseSourceBand], *, enr: str = "", u_enr_db: float = 0.0,
+                       t_cold_k: float = T0_K) -> NoiseFigureResult:
+    """The noise figure (and the DUT's loss) of one device over every tuning: pooled, stitched into one
+    curve across frequency, and per amateur band.
+
+    ``bands`` are the :func:`y_factor_band` results of one device, one per tuning; ``enr`` says how
+    the ENR was given; ``u_enr_db`` is shared by every sub-band of the per-band noise-figure table
+    (the noise figure moves dB for dB with the ENR, so it does not average down).
+    """
+    from rxbench.sweep_report import loss_band_rows, nf_band_rows
+
+    bands = tuple(sorted(bands, key=lambda b: (b.center_hz is None, b.center_hz or 0.0)))
+    if not bands:
+        raise MeasurementError("no tuning with both a hot and a cold capture; no noise figure")
+    warnings = [w for b in bands for w in b.warnings]
+    curve = tuple(_curve_rows(bands))
+    result = NoiseFigureResult(bands, curve, enr, float(u_enr_db), float(t_cold_k))
+    per_band = per_nf = ()
+    if result.absolute and curve:
+        f = [r["frequency_hz"] for r in curve]
+        w = [r["width_hz"] for r in curve]
+        if result.has_dut:
+            per_band = tuple(loss_band_rows(result.device, f, w, [r["insertion_loss_db"] for r in curve],
+                                            [r["insertion_loss_u_db"] for r in curve], k=COVERAGE_FACTOR,
+                                            n_devices=max(b.n_devices for b in bands)))
+        per_nf = tuple(nf_band_rows(f, w, [r["noise_figure_db"] for r in curve], [r["noise_figure_u_db"] for r in curve],
+                                    u_enr_db=u_enr_db, k=COVERAGE_FACTOR))
+    f_mean, _ = result.noise_factor
+    if f_mean < 1.0:
+        warnings.append(f"noise figure {result.noise_figure_db:.2f} dB is below 0 dB, which is impossible: the ENR is "
+                        "too high, or the dongle's gain (AGC) changed between the hot and cold captures")
+    if result.has_dut:
+        il, u95 = result.insertion_loss_db, COVERAGE_FACTOR * result.u_insertion_loss_db
+        if il < 0:
+            warnings.append(f"the DUT shows {-il:.2f} dB of gain: not a passive device, or the dongle's gain "
+                            "changed between the reference and the DUT captures")
+        if u95 > U_WARN_DB:
+            warnings.append(f"insertion loss uncertain by ±{u95:.2f} dB (95 %): too little noise-source excess came "
+                            "through the DUT; use more ENR or longer captures")
+    return replace(result, per_band=per_band, per_band_noise_figure=per_nf, warnings=tuple(warnings))
