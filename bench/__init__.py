@@ -9,8 +9,9 @@ The Python API (:mod:`rxbench.api`) is re-exported here lazily: ``rxbench.read``
 __version__ = "0.1.0"
 
 #: The API's names (defined in :mod:`rxbench.api`).
-__all__ = ["Analysis", "Capture", "CompareResult", "Loss", "Reading", "Session", "analyze_session", "compare",
-           "direct_loss", "noise_figure", "open_capture", "open_session", "read", "read_paths"]
+__all__ = ["Analysis", "Capture", "CompareResult", "GainMethodResult", "Loss", "LossResult", "NoiseFigureResult",
+           "Reading", "Session", "analyze_session", "compare", "direct_loss", "gain_method", "noise_figure",
+           "open_capture", "open_session", "read", "read_paths"]
 
 
 def __getattr__(name: str):

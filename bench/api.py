@@ -12,20 +12,27 @@ These names are re-exported lazily by ``rxbench/__init__.py`` (module ``__getatt
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
 
-from rxbench.reading import Reading, pool_tones, read_capture
+from rxbench.reading import CENTER_TOLERANCE_HZ, Reading, read_capture
 from rxbench.dsp.ladder import Loss
+from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 from rxbench.dsp.units import T0_K
-from rxbench.errors import MeasurementError, UsageError
+from rxbench.errors import UsageError
+from rxbench.methods.common import pool
 from rxbench.methods.compare import CompareResult, compare_paths, read_paths
+from rxbench.methods.gain import GainMethodResult
+from rxbench.methods.gain import gain_method as _gain_method
+from rxbench.methods.loss import LossResult
+from rxbench.methods.loss import direct_loss as _direct_loss
+from rxbench.methods.noise_source import NoiseFigureResult, noise_figure_curve, y_factor_band
 from rxbench.recordings import Capture, open_capture
 from rxbench.session import Analysis, Session, analyze_session, open_session
 
-__all__ = ["Analysis", "Capture", "CompareResult", "Loss", "Reading", "Session", "analyze_session", "compare",
-           "direct_loss", "noise_figure", "open_capture", "open_session", "read", "read_paths"]
+__all__ = ["Analysis", "Capture", "CompareResult", "GainMethodResult", "Loss", "LossResult", "NoiseFigureResult",
+           "Reading", "Session", "analyze_session", "compare", "direct_loss", "gain_method", "noise_figure",
+           "open_capture", "open_session", "read", "read_paths"]
 
 
 def read(capture, *, near_hz: float | None = None, nperseg: int | None = None,
@@ -48,47 +55,68 @@ def _readings(value, what: str) -> list[Reading]:
     return readings
 
 
-def direct_loss(thru, dut, *, linearity_db: float = 0.0) -> Loss:
+def direct_loss(thru, dut, *, thru_after=None, linearity_db: float | None = None, swr: dict | None = None,
+                n_devices: int = 1) -> LossResult:
     """Direct insertion loss: the thru reading minus the DUT reading, at one generator level.
 
-    ``thru`` and ``dut`` are one :class:`Reading` each, or lists of repeated readings (pooled). The
-    same number, uncertainty and budget as ``rxbench loss --thru ... --dut ... [--linearity-db]``
-    without SWRs; ``linearity_db`` is the half-width of the dongle's linearity error between the two
-    levels (from a ladder check). Returns :class:`rxbench.dsp.ladder.Loss` (``loss_db``,
-    ``expanded_uncertainty_db``, ``budget``).
+    ``thru``, ``dut`` (and ``thru_after``, the thru captured again after the DUT) are one
+    :class:`Reading` each, or lists of repeated readings (pooled). Returns the
+    :class:`~rxbench.methods.loss.LossResult` that ``rxbench loss --thru ... --dut ...
+    [--thru-after ...] [--linearity-db X] [--source-swr ...]`` prints (``to_dict()`` is its JSON):
+    ``insertion_loss_db``, ``expanded_uncertainty_db``, ``loss.budget``, ``warnings``.
+    ``linearity_db`` is the half-width of the dongle's linearity error between the two levels (from a
+    ladder check; None: not assessed, and warned); ``swr`` maps ``source_swr``, ``load_swr``,
+    ``dut_swr`` to the values known.
     """
-    thru, dut = _readings(thru, "thru"), _readings(dut, "dut")
-    t, d = pool_tones(thru, "thru"), pool_tones(dut, "DUT")
-    from rxbench.dsp.ladder import direct_loss as _direct
-
-    try:
-        return _direct(t[0], t[1], d[0], d[1], dof=(t[2], d[2], math.inf), linearity_db=linearity_db)
-    except ValueError as exc:
-        raise MeasurementError(str(exc)) from None
+    groups = [pool(_readings(thru, "thru"), "thru"), pool(_readings(dut, "dut"), "DUT")]
+    after = None if thru_after is None else pool(_readings(thru_after, "thru_after"), "thru")
+    return _direct_loss(*groups, after, linearity_db=linearity_db, swr=swr, n_devices=n_devices)
 
 
-def noise_figure(hot, cold, *, enr_db, n_sub_bands: int = 16, t_cold_k: float = T0_K, u_enr_db: float = 0.0):
-    """The receive system's noise figure by the Y-factor method from noise-source readings.
+def noise_figure(hot, cold, *, enr_db, hot_dut=(), cold_dut=(), n_sub_bands: int = N_SUB_BANDS,
+                 t_cold_k: float = T0_K, u_enr_db: float = 0.0) -> NoiseFigureResult:
+    """The receive system's noise figure by the Y-factor method from noise-source readings, and with
+    readings through a device its insertion loss and noise figure across frequency.
 
-    ``hot`` and ``cold`` are readings (one each or lists, pooled) with the source on and off;
-    ``enr_db`` the source's excess noise ratio (a number, or a function of offset frequency in Hz).
-    Returns :class:`rxbench.dsp.noisefig.NoiseSourceResult`, per sub-band with the whole usable band
-    last: ``result.receiver.nf_db[-1]`` and ``result.receiver.u_nf_db[-1]`` are what ``rxbench nf``
-    reports as the noise figure and its standard uncertainty.
+    ``hot`` and ``cold`` are readings (one each or lists) with the source on and off; ``hot_dut``
+    and ``cold_dut`` the same through the device. Readings at several centre frequencies are grouped
+    by their tuning (repeats at one tuning pooled) and stitched into one curve. ``enr_db`` is the
+    source's excess noise ratio (a number, or a function of offset frequency in Hz). Returns the
+    :class:`~rxbench.methods.noise_source.NoiseFigureResult` that ``rxbench nf`` prints
+    (``to_dict()`` is its JSON): ``noise_figure_db``, ``u_noise_figure_db``, ``insertion_loss_db``,
+    ``bands`` (one per tuning), ``curve`` (per sub-band), ``warnings``.
     """
-    from rxbench.dsp import noisefig
+    roles = {"cold": _readings(cold, "cold"), "hot": _readings(hot, "hot"),
+             "cold_dut": [] if not cold_dut else _readings(cold_dut, "cold_dut"),
+             "hot_dut": [] if not hot_dut else _readings(hot_dut, "hot_dut")}
+    tunings: dict = {}
+    if all(len(rs) <= 1 for rs in roles.values()):  # one of each: one tuning, whatever the metadata says
+        tunings[None] = roles
+    for role, readings in (() if tunings else roles.items()):
+        for r in readings:
+            key = None if r.capture.center_hz is None else round(r.capture.center_hz / CENTER_TOLERANCE_HZ)
+            tunings.setdefault(key, {k: [] for k in roles})[role].append(r)
+    bands = []
+    for group in tunings.values():
+        for role in ("cold", "hot"):
+            if not group[role]:
+                raise UsageError(f"no {role} reading at the tuning of {_first(group).capture.path.name}")
+        bands.append(y_factor_band(*(group[k] for k in roles), enr_db=enr_db, n_sub_bands=n_sub_bands,
+                                   t_cold_k=t_cold_k, u_enr_db=u_enr_db))
+    enr = f"{enr_db:.2f} dB" if not callable(enr_db) else "a function of frequency"
+    return noise_figure_curve(bands, enr=enr, u_enr_db=u_enr_db, t_cold_k=t_cold_k)
 
-    hot, cold = _readings(hot, "hot"), _readings(cold, "cold")
-    try:
-        result = noisefig.noise_source_analysis([r.psd for r in cold], [r.psd for r in hot], enr_db=enr_db,
-                                                n_sub_bands=n_sub_bands, t_cold_k=t_cold_k, u_enr_db=u_enr_db,
-                                                dc_halfwidth_hz=None if hot[0].capture.is_complex else 0.0)
-    except ValueError as exc:
-        raise UsageError(str(exc)) from None
-    if not result.valid[-1]:
-        raise MeasurementError("the hot reading is not above the cold one: are the captures swapped, or was "
-                               "the source off?")
-    return result
+
+def _first(group: dict):
+    return next(r for rs in group.values() for r in rs)
+
+
+def gain_method(reading, *, level_dbm: float) -> GainMethodResult:
+    """The noise figure by the gain method from one reading of a tone of known level (dBm at the
+    dongle's input): the :class:`~rxbench.methods.gain.GainMethodResult` of ``rxbench nf --tone``."""
+    if not isinstance(reading, Reading):
+        raise UsageError("gain_method: give one Reading (rxbench.read(capture))")
+    return _gain_method(reading, level_dbm)
 
 
 def compare(a, b, **settings) -> CompareResult:

@@ -1,7 +1,8 @@
 """A session's swept curves per device, per amateur band, and compared between devices.
 
-Called by :func:`bench.session.analyze_session` once the noise-source results are in: it stitches one
-curve per device label, summarises each (and the receive system's noise figure) per band with
+Called by :func:`bench.session.analyze_session` once the noise-source results are in (one
+:class:`rxbench.methods.noise_source.NoiseFigureResult` per device label, which stitches the curve and
+summarises it per band with the functions below): it takes one curve per device label, summarises each (and the receive system's noise figure) per band with
 :mod:`dsp.bands`, checks each curve's continuity across retunes, and gives the per-band difference
 between each device and the first, whose uncertainty comes from each device's own captures (the
 reference captures, attenuator and source they share cancel and are not counted twice).
@@ -68,15 +69,17 @@ def _difference_rows(label_a: str, a: dict, label_b: str, b: dict) -> list[dict]
             for r in bands.per_band(f, w, d, u, k=a["k"])]
 
 
-def _jumps(label: str, results: list[dict], k: float, warnings: list[str]) -> list[dict]:
-    tuned = [n for n in results if n["center_hz"] is not None and "insertion_loss_db" in n["sub_bands"]]
+def _jumps(label: str, tunings, k: float, warnings: list[str]) -> list[dict]:
+    """Retune steps of one device's loss curve (``tunings``: its NoiseSourceBand results)."""
+    tuned = [b for b in tunings if b.center_hz is not None and b.has_dut]
     if len(tuned) < 2:
         return []
-    centres = [n["center_hz"] for n in tuned]
+    centres = [b.center_hz for b in tuned]
+    subs = [b.sub_bands() for b in tuned]
     steps = bands.retune_steps(
-        centres, [c + np.asarray(n["sub_bands"]["offset_hz"]) for c, n in zip(centres, tuned)],
-        [n["sub_bands"]["insertion_loss_db"] for n in tuned], [n["sub_bands"]["u_insertion_loss_db"] for n in tuned],
-        [n["sub_bands"]["width_hz"] for n in tuned], k=k)
+        centres, [c + np.asarray(s["offset_hz"]) for c, s in zip(centres, subs)],
+        [s["insertion_loss_db"] for s in subs], [s["u_insertion_loss_db"] for s in subs],
+        [s["width_hz"] for s in subs], k=k)
     out = []
     for s in steps:
         out.append({"device": label, "frequency_hz": s.frequency_hz, "difference_db": s.difference_db,
@@ -89,36 +92,29 @@ def _jumps(label: str, results: list[dict], k: float, warnings: list[str]) -> li
     return out
 
 
-def analyse_bands(analysis, stitch) -> None:
-    """Fill ``analysis``'s loss curve(s), per-band tables, device differences and retune checks."""
-    results = analysis.noise_figure
-    labels = list(dict.fromkeys(n.get("device", "") for n in results if n.get("insertion_loss_db") is not None))
-    if not labels:
-        analysis.loss_vs_frequency = stitch(results)
-    else:
-        per = {lab: [n for n in results if n.get("device", "") == lab] for lab in labels}
-        curves = {lab: stitch(per[lab]) for lab in labels}
-        analysis.loss_vs_frequency = curves[labels[0]]
-        if len(labels) > 1 or labels[0]:
-            analysis.devices = {lab or "device": c for lab, c in curves.items()}
-        for lab in labels:
-            c = curves[lab]
-            if c is None or not c["has_loss"]:
-                continue
-            n_dev = max((n.get("n_devices", 1) for n in per[lab]), default=1)
-            analysis.per_band.extend(loss_band_rows(lab, c["frequency_hz"], c["width_hz"], c["insertion_loss_db"],
-                                                    c["u_insertion_loss_db"], k=c["k"], n_devices=n_dev))
-            analysis.retune_steps.extend(_jumps(lab, per[lab], c["k"], analysis.warnings))
-        ref = labels[0]
-        for lab in labels[1:]:
-            if curves[ref] is not None and curves[lab] is not None:
-                analysis.device_differences.extend(_difference_rows(ref, curves[ref], lab, curves[lab]))
-    curve = analysis.loss_vs_frequency
-    if curve is not None:
-        u_enr = max((n.get("u_enr_db") or 0.0 for n in results), default=0.0)
-        analysis.per_band_noise_figure = nf_band_rows(curve["frequency_hz"], curve["width_hz"],
-                                                      curve["noise_figure_db"], curve["u_noise_figure_db"],
-                                                      u_enr_db=u_enr, k=curve["k"])
+def analyse_bands(analysis) -> None:
+    """Fill ``analysis``'s loss curve(s), per-band tables, device differences and retune checks from its
+    noise-source results (``analysis.noise_source``: one :class:`~rxbench.methods.noise_source.NoiseFigureResult`
+    per device)."""
+    results = analysis.noise_source
+    if not results:
+        return
+    curves = {r.device: r.columns() for r in results}
+    first = results[0]
+    analysis.loss_vs_frequency = curves[first.device]
+    if first.has_dut and (len(results) > 1 or first.device):
+        analysis.devices = {lab or "device": c for lab, c in curves.items()}
+    for r in results:
+        c = curves[r.device]
+        if c is None or not c["has_loss"]:
+            continue
+        analysis.per_band.extend(r.per_band)
+        analysis.retune_steps.extend(_jumps(r.device, r.bands, c["k"], analysis.warnings))
+    ref = first.device
+    for r in results[1:]:
+        if curves[ref] is not None and curves[r.device] is not None:
+            analysis.device_differences.extend(_difference_rows(ref, curves[ref], r.device, curves[r.device]))
+    analysis.per_band_noise_figure = list(first.per_band_noise_figure)
 
 
 # ------------------------------------------------------------------------------------------------

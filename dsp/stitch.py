@@ -8,6 +8,11 @@ from collections.abc import Sequence
 import numpy as np
 
 
+#: Distances to two tunings that differ by less than this are a tie, Hz (float64 rounding of a GHz
+#: frequency is about 1e-7 Hz).
+TIE_HZ = 1e-3
+
+
 def stitch_masks(center_hz: Sequence[float], frequency_hz: Sequence, coverage_hz: Sequence) -> list:
     """Which points of several curves to keep when stitching them into one across frequency.
 
@@ -24,7 +29,9 @@ def stitch_masks(center_hz: Sequence[float], frequency_hz: Sequence, coverage_hz
     -------
     list of ndarray of bool
         Per curve, the points to keep: a point is dropped when another capture that also covers it
-        is tuned closer to it (ties go to the earlier capture). Overlapping edges are thereby
+        is tuned closer to it (ties, within :data:`TIE_HZ`, go to the earlier capture: a point at the
+        midpoint of two tunings whose centres are not whole hertz must not be dropped by both for a
+        rounding error). Overlapping edges are thereby
         trimmed at the midpoint between neighbouring centres, where each capture is furthest from
         its own band edge.
     """
@@ -41,7 +48,7 @@ def stitch_masks(center_hz: Sequence[float], frequency_hz: Sequence, coverage_hz
                 continue
             covered = (f >= lo) & (f <= hi)
             dj = np.abs(f - centers[j])
-            closer = (dj < di) | ((dj == di) & (j < i))
+            closer = (dj < di - TIE_HZ) | ((np.abs(dj - di) <= TIE_HZ) & (j < i))
             mask &= ~(covered & closer)
         keep.append(mask)
     return keep

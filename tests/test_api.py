@@ -18,6 +18,7 @@ from rxbench.cli import main
 from rxbench.errors import MeasurementError, UsageError
 from tests import test_loss_cli as loss_cli
 from tests import test_nf_cli as nf_cli
+from tests.test_methods_identity import _same as same_numbers
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 LOSS_DB = 3.0  # planted by dsp.synth.passive_loss (invented bench)
@@ -58,22 +59,23 @@ def test_readme_example_runs_and_gives_the_cli_numbers(bench, monkeypatch, capsy
     assert "insertion loss" in printed and "noise figure" in printed
     loss, nf, analysis = ns["loss"], ns["nf"], ns["analysis"]
     # The planted truth, within the stated expanded uncertainty (k = 2) plus a margin.
-    assert abs(loss.loss_db - LOSS_DB) < loss.expanded_uncertainty_db + 0.05
+    assert abs(loss.insertion_loss_db - LOSS_DB) < loss.expanded_uncertainty_db + 0.05
     # The simulated receiver's noise figure is 6.0 dB (tests/test_nf_cli.py RX); the nf test's
     # limit is 0.15 dB on 0.5 s captures, these are shorter.
-    assert nf.receiver.nf_db[-1] == pytest.approx(6.0, abs=0.3)
+    assert nf.noise_figure_db == pytest.approx(6.0, abs=0.3)
     assert abs(analysis.summary()["insertion_loss_db"] - LOSS_DB) < 0.2
     assert ns["results"]["summary"] == json.loads(json.dumps(ns["results"]["summary"]))
 
-    # The same numbers as the commands print.
+    # The same result objects as the commands print: every number of to_dict() equal.
     assert main(["loss", "--thru", "thru.sigmf-meta", "--dut", "dut.sigmf-meta", "--json"]) == 0
     cli = json.loads(capsys.readouterr().out)
-    assert cli["insertion_loss_db"] == loss.loss_db
-    assert cli["expanded_uncertainty_db"] == loss.expanded_uncertainty_db
+    assert cli["insertion_loss_db"] == loss.insertion_loss_db
+    same_numbers(cli, loss.to_dict())
     assert main(["nf", "--hot", "hot.sigmf-meta", "--cold", "cold.sigmf-meta", "--enr-db", str(ENR_DB),
                  "--json"]) == 0
     cli = json.loads(capsys.readouterr().out)
-    assert cli["noise_figure_db"] == pytest.approx(float(nf.receiver.nf_db[-1]), rel=1e-12)
+    assert cli["noise_figure_db"] == nf.noise_figure_db
+    same_numbers(cli, nf.to_dict())
 
 
 def test_errors_are_the_cli_classes(bench, monkeypatch):

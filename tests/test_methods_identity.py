@@ -128,3 +128,56 @@ def test_snr_cost_same_from_flags_and_session(tmp_path, capsys):
     # The method's own keys; the loss's provenance (where it was measured) differs by nature.
     keys = set(session) - {"band", "loss_source", "loss_frequency_hz"}
     _same({k: cli[k] for k in keys}, {k: session[k] for k in keys})
+
+
+# ----------------------------------------------------------------------------------- noise source
+
+ENR_DB = 15.0
+T_HOT_K = T0_K * (1 + 10 ** (ENR_DB / 10))  # a source of 15 dB ENR when on (ENR = T_hot/T0 - 1)
+
+
+def _noise_pairs(folder, centers, *, loss_db=None, repeats=1):
+    """Hot/cold captures at each centre (and through a passive loss at T0), named in the order a
+    session lists them; returns the nf flags for the same files in that order."""
+    argv, seed = [], 900
+    for c in centers:
+        for rep in range(repeats):
+            for with_dut in (False, True) if loss_db is not None else (False,):
+                for role, temp in (("cold", T0_K), ("hot", T_HOT_K)):
+                    x = noise_in(temp, seed)
+                    if with_dut:
+                        x = lossy(x, loss_db, seed)
+                    name = f"{c / 1e6:.3f}-{rep}-{'dut' if with_dut else 'ref'}-{role}"
+                    path = write_capture(folder, name, x, role=role, seed=seed + 1, time_s=seed, center_hz=c,
+                                         enr_db=ENR_DB, with_dut=with_dut)
+                    argv += [f"--{role}{'-dut' if with_dut else ''}", str(path)]
+                    seed += 10
+    return argv
+
+
+def test_y_factor_same_from_flags_and_session(tmp_path, capsys):
+    argv = _noise_pairs(tmp_path, [28.4e6], repeats=2)
+    a = analyse(tmp_path)
+    (session,) = [r.to_dict() for r in a.noise_source]
+    cli = _cli(capsys, "nf", *argv, "--enr-db", repr(ENR_DB))
+    # The dongle's noise figure is 6.0 dB (test_session.DONGLE; Y-factor, cold at T0: Pozar [from memory]).
+    assert cli["method"] == "y-factor" and abs(cli["noise_figure_db"] - 6.0) < 0.15 + cli[
+        "noise_figure_expanded_uncertainty_db"]
+    assert len(cli["bands"][0]["captures"]["hot"]) == 2  # repeats at one tuning are pooled
+    assert a.noise_figure == session["bands"]  # the session's per-tuning entries are the method's bands
+    _same(cli, session)
+
+
+def test_dut_curve_same_from_flags_and_session(tmp_path, capsys):
+    # Two tunings one usable band minus one sub-band apart (the sweep planner's spacing), a 3 dB
+    # passive DUT at T0: its loss across the stitched curve, and its noise figure equal to its loss
+    # (Friis 1944; Bedrosian 1960).
+    argv = _noise_pairs(tmp_path, [28.4e6, 28.575e6], loss_db=3.0)
+    a = analyse(tmp_path)
+    (session,) = [r.to_dict() for r in a.noise_source]
+    cli = _cli(capsys, "nf", *argv, "--enr-db", repr(ENR_DB))
+    assert cli["insertion_loss_db"] == pytest.approx(3.0, abs=0.2)
+    assert {row["tuned_hz"] for row in cli["curve"]} == {28.4e6, 28.575e6}
+    assert cli["per_band"] and cli["per_band_noise_figure"]  # 10 m holds the curve
+    assert a.per_band == session["per_band"] and a.per_band_noise_figure == session["per_band_noise_figure"]
+    _same(cli, session)

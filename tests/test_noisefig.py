@@ -359,3 +359,17 @@ def test_stitch_offsets_is_stitch_masks_on_absolute_frequencies():
     for f, c, o, k, w in zip(freqs, centers, offsets, keep, want):
         np.testing.assert_array_equal(f, c + o)
         np.testing.assert_array_equal(k, w)
+
+
+def test_stitch_midpoint_between_centres_that_are_not_whole_hertz_is_kept_once():
+    # Sub-bands on one grid, 1/8 of the usable band apart; the second tuning's centre carries a
+    # fraction of a hertz (a sweep planner's "a hair less" spacing). The point at the midpoint of
+    # the two centres is the same frequency seen from both: rounding must not drop it from both.
+    c1, c2 = 17_460_800.0, 18_267_199.9991936
+    offs = np.arange(-403_200.0, 403_201.0, 115_200.0)  # 8 sub-band centres: +-403.2 kHz outermost
+    band = (-460_800.0, 460_800.0)
+    freqs, keep = stm.stitch_offsets([c1, c2], [offs, offs], [band, band])
+    kept = np.sort(np.concatenate([f[k] for f, k in zip(freqs, keep)]))
+    mid = (c1 + c2) / 2
+    assert np.sum(np.abs(kept - mid) < 1.0) == 1  # once: from the earlier tuning (the tie rule)
+    assert np.all(np.diff(kept) > 115_200.0 - 1.0) and np.all(np.diff(kept) < 115_200.0 + 1.0)  # no gap

@@ -51,6 +51,7 @@ def csv_rows(analysis: Analysis) -> list[dict]:
             if curve["insertion_loss_db"][i] is not None:
                 add("vs_frequency", "insertion_loss", f, curve["insertion_loss_db"][i], "dB",
                     COVERAGE_FACTOR * curve["u_insertion_loss_db"][i], "noise source", "sub-band")
+            if curve["dut_noise_figure_db"][i] is not None:  # None where F1 <= 0: no noise figure there
                 add("vs_frequency", "dut_noise_figure", f, curve["dut_noise_figure_db"][i], "dB",
                     COVERAGE_FACTOR * curve["u_dut_noise_figure_db"][i], "noise source", "sub-band")
     for ex in analysis.external_noise:

@@ -13,7 +13,7 @@ from rxbench.dsp.units import db_from_power
 from rxbench.session.folder import TONE_ROLES, Entry, Session
 from rxbench.session.external import _external, _snr_costs
 from rxbench.session.grouping import _center_key, _groups
-from rxbench.session.noise_source import _noise_source, _stitch
+from rxbench.session.noise_source import _curves, _noise_source
 from rxbench.session.tone import _tone_losses
 
 
@@ -29,7 +29,8 @@ class Analysis:
     captures: list = field(default_factory=list)
     ladders: list = field(default_factory=list)  # LadderResult
     losses: list = field(default_factory=list)  # LossResult
-    noise_figure: list = field(default_factory=list)
+    noise_figure: list = field(default_factory=list)  # one band dict per tuning (and device)
+    noise_source: list = field(default_factory=list)  # NoiseFigureResult per device over every tuning
     loss_vs_frequency: dict | None = None
     devices: dict = field(default_factory=dict)  # device label -> stitched curve (several devices compared)
     per_band: list = field(default_factory=list)  # loss per amateur band, per device (bench.sweep_report)
@@ -156,18 +157,21 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
 
     for center, group in _groups(readable, TONE_ROLES).items():
         _tone_losses(center, group, a.readings, a, drift_ppm)
+    bands = []
     for center, group in _groups(readable, ("hot", "cold")).items():
         # several devices at one centre: each against the same reference captures
         labels = sorted({e.device for e in group if e.through_dut}) or [""]
         for label in labels:
             part = [e for e in group if not e.through_dut or e.device == label]
-            res = _noise_source(center, part, a.readings, a, n_sub_bands)
-            if res is not None:
-                a.noise_figure.append(res)
-    a.noise_figure.sort(key=lambda x: (x["center_hz"] is None, x["center_hz"] or 0.0))
+            band = _noise_source(center, part, a.readings, a, n_sub_bands)
+            if band is not None:
+                bands.append((label, band))
+    bands.sort(key=lambda lb: (lb[1].center_hz is None, lb[1].center_hz or 0.0))
+    a.noise_figure = [b.to_dict() for _, b in bands]
+    a.noise_source = _curves(bands, a) if bands else []
     from rxbench.sweep_report import analyse_bands
 
-    analyse_bands(a, _stitch)
+    analyse_bands(a)
     for center, group in _groups(readable, ("antenna", "load")).items():
         res = _external(center, group, a.readings, a)
         if res is not None:
