@@ -10,8 +10,8 @@ __version__ = "0.1.0"
 
 #: The API's names (defined in :mod:`rxbench.api`).
 __all__ = ["Analysis", "Capture", "CompareResult", "GainMethodResult", "Loss", "LossResult", "NoiseFigureResult",
-           "Reading", "Session", "analyze_session", "compare", "direct_loss", "gain_method", "noise_figure",
-           "open_capture", "open_session", "read", "read_paths"]
+           "Reading", "Session", "ToneResult", "analyze_session", "compare", "direct_loss", "gain_method",
+           "noise_figure", "open_capture", "open_session", "read", "read_paths", "tone"]
 
 
 def __getattr__(name: str):

@@ -16,6 +16,7 @@ from pathlib import Path
 
 from rxbench.reading import CENTER_TOLERANCE_HZ, Reading, read_capture
 from rxbench.dsp.ladder import Loss
+from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ
 from rxbench.dsp.units import T0_K
@@ -27,12 +28,13 @@ from rxbench.methods.gain import gain_method as _gain_method
 from rxbench.methods.loss import LossResult
 from rxbench.methods.loss import direct_loss as _direct_loss
 from rxbench.methods.noise_source import NoiseFigureResult, noise_figure_curve, y_factor_band
+from rxbench.methods.tone import ToneResult, read_tone
 from rxbench.recordings import Capture, open_capture
 from rxbench.session import Analysis, Session, analyze_session, open_session
 
 __all__ = ["Analysis", "Capture", "CompareResult", "GainMethodResult", "Loss", "LossResult", "NoiseFigureResult",
-           "Reading", "Session", "analyze_session", "compare", "direct_loss", "gain_method", "noise_figure",
-           "open_capture", "open_session", "read", "read_paths"]
+           "Reading", "Session", "ToneResult", "analyze_session", "compare", "direct_loss", "gain_method",
+           "noise_figure", "open_capture", "open_session", "read", "read_paths", "tone"]
 
 
 def read(capture, *, near_hz: float | None = None, nperseg: int | None = None,
@@ -46,6 +48,14 @@ def read(capture, *, near_hz: float | None = None, nperseg: int | None = None,
         capture = open_capture(Path(capture))
     return read_capture(capture, near_hz=near_hz, nperseg=nperseg, snr_bandwidth_hz=snr_bandwidth_hz,
                         want_tone=want_tone)
+
+
+def tone(readings, role: str = "", *, drift_ppm: float = DEFAULT_PPM) -> ToneResult:
+    """The tone of one reading or of repeated readings of one role, pooled, with the readings'
+    warnings: the :class:`~rxbench.methods.tone.ToneResult` (``power_dbfs``, ``u_power_db``,
+    ``frequency_hz``, ``snr_db``, ``warnings``; ``to_dict()``). Refuses readings without a tone
+    (MeasurementError) and tones that are not one signal (UnlikeCapturesError)."""
+    return read_tone(_readings(readings, role or "tone"), role, drift_ppm=drift_ppm)
 
 
 def _readings(value, what: str) -> list[Reading]:

@@ -98,3 +98,40 @@ def test_lazy_namespace():
             "shell = [m for m in sys.modules if m.startswith('rxbench.') and not m.startswith('rxbench.dsp')]; "
             "assert not shell, shell")
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_tone_reading_is_the_inspected_tone_pooled(bench, monkeypatch, capsys):
+    monkeypatch.chdir(bench)
+    thru = rxbench.read("thru.sigmf-meta")
+    one = rxbench.tone(thru, "thru")
+    # The generator was set to read -20 dBFS through the dongle at +25 kHz (test_loss_cli's invented
+    # bench). Its I/Q imbalance (Q scaled by g = 0.5 dB and turned by 3 degrees) keeps
+    # |(1 + g e^(j phi))/2|^2 of the tone's power in the wanted line, the rest in the image (the
+    # usual I/Q imbalance model, common practice [calc]): +0.251 dB here.
+    g, phi = 10 ** (0.5 / 20), np.deg2rad(3.0)
+    wanted_db = 10 * np.log10(abs((1 + g * np.exp(1j * phi)) / 2) ** 2)
+    assert one.power_dbfs == pytest.approx(-20.0 + wanted_db, abs=0.03)
+    assert one.offset_hz == pytest.approx(loss_cli.OFFSET_HZ, abs=5.0)
+    assert one.frequency_hz == pytest.approx(loss_cli.CENTER_HZ + loss_cli.OFFSET_HZ, abs=5.0)
+    assert main(["inspect", "thru.sigmf-meta", "--json"]) == 0
+    cli = json.loads(capsys.readouterr().out)
+    assert cli["tone"]["power_dbfs"] == one.power_dbfs == one.to_dict()["readings"][0]["power_dbfs"]
+    # The same capture read twice pools to its own reading (dsp.ladder.mean_reading: a mean).
+    dut = rxbench.read("dut.sigmf-meta")
+    both = rxbench.tone([thru, rxbench.read("thru.sigmf-meta")], "thru")
+    assert both.power_dbfs == pytest.approx(one.power_dbfs, abs=1e-9)
+    assert rxbench.tone(dut).power_dbfs == pytest.approx(-20.0 + wanted_db - LOSS_DB, abs=0.1)  # the planted loss
+
+
+def test_tone_refuses_two_signals_and_a_missing_tone(tmp_path):
+    rng = np.random.default_rng(7)
+    a = loss_cli._capture(tmp_path, "a", rng, -30.0)
+    x = loss_cli._source(rng, -30.0, int(loss_cli.FS * loss_cli.DURATION_S), offset_hz=-40_000.0)
+    b = loss_cli._write(tmp_path, "b", x, rng)
+    with pytest.raises(rxbench.errors.UnlikeCapturesError, match="is not the signal"):
+        rxbench.tone([rxbench.read(a), rxbench.read(b)])  # 65 kHz apart: not one signal
+    quiet = loss_cli._write(tmp_path, "quiet", loss_cli._source(rng, -200.0, 50_000), rng)
+    with pytest.raises(MeasurementError, match="quiet"):
+        rxbench.tone(rxbench.read(quiet))
+    with pytest.raises(UsageError):
+        rxbench.tone([])

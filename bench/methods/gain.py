@@ -14,6 +14,7 @@ from rxbench.dsp.noisefig import nf_gain_method_db
 from rxbench.dsp.units import T0_K
 from rxbench.errors import MeasurementError
 from rxbench.methods.common import COVERAGE_FACTOR
+from rxbench.methods.tone import read_tone
 
 #: A tone level above this (dBm at the dongle) gets a compression/damage caution.
 LEVEL_CAUTION_DBM = -30.0
@@ -77,16 +78,13 @@ def gain_method(reading, level_dbm: float) -> GainMethodResult:
     MeasurementError
         No tone above the noise.
     UnlikeCapturesError
-        The tone is the DC spike (:func:`rxbench.reading.require_same_signal`).
+        The tone is the DC spike (:func:`rxbench.methods.tone.read_tone`).
     """
-    from rxbench.reading import require_same_signal
-
     cap = reading.capture
     t = reading.tone
     if t is None or not t.power > 0:
         raise MeasurementError(f"{cap.path}: no tone found above the noise; the gain method needs one")
-    require_same_signal([reading])  # one capture: its tone must not be the DC spike
-    warnings = list(reading.warnings)
+    warnings = list(read_tone(reading, "tone").warnings)  # one capture: its tone must not be the DC spike
     nf_db = float(nf_gain_method_db(level_dbm, t.cn0_dbhz))
     u_n0_db = _DB_PER_NEPER * reading.floor.u_density / reading.floor.density
     u_db = float(math.hypot(t.u_power_db, u_n0_db))
