@@ -36,7 +36,7 @@ def _numbers(value, path=""):
     return out
 
 
-def _same(cli: dict, session: dict) -> None:
+def _same(cli: dict, session: dict, min_numbers: int = 12) -> None:
     """``cli`` as printed by --json; ``session`` the result's to_dict(), put through the same JSON
     view (infinite degrees of freedom print as null)."""
     a, b = _numbers(cli), _numbers(json.loads(json.dumps(json_safe(session))))
@@ -44,7 +44,7 @@ def _same(cli: dict, session: dict) -> None:
     differ = {k: (a[k], b[k]) for k in a
               if not (a[k] == b[k] or (isinstance(a[k], float) and math.isnan(a[k]) and math.isnan(b[k])))}
     assert not differ
-    assert len(a) > 12  # the comparison covers the whole result, not a handful of keys
+    assert len(a) > min_numbers  # the comparison covers the whole result, not a handful of keys
 
 
 def _cli(capsys, *argv) -> dict:
@@ -181,3 +181,19 @@ def test_dut_curve_same_from_flags_and_session(tmp_path, capsys):
     assert cli["per_band"] and cli["per_band_noise_figure"]  # 10 m holds the curve
     assert a.per_band == session["per_band"] and a.per_band_noise_figure == session["per_band_noise_figure"]
     _same(cli, session)
+
+
+def test_gain_method_same_from_flags_and_session(tmp_path, capsys):
+    # A generator tone of -100 dBm with its 50-ohm source's T0 noise into the dongle of noise figure
+    # 6.0 dB: C/N0 = -100 + 173.975 - 6.0 dB-Hz, NF = P_in - C/N0 - kT0 (REFERENCES.md, gain method).
+    # (The source's noise and the dongle's own come from different seeds: the same seed would make
+    # them one waveform, added coherently.)
+    thru = write_capture(tmp_path, "01-thru", tone_in(-100.0, 1, duration_s=0.4), role="thru", seed=101,
+                         generator_dbm=-100.0)
+    a = analyse(tmp_path)
+    (session,) = [g.to_dict() for g in a.gain_method]
+    assert any("nominal -100 dBm" in w for w in session["warnings"])  # the level is the generator's word
+    cli = _cli(capsys, "nf", "--tone", str(thru), "--level-dbm", "-100")
+    assert cli["method"] == "gain" and cli["noise_figure_db"] == cli["gain_method"]["noise_figure_db"]
+    assert abs(cli["noise_figure_db"] - 6.0) < 0.2 + cli["gain_method"]["expanded_uncertainty_db"]
+    _same(cli["gain_method"], session, min_numbers=9)  # every number of this small result

@@ -69,9 +69,13 @@ class GainMethodResult:
         }
 
 
-def gain_method(reading, level_dbm: float) -> GainMethodResult:
+def gain_method(reading, level_dbm: float, *, level_from: str | None = None) -> GainMethodResult:
     """The noise figure from one reading of a tone of level ``level_dbm`` (dBm at the dongle's input,
     the source terminated at T0).
+
+    ``level_from`` says where a level that was not measured at the input comes from (a session: the
+    generator's nominal level less the attenuator setting); the result then carries a warning that
+    its error is not in the uncertainty.
 
     Raises
     ------
@@ -92,6 +96,10 @@ def gain_method(reading, level_dbm: float) -> GainMethodResult:
         warnings.append(f"--level-dbm {level_dbm:g}: a strong tone compresses the dongle and reads low "
                         "(NF high); the dongle's input is damaged at a few milliwatts (about +10 dBm) — "
                         "never connect a transmitter without attenuation rated for its power")
+    if level_from is not None:
+        warnings.append(f"the tone's level at the input ({level_dbm:g} dBm) is {level_from}: its error (the "
+                        "generator's accuracy, cable loss) moves the noise figure dB for dB and is not in the "
+                        "uncertainty; give the measured level to rxbench nf --tone --level-dbm")
     if nf_db < 0:
         warnings.append(f"gain method gives NF {nf_db:.2f} dB, below 0 dB, which no receiver has: "
                         "check --level-dbm (cable loss, generator calibration)")

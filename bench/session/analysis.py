@@ -13,6 +13,7 @@ from rxbench.dsp.units import db_from_power
 from rxbench.session.folder import TONE_ROLES, Entry, Session
 from rxbench.session.external import _external, _snr_costs
 from rxbench.session.grouping import _center_key, _groups
+from rxbench.session.gain import _gain_methods
 from rxbench.session.noise_source import _curves, _noise_source
 from rxbench.session.tone import _tone_losses
 
@@ -31,6 +32,7 @@ class Analysis:
     losses: list = field(default_factory=list)  # LossResult
     noise_figure: list = field(default_factory=list)  # one band dict per tuning (and device)
     noise_source: list = field(default_factory=list)  # NoiseFigureResult per device over every tuning
+    gain_method: list = field(default_factory=list)  # GainMethodResult per thru capture of known level
     loss_vs_frequency: dict | None = None
     devices: dict = field(default_factory=dict)  # device label -> stitched curve (several devices compared)
     per_band: list = field(default_factory=list)  # loss per amateur band, per device (bench.sweep_report)
@@ -80,6 +82,7 @@ class Analysis:
             "ladder": [x.to_dict() for x in self.ladders],
             "losses": [x.to_dict() for x in self.losses],
             "noise_figure": self.noise_figure,
+            "gain_method": [x.to_dict() for x in self.gain_method],
             "loss_vs_frequency": self.loss_vs_frequency,
             "devices": self.devices,
             "per_band": self.per_band,
@@ -177,6 +180,7 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
         if res is not None:
             a.external_noise.append(res)
     a.external_noise.sort(key=lambda x: (x["center_hz"] is None, x["center_hz"] or 0.0))
+    a.gain_method = _gain_methods(readable, a.readings, a)
     _snr_costs(a)
     # A warning said twice (by two methods reading one capture) is said once.
     a.warnings = list(dict.fromkeys(a.warnings))

@@ -42,6 +42,7 @@ class Entry:
     u_enr_db: float | None = None
     swr: tuple[tuple[str, float], ...] = ()  # source_swr, load_swr, dut_swr recorded from the plan
     device: str = ""  # which device is in the path (the plan step's label), when named
+    generator_dbm: float | None = None  # the generator's nominal level (tone roles), dBm
 
     @property
     def name(self) -> str:
@@ -110,7 +111,7 @@ def _session_files(folder: Path) -> list[Path]:
 #: that quantity shares).
 _KEY_QUANTITIES = {keys.ATTENUATION_DB: "attenuation_db", keys.ENR_DB: "enr_db", keys.U_ENR_DB: "tolerance_db",
                    keys.ATTENUATOR_TOLERANCE_DB: "tolerance_db", keys.GAIN_DB: "gain_db",
-                   keys.TONE_OFFSET_HZ: "offset", **{k: "swr" for k in keys.SWRS}}
+                   keys.TONE_OFFSET_HZ: "offset", keys.GENERATOR_DBM: "level_dbm", **{k: "swr" for k in keys.SWRS}}
 
 
 def _number(extra, key) -> float | None:
@@ -153,6 +154,7 @@ def _entry(cap: Capture) -> Entry:
         u_enr_db=_number(x, keys.U_ENR_DB),
         swr=tuple(swr),
         device=str(x.get(keys.DEVICE, "")) if through else "",
+        generator_dbm=_number(x, keys.GENERATOR_DBM) if role in TONE_ROLES else None,
     )
 
 
