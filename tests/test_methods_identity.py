@@ -164,7 +164,7 @@ def test_y_factor_same_from_flags_and_session(tmp_path, capsys):
     assert cli["method"] == "y-factor" and abs(cli["noise_figure_db"] - 6.0) < 0.15 + cli[
         "noise_figure_expanded_uncertainty_db"]
     assert len(cli["bands"][0]["captures"]["hot"]) == 2  # repeats at one tuning are pooled
-    assert a.noise_figure == session["bands"]  # the session's per-tuning entries are the method's bands
+    assert [b.to_dict() for b in a.noise_figure] == session["bands"]  # the session's entries are the method's bands
     _same(cli, session)
 
 

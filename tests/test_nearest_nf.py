@@ -56,7 +56,7 @@ def _external(tmp_path, far_hz):
 
 def test_interpolated_between_the_tunings_either_side(tmp_path):
     a, ex = _external(tmp_path, 29.2e6)
-    nfs = {n["center_hz"]: n["noise_figure_db"] for n in a.noise_figure}
+    nfs = {n.center_hz: n.noise_figure_db for n in a.noise_figure}
     # linear interpolation, 0.2 of the way from 28.2 to 29.2 MHz
     assert ex["receiver_noise_figure_db"] == pytest.approx(nfs[28.2e6] + 0.2 * (nfs[29.2e6] - nfs[28.2e6]))
     assert "interpolated between 28.2 MHz and 29.2 MHz" in ex["receiver_noise_figure_note"]

@@ -309,8 +309,8 @@ def test_y_factor_noise_figure_and_loss_across_frequency(tmp_path):
     assert len(a.noise_figure) == 2
     for n in a.noise_figure:
         # The receiver is the dongle alone: NF 6.0 dB (Y-factor, cold at T0).
-        assert abs(n["noise_figure_db"] - 6.0) <= n["expanded_uncertainty_db"]
-        assert n["expanded_uncertainty_db"] < 0.3
+        assert abs(n.noise_figure_db - 6.0) <= n.expanded_uncertainty_db
+        assert n.expanded_uncertainty_db < 0.3
     curve = a.loss_vs_frequency
     f = np.array(curve["frequency_hz"])
     assert np.all(np.diff(f) > 0) and curve["has_loss"]
@@ -343,11 +343,11 @@ def test_a_sub_band_without_excess_is_left_out_not_the_whole_noise_figure(tmp_pa
                           enr_db=enr_db, with_dut=with_dut)
     a = analyse(tmp_path)
     (nf,) = a.noise_figure
-    sub = nf["sub_bands"]
+    sub = nf.sub_bands()
     bad = [i for i, v in enumerate(sub["noise_figure_db"]) if math.isnan(v)]
     assert bad == [6]  # 56.25 .. 84.375 kHz holds the 70 kHz interferer
     assert any("1 sub-band(s) the hot reading is not above" in w for w in a.warnings)
-    assert nf["insertion_loss_db"] is not None
+    assert nf.insertion_loss_db is not None
     curve = a.loss_vs_frequency
     assert len(curve["frequency_hz"]) == sess.N_SUB_BANDS - 1
     assert all(v is not None and math.isfinite(v) for v in curve["noise_figure_db"] + curve["insertion_loss_db"])

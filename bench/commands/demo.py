@@ -372,12 +372,12 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
                     f"{s['nominal_db']:g} dB step relative to the {ref['nominal_db']:g} dB step")
     nf_true = float(db_from_power(1.0 + trx / T0_K))
     for n in analysis.noise_figure:
-        add("receiver noise figure", n["center_hz"], n["noise_figure_db"], n["expanded_uncertainty_db"], nf_true,
+        add("receiver noise figure", n.center_hz, n.noise_figure_db, n.expanded_uncertainty_db, nf_true,
             "dongle plus 8-bit quantisation")
-        if n.get("insertion_loss_db") is not None:
-            lo, hi = n["band_hz"]
-            add("insertion loss (noise source, whole band)", n["center_hz"], n["insertion_loss_db"],
-                n["expanded_uncertainty_loss_db"], _band_loss_truth(truth, n["center_hz"] + lo, n["center_hz"] + hi))
+        if n.has_dut:
+            lo, hi = n.band_hz
+            add("insertion loss (noise source, whole band)", n.center_hz, n.insertion_loss_db,
+                n.expanded_uncertainty_loss_db, _band_loss_truth(truth, n.center_hz + lo, n.center_hz + hi))
     curve = analysis.loss_vs_frequency
     if curve is not None and curve["has_loss"]:
         for f, w, loss, u in zip(curve["frequency_hz"], curve["width_hz"], curve["insertion_loss_db"],

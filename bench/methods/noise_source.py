@@ -141,6 +141,18 @@ class NoiseSourceBand:
         return COVERAGE_FACTOR * self.u_noise_figure_db
 
     @property
+    def y_db(self) -> float:
+        return _db(self.y)
+
+    @property
+    def enr_db(self) -> float:
+        return _db(self.enr)
+
+    @property
+    def noise_temperature_k(self) -> float:
+        return T0_K * (self.noise_factor - 1.0)
+
+    @property
     def sensitivity(self) -> float:
         """d(NF_dB)/d(Y_dB) over the whole band (:func:`rxbench.dsp.noisefig.y_sensitivity`)."""
         return float(y_sensitivity(self.y, self.enr, t_cold_k=self.numbers.t_cold_k))
@@ -162,6 +174,11 @@ class NoiseSourceBand:
     def u_insertion_loss_db(self) -> float | None:
         g = self._dut("gain")
         return None if g is None else _u_db(self._dut("u_gain"), g)
+
+    @property
+    def expanded_uncertainty_loss_db(self) -> float | None:
+        u = self.u_insertion_loss_db
+        return None if u is None else COVERAGE_FACTOR * u
 
     @property
     def dut_noise_figure_db(self) -> float | None:
@@ -198,17 +215,16 @@ class NoiseSourceBand:
 
     def to_dict(self) -> dict:
         ns = self.numbers
-        il, u_il = self.insertion_loss_db, self.u_insertion_loss_db
         out = {
             "center_hz": self.center_hz, "sample_rate_hz": self.sample_rate_hz, "nperseg": self.nperseg,
             "band_hz": self.band_hz, "dof_hot": float(ns.dof_hot[-1]), "dof_cold": float(ns.dof_cold[-1]),
-            "y_db": _db(self.y), "enr_db": _db(self.enr), "u_enr_db": ns.u_enr_db, "t_cold_k": ns.t_cold_k,
+            "y_db": self.y_db, "enr_db": self.enr_db, "u_enr_db": ns.u_enr_db, "t_cold_k": ns.t_cold_k,
             "noise_figure_db": self.noise_figure_db, "u_noise_figure_db": self.u_noise_figure_db,
             "expanded_uncertainty_db": self.expanded_uncertainty_db,
-            "noise_temperature_k": T0_K * (self.noise_factor - 1.0),
+            "noise_temperature_k": self.noise_temperature_k,
             "u_noise_temperature_k": T0_K * self.u_noise_factor, "nf_per_y_db": self.sensitivity,
-            "insertion_loss_db": il, "u_insertion_loss_db": u_il,
-            "expanded_uncertainty_loss_db": None if u_il is None else COVERAGE_FACTOR * u_il,
+            "insertion_loss_db": self.insertion_loss_db, "u_insertion_loss_db": self.u_insertion_loss_db,
+            "expanded_uncertainty_loss_db": self.expanded_uncertainty_loss_db,
             "dut_noise_figure_db": self.dut_noise_figure_db, "u_dut_noise_figure_db": self.u_dut_noise_figure_db,
             "device": self.device, "n_devices": self.n_devices, "coverage_factor": COVERAGE_FACTOR,
             "captures": self.captures, "sub_bands": self.sub_bands(), "warnings": list(self.warnings),

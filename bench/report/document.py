@@ -91,12 +91,11 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
           "second-stage correction (Friis 1944).\n\n")
         rows = []
         for n in analysis.noise_figure:
-            rows.append([_mhz(n["center_hz"]), _f(n["enr_db"]), _f(n["y_db"]),
-                         _pm(n["noise_figure_db"], n["expanded_uncertainty_db"]),
-                         f"{n['noise_temperature_k']:.0f}",
-                         _pm(n.get("insertion_loss_db"), n.get("expanded_uncertainty_loss_db")),
-                         _pm(n.get("dut_noise_figure_db"), COVERAGE_FACTOR * n["u_dut_noise_figure_db"]
-                             if n.get("u_dut_noise_figure_db") is not None else None)])
+            rows.append([_mhz(n.center_hz), _f(n.enr_db), _f(n.y_db),
+                         _pm(n.noise_figure_db, n.expanded_uncertainty_db), f"{n.noise_temperature_k:.0f}",
+                         _pm(n.insertion_loss_db, n.expanded_uncertainty_loss_db),
+                         _pm(n.dut_noise_figure_db, COVERAGE_FACTOR * n.u_dut_noise_figure_db
+                             if n.u_dut_noise_figure_db is not None else None)])
         w(_table(["tuned to", "ENR (dB)", "Y (dB)", "receiver NF", "T_e (K)", "DUT loss", "DUT NF"], rows) + "\n\n")
     if "frequency" in plots:
         w(f"![loss and noise figure against frequency]({plots['frequency']})\n\n")

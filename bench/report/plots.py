@@ -148,10 +148,10 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
                          capsize=0, label=f"{lab}, per sub-band (±U, k = {k:g})")
         first = True
         for n in analysis.noise_figure:  # a passive device at 290 K: its noise figure is its loss
-            if n.get("insertion_loss_db") is None or n.get("band_hz") is None or n.get("center_hz") is None:
+            if not n.has_dut or n.center_hz is None:
                 continue
-            lo, hi = ((n["center_hz"] + v) / 1e6 for v in n["band_hz"])  # band_hz: offsets from the centre
-            ax2.plot([lo, hi], [n["insertion_loss_db"]] * 2, color=C_GREY, lw=1.6, ls="--",
+            lo, hi = ((n.center_hz + v) / 1e6 for v in n.band_hz)  # band_hz: offsets from the centre
+            ax2.plot([lo, hi], [n.insertion_loss_db] * 2, color=C_GREY, lw=1.6, ls="--",
                      label="NF = loss (passive device at 290 K; whole-band loss)" if first else None)
             first = False
         ax2.set_ylabel("noise figure (dB)")

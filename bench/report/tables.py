@@ -38,11 +38,11 @@ def csv_rows(analysis: Analysis) -> list[dict]:
             add("ladder", "step_error", lad.frequency_hz, float(c.error_db[i]), "dB", float(c.k * c.u_error_db[i]),
                 c.region[i], f"nominal {db:g} dB" + (" FLAGGED" if c.flagged[i] else ""))
     for n in analysis.noise_figure:
-        add("noise_figure", "receiver_noise_figure", n["center_hz"], n["noise_figure_db"], "dB",
-            n["expanded_uncertainty_db"], "y-factor", "whole band")
-        if n.get("insertion_loss_db") is not None:
-            add("noise_figure", "insertion_loss", n["center_hz"], n["insertion_loss_db"], "dB",
-                n["expanded_uncertainty_loss_db"], "noise source", "whole band")
+        add("noise_figure", "receiver_noise_figure", n.center_hz, n.noise_figure_db, "dB",
+            n.expanded_uncertainty_db, "y-factor", "whole band")
+        if n.has_dut:
+            add("noise_figure", "insertion_loss", n.center_hz, n.insertion_loss_db, "dB",
+                n.expanded_uncertainty_loss_db, "noise source", "whole band")
     curve = analysis.loss_vs_frequency
     if curve is not None:
         for i, f in enumerate(curve["frequency_hz"]):

@@ -66,12 +66,10 @@ def summary_lines(analysis: Analysis) -> list[str]:
                                           for db, err, f in zip(c.nominal_db, c.error_db, c.flagged) if f)
         lines.append(text)
     for n in analysis.noise_figure:
-        text = (f"noise figure (receiver) at {_mhz(n['center_hz'])}: "
-                f"{_pm(n['noise_figure_db'], n['expanded_uncertainty_db'])}")
-        if n.get("insertion_loss_db") is not None:
-            text += (f"; {n.get('device') or 'DUT'} loss over the band "
-                     f"{_pm(n['insertion_loss_db'], n['expanded_uncertainty_loss_db'])}")
-        lines.append(text + headline_tags({"captures": n.get("captures")}, clips))
+        text = f"noise figure (receiver) at {_mhz(n.center_hz)}: {_pm(n.noise_figure_db, n.expanded_uncertainty_db)}"
+        if n.has_dut:
+            text += f"; {n.device or 'DUT'} loss over the band {_pm(n.insertion_loss_db, n.expanded_uncertainty_loss_db)}"
+        lines.append(text + headline_tags({"captures": n.captures}, clips))
     for ex in analysis.external_noise:
         lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
                      f"{_pm(ex['excess_db'], ex['expanded_uncertainty_db'])} above the receiver's own")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 from rxbench.reading import Reading, noise_dict, read_capture, tone_dict
@@ -30,7 +31,7 @@ class Analysis:
     captures: list = field(default_factory=list)
     ladders: list = field(default_factory=list)  # LadderResult
     losses: list = field(default_factory=list)  # LossResult
-    noise_figure: list = field(default_factory=list)  # one band dict per tuning (and device)
+    noise_figure: list = field(default_factory=list)  # NoiseSourceBand per tuning (and device)
     noise_source: list = field(default_factory=list)  # NoiseFigureResult per device over every tuning
     gain_method: list = field(default_factory=list)  # GainMethodResult per thru capture of known level
     loss_vs_frequency: dict | None = None
@@ -59,11 +60,11 @@ class Analysis:
             "per_device_db": None if best is None else best.per_device_db,
             "frequency_hz": None if best is None else best.frequency_hz,
         }
-        nfs = [n for n in self.noise_figure if n.get("noise_figure_db") is not None]
+        nfs = [n for n in self.noise_figure if math.isfinite(n.noise_figure_db)]
         if nfs:
-            n = min(nfs, key=lambda v: v["expanded_uncertainty_db"])
-            out["noise_figure_db"] = n["noise_figure_db"]
-            out["noise_figure_expanded_uncertainty_db"] = n["expanded_uncertainty_db"]
+            n = min(nfs, key=lambda v: v.expanded_uncertainty_db)
+            out["noise_figure_db"] = n.noise_figure_db
+            out["noise_figure_expanded_uncertainty_db"] = n.expanded_uncertainty_db
         out["snr_cost"] = [{"band": c["band"], "frequency_hz": c["frequency_hz"],
                             "snr_degradation_db": c["snr_degradation_db"],
                             "expanded_uncertainty_db": c["expanded_uncertainty_db"]} for c in self.snr_cost]
@@ -81,7 +82,7 @@ class Analysis:
             "skipped": [{"file": p.name, "reason": why} for p, why in s.skipped],
             "ladder": [x.to_dict() for x in self.ladders],
             "losses": [x.to_dict() for x in self.losses],
-            "noise_figure": self.noise_figure,
+            "noise_figure": [x.to_dict() for x in self.noise_figure],
             "gain_method": [x.to_dict() for x in self.gain_method],
             "loss_vs_frequency": self.loss_vs_frequency,
             "devices": self.devices,
@@ -170,7 +171,7 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
             if band is not None:
                 bands.append((label, band))
     bands.sort(key=lambda lb: (lb[1].center_hz is None, lb[1].center_hz or 0.0))
-    a.noise_figure = [b.to_dict() for _, b in bands]
+    a.noise_figure = [b for _, b in bands]
     a.noise_source = _curves(bands, a) if bands else []
     from rxbench.sweep_report import analyse_bands
 

@@ -62,8 +62,8 @@ def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
     nearest one), within :data:`NF_NEAREST_FRACTION` of the frequency, with a note saying how far
     away they were; else None."""
     for n in analysis.noise_figure:
-        if n["center_hz"] is not None and abs(n["center_hz"] - frequency_hz) <= half_band_hz:
-            return n["noise_figure_db"], n["u_noise_figure_db"], None
+        if n.center_hz is not None and abs(n.center_hz - frequency_hz) <= half_band_hz:
+            return n.noise_figure_db, n.u_noise_figure_db, None
     curve = analysis.loss_vs_frequency
     if curve is not None and curve["frequency_hz"]:
         f = np.array(curve["frequency_hz"])
@@ -71,8 +71,8 @@ def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
         if (np.abs(f - frequency_hz) <= w).any():
             i = int(np.argmin(np.abs(f - frequency_hz)))
             return curve["noise_figure_db"][i], curve["u_noise_figure_db"][i], None
-    tuned = sorted((n["center_hz"], n["noise_figure_db"], n["u_noise_figure_db"]) for n in analysis.noise_figure
-                   if n["center_hz"] is not None and n.get("noise_figure_db") is not None)
+    tuned = sorted((n.center_hz, n.noise_figure_db, n.u_noise_figure_db) for n in analysis.noise_figure
+                   if n.center_hz is not None and math.isfinite(n.noise_figure_db))
     near = [t for t in tuned if abs(t[0] - frequency_hz) <= NF_NEAREST_FRACTION * frequency_hz]
     if not near:
         return None
