@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.reading import add_drift_option, add_noise_band_option, read_tones
+from rxbench.reading import add_tone_reading_options, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import pool
 from rxbench.methods.ladder import DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, ladder_check
@@ -34,10 +34,7 @@ def add_parser(sub) -> None:
                    help="shortfall at the top that counts as compression, dB (default %(default)g)")
     p.add_argument("--reference-step", type=quantity_arg("attenuation_db"), metavar="DB",
                    help="reference the errors to this step instead of the median of the linear steps")
-    p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
-    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
-    add_drift_option(p)
-    add_noise_band_option(p)
+    add_tone_reading_options(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)

@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 
-from rxbench.reading import add_drift_option, add_noise_band_option, read_tones
+from rxbench.reading import add_tone_reading_options, read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import SWR_FROM_OPTIONS, has_tone, pool
 from rxbench.methods.loss import direct_loss, substitution_loss
@@ -56,10 +56,7 @@ def add_parser(sub) -> None:
     g.add_argument("--load-swr", type=quantity_arg("swr"), metavar="SWR", help="SWR of the dongle's input")
     g.add_argument("--dut-swr", type=quantity_arg("swr"), metavar="SWR", help="SWR of the DUT's ports")
     g.add_argument("--budget", action="store_true", help="print the uncertainty budget")
-    p.add_argument("--near", type=quantity_arg("offset"), metavar="HZ", help="measure the tone near this offset from centre, Hz")
-    p.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
-    add_drift_option(p)
-    add_noise_band_option(p)
+    add_tone_reading_options(p)
     add_capture_options(p)
     add_json_option(p)
     p.set_defaults(func=run)
