@@ -292,6 +292,15 @@ def _band_region(spectrum: Psd, usable: np.ndarray, quiet: np.ndarray, seed_hz: 
     return band_range_db, region & usable
 
 
+def level_movement(spectrum: Psd, mask: np.ndarray) -> tuple[float, float]:
+    """How far the noise level in ``mask`` moves over the capture: (the 5-95 % spread of the
+    time-ordered sub-averages' levels, dB; the scatter one sub-average's level has from the noise
+    alone, dB). A noise source switched during the capture, a gain step or a loose connector moves
+    it far beyond the scatter."""
+    spread, _, scatter = _time_range(spectrum, mask)
+    return spread, scatter
+
+
 def _time_range(spectrum: Psd, mask: np.ndarray) -> tuple[float, np.ndarray, float]:
     """(spread of the floor over the time-ordered sub-averages in dB, the steady quiet ones, the
     standard error of one sub-average's floor in dB).

@@ -85,7 +85,7 @@ class NoiseSourceResult:
 def noise_source_analysis(cold: Sequence[Psd], hot: Sequence[Psd], cold_dut: Sequence[Psd] = (),
                           hot_dut: Sequence[Psd] = (), *, enr_db, n_sub_bands: int = N_SUB_BANDS, t_cold_k=T0_K,
                           u_enr_db: float = 0.0, dc_halfwidth_hz: float | None = None,
-                          edge_fraction: float = 0.1) -> NoiseSourceResult:
+                          edge_fraction: float = 0.1, exclude_hz=()) -> NoiseSourceResult:
     """Y-factor noise figure per sub-band, and with captures through a DUT its gain and noise figure.
 
     Parameters
@@ -106,6 +106,8 @@ def noise_source_analysis(cold: Sequence[Psd], hot: Sequence[Psd], cold_dut: Seq
         Standard uncertainty of the ENR, dB.
     dc_halfwidth_hz, edge_fraction
         DC spike and band edges left out (:func:`dsp.floor.usable_mask`).
+    exclude_hz : array_like of (low, high), optional
+        Frequency intervals left out of every spectrum (narrow lines, :func:`sub_band_densities`).
 
     Returns
     -------
@@ -140,7 +142,7 @@ def noise_source_analysis(cold: Sequence[Psd], hot: Sequence[Psd], cold_dut: Seq
     if enr_db is None:
         raise ValueError("enr_db is needed")
     sb = sub_band_densities([s for g in groups for s in g], n_sub_bands=n_sub_bands, edge_fraction=edge_fraction,
-                            dc_halfwidth_hz=dc_halfwidth_hz, enr_db=enr_db)
+                            dc_halfwidth_hz=dc_halfwidth_hz, enr_db=enr_db, exclude_hz=exclude_hz)
     if not np.all(np.isfinite(sb.enr) & (sb.enr > 0)):
         raise ValueError(f"enr_db={enr_db!r} gives a non-finite ENR")
     pooled, start = [], 0

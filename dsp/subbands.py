@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from rxbench.dsp.lines import in_intervals
 from rxbench.dsp.floor import usable_mask
 from rxbench.dsp.spectrum import Psd, band_power
 from rxbench.dsp.units import power_from_db
@@ -94,7 +95,7 @@ class SubBands:
 
 
 def sub_band_densities(spectra: Sequence[Psd], *, n_sub_bands: int = N_SUB_BANDS, edge_fraction: float = 0.1,
-                       dc_halfwidth_hz: float | None = None, enr_db=None) -> SubBands:
+                       dc_halfwidth_hz: float | None = None, enr_db=None, exclude_hz=()) -> SubBands:
     """Mean density of each spectrum over ``n_sub_bands`` equal sub-bands of the common usable band.
 
     Parameters
@@ -111,6 +112,9 @@ def sub_band_densities(spectra: Sequence[Psd], *, n_sub_bands: int = N_SUB_BANDS
         ENR in dB, constant or a function of offset frequency (Hz, array) -> dB. Each sub-band's
         ENR is its mean weighted by the first spectrum's density (the cold one), which is exact
         when the receiver's noise temperature is flat over the sub-band.
+    exclude_hz : array_like of (low, high), optional
+        Closed frequency intervals left out of every spectrum (narrow lines,
+        :func:`rxbench.dsp.lines.find_lines`).
 
     Returns
     -------
@@ -134,7 +138,7 @@ def sub_band_densities(spectra: Sequence[Psd], *, n_sub_bands: int = N_SUB_BANDS
         dc_hw, edge = max(dc_hw, d), min(edge, e)
     one_sided = any(s.one_sided for s in spectra)
     masks = [m & (np.abs(s.frequency_hz) <= edge) & (np.abs(s.frequency_hz) > dc_hw)
-             for m, s in zip(masks, spectra)]
+             & ~in_intervals(s.frequency_hz, exclude_hz) for m, s in zip(masks, spectra)]
     low_edge = dc_hw if one_sided else -edge
     edges = np.linspace(low_edge, edge, n_sub_bands + 1)
     low = np.append(edges[:-1], low_edge)

@@ -25,6 +25,8 @@ from typing import Callable, NamedTuple, Sequence
 import numpy as np
 
 from rxbench.dsp import noise_source as nsm
+from rxbench.dsp.floor import level_movement, usable_mask
+from rxbench.dsp.lines import find_lines, merge_intervals
 from rxbench.dsp.noisefig import excess_u_db, y_sensitivity
 from rxbench.dsp.spectrum import Psd
 from rxbench.dsp.stitch import stitch_offsets
@@ -34,6 +36,9 @@ from rxbench.errors import MeasurementError, UsageError
 from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
 from rxbench.recordings import Capture
 
+#: A capture whose noise level moves more than this over its length (dB, 5-95 % of its sub-averages, and
+#: beyond five times their scatter) is warned: Y averages over the movement.
+LEVEL_MOVED_DB = 0.5
 #: Warn when one dB of error in Y moves the noise figure by more than this many dB.
 Y_SENSITIVITY_WARN = 2.0
 #: Warn when an expanded uncertainty (dB) exceeds this.
@@ -97,6 +102,9 @@ class NoiseSourceBand:
     n_devices : int
         Identical devices in the path (2: a back-to-back pair).
     warnings : tuple of str
+    lines : tuple of dict
+        Narrow lines (spurs, carriers) left out of every band power: ``offset_hz`` (the strongest
+        bin), ``low_hz``/``high_hz`` (the interval left out) and ``excess_db`` over the local noise.
     """
 
     center_hz: float | None
@@ -107,6 +115,7 @@ class NoiseSourceBand:
     device: str = ""
     n_devices: int = 1
     warnings: tuple = ()
+    lines: tuple = ()
 
     @property
     def has_dut(self) -> bool:
@@ -227,9 +236,48 @@ class NoiseSourceBand:
             "expanded_uncertainty_loss_db": self.expanded_uncertainty_loss_db,
             "dut_noise_figure_db": self.dut_noise_figure_db, "u_dut_noise_figure_db": self.u_dut_noise_figure_db,
             "device": self.device, "n_devices": self.n_devices, "coverage_factor": COVERAGE_FACTOR,
-            "captures": self.captures, "sub_bands": self.sub_bands(), "warnings": list(self.warnings),
+            "captures": self.captures, "sub_bands": self.sub_bands(), "lines_left_out": list(self.lines),
+            "warnings": list(self.warnings),
         }
         return with_aliases(out, BAND_ALIASES)
+
+
+def _lines(spectra, dc_halfwidth_hz) -> tuple[np.ndarray, tuple]:
+    """The narrow lines of the receiver-alone spectra (cold and hot), merged: (intervals to leave out
+    of every spectrum, one dict per merged interval). The DUT's spectra are not searched: a filter's
+    skirt is not a line, and a spur of the dongle shows without the DUT as well."""
+    found = [find_lines(s.psd, usable_mask(s.psd, dc_halfwidth_hz=dc_halfwidth_hz)[0]) for s in spectra]
+    merged = merge_intervals(*(f.intervals_hz for f in found))
+    rows = []
+    for lo, hi in merged:
+        inside = [(e, p) for f in found for e, p in zip(f.excess_db, f.peak_hz) if lo <= p <= hi]
+        excess, peak = max(inside)
+        rows.append({"offset_hz": float(peak), "low_hz": float(lo), "high_hz": float(hi), "excess_db": float(excess)})
+    return merged, tuple(rows)
+
+
+def _lines_warning(rows, center_hz) -> str:
+    def where(r):
+        return f"{r['offset_hz'] / 1e3:+.1f} kHz" + ("" if center_hz is None else
+                                                    f" ({(center_hz + r['offset_hz']) / 1e6:.4f} MHz)")
+    shown = sorted(rows, key=lambda r: -r["excess_db"])[:4]
+    listed = ", ".join(f"{where(r)} {r['excess_db']:.1f} dB above the noise" for r in shown)
+    more = "" if len(rows) <= 4 else f" and {len(rows) - 4} more"
+    return (f"{len(rows)} narrow line(s) left out of the noise-source band powers: {listed}{more} "
+            "(the dongle's spurs or a carrier on the bench: counted, they would add to hot and cold alike and "
+            "read the noise figure high)")
+
+
+def _movement_warnings(groups, dc_halfwidth_hz) -> list[str]:
+    out = []
+    for role, group in zip(ROLES, groups):
+        for s in group:
+            spread, scatter = level_movement(s.psd, usable_mask(s.psd, dc_halfwidth_hz=dc_halfwidth_hz)[0])
+            if spread > max(LEVEL_MOVED_DB, 5.0 * scatter):
+                out.append(f"{s.capture.path.name} ({role.replace('_', '-')}): its noise level moved by {spread:.1f} dB "
+                           "during the capture (the source switched, a gain step, a loose connector): Y averages "
+                           "over it; capture it again")
+    return out
 
 
 def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_dut: Sequence = (), *,
@@ -266,8 +314,13 @@ def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_du
     groups = [list(g) for g in (cold, hot, cold_dut, hot_dut)]
     warnings: list[str] = []
     first = groups[1][0].capture if groups[1] else groups[0][0].capture
+    dc_hw = None if first.is_complex else 0.0
+    exclude, lines = _lines(groups[0] + groups[1], dc_hw)
+    warnings += _movement_warnings(groups, dc_hw)
+    if lines:
+        warnings.append(_lines_warning(lines, first.center_hz))
     kw = dict(enr_db=enr_db, n_sub_bands=n_sub_bands, t_cold_k=t_cold_k, u_enr_db=u_enr_db,
-              dc_halfwidth_hz=None if first.is_complex else 0.0)
+              dc_halfwidth_hz=dc_hw, exclude_hz=exclude)
     try:
         ns = nsm.noise_source_analysis(*([s.psd for s in g] for g in groups), **kw)
     except ValueError as exc:
@@ -295,7 +348,8 @@ def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_du
     band = NoiseSourceBand(
         first.center_hz, first.sample_rate_hz, int(nperseg), ns,
         captures={role: [s.capture.name for s in g] for role, g in zip(ROLES, groups) if g},
-        device=device if ns.dut is not None else "", n_devices=n_devices if ns.dut is not None else 1)
+        device=device if ns.dut is not None else "", n_devices=n_devices if ns.dut is not None else 1,
+        lines=lines)
     at = "" if band.center_hz is None else f" at {band.center_hz / 1e6:g} MHz"
     u95 = band.expanded_uncertainty_db
     if abs(band.sensitivity) > Y_SENSITIVITY_WARN or u95 > U_WARN_DB:
