@@ -82,6 +82,12 @@ def test_a_source_that_switched_during_its_capture_is_warned(tmp_path, capsys):
     res, _ = _nf(capsys, hot, cold)
     moved = [w for w in res["warnings"] if "hot.sigmf-meta (hot): its noise level moved by" in w]
     assert len(moved) == 1
+    # half the sub-averages at the cold level, half at the hot: the spread is Y itself,
+    # 10*log10((T0*(ENR + 1) + Te) / (T0 + Te)) (Y-factor definition, REFERENCES.md)
+    te = RX.noise_temperature_k
+    y_db = 10 * np.log10((290.0 * (10 ** 1.5 + 1) + te) / (290.0 + te))
+    spread = float(moved[0].split("moved by ")[1].split(" dB")[0])
+    assert spread == pytest.approx(y_db, abs=0.5)
     assert not any("cold.sigmf-meta (cold): its noise level moved" in w for w in res["warnings"])
 
 
