@@ -327,13 +327,15 @@ def test_y_factor_noise_figure_and_loss_across_frequency(tmp_path):
 
 
 def test_a_sub_band_without_excess_is_left_out_not_the_whole_noise_figure(tmp_path):
-    # An interferer in the cold capture lifts one sub-band above the hot reading: Y <= 1 has no
-    # noise figure (Pozar, from memory), so that sub-band is left out with a warning while the
-    # others, and the DUT's loss in them, stand.
+    # A broad interferer (a modulated signal 6 kHz wide, not a line: a narrow carrier would be left out
+    # of the band powers, tests/test_nf_real_signals.py) in the cold capture lifts one sub-band above
+    # the hot reading: Y <= 1 has no noise figure (Pozar, from memory), so that sub-band is left out
+    # with a warning while the others, and the DUT's loss in them, stand.
     enr_db = 15.0
     t_hot = T0_K * (power_from_db(enr_db) + 1.0)
     n = int(0.1 * FS)
-    hum = synth.tone(n, FS, power_w=1e-14, offset_hz=70e3)  # 2.8 excess-powers of its 28 kHz sub-band
+    # 2.8 excess-powers of its 28 kHz sub-band, within 62-78 kHz (+/-3 sigma of the hump)
+    hum = synth.broad_hump(n, FS, power=1e-14, center_hz=70e3, width_hz=6e3, rng=np.random.default_rng(70))
     for role, temp, extra in (("cold", T0_K, hum), ("hot", t_hot, 0.0)):
         for i, with_dut in enumerate((False, True)):
             x = noise_in(temp, 40 + i) + extra
