@@ -135,3 +135,18 @@ def test_tone_refuses_two_signals_and_a_missing_tone(tmp_path):
         rxbench.tone(rxbench.read(quiet))
     with pytest.raises(UsageError):
         rxbench.tone([])
+
+
+def test_noise_figure_of_a_dut_over_two_tunings_is_what_nf_prints(tmp_path, capsys):
+    from tests.test_methods_identity import ENR_DB as ENR, _noise_pairs
+
+    argv = _noise_pairs(tmp_path, [28.4e6, 28.575e6], loss_db=3.0)
+    roles: dict = {}
+    for flag, path in zip(argv[::2], argv[1::2]):
+        roles.setdefault(flag.lstrip("-").replace("-", "_"), []).append(rxbench.read(path))
+    res = rxbench.noise_figure(roles["hot"], roles["cold"], hot_dut=roles["hot_dut"], cold_dut=roles["cold_dut"],
+                               enr_db=ENR)
+    assert len(res.bands) == 2 and res.has_dut
+    assert res.insertion_loss_db == pytest.approx(3.0, abs=0.2)  # the passive loss put in (synth.passive_loss)
+    assert main(["nf", *argv, "--enr-db", repr(ENR), "--json"]) == 0
+    same_numbers(json.loads(capsys.readouterr().out), res.to_dict())
