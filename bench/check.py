@@ -11,7 +11,13 @@ reading ``inspect`` and ``analyze`` take) and set against what the plan expects:
 
 A check fails (a *problem*) when no tone stands above the noise (generator off, wrong frequency),
 when the level is more than ``[check] level_tolerance_db`` off the estimate (wrong attenuator
-setting, wrong generator level), or when the capture clips. Without ``full_scale_dbm`` the dBFS
+setting, wrong generator level), or when the capture clips. It also fails when the capture is not
+the steady signal a measurement needs (the same findings ``inspect`` warns of, said while the
+set-up is still there): a tone present for only part of the capture (a loose connector, a keyed
+generator), a tone whose level changes during it, a broad signal instead of a line (the
+generator's modulation left on), a second line of about the same power, a tone on the DC spike, a
+tone at another frequency than the earlier tone captures of the run at that tuning (another
+signal, or the generator retuned), or a noise floor that moves during the capture (a gain step). Without ``full_scale_dbm`` the dBFS
 reading is set against the earlier tone captures of the same run instead: the first clean one fixes
 the dongle's conversion, and every later one must agree with it within the tolerance.
 """
@@ -22,7 +28,9 @@ import math
 from dataclasses import dataclass, field
 
 from rxbench.errors import RxbenchError
-from rxbench.reading import CLIP_NOTE_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture
+from rxbench.dsp.same_signal import on_dc, tolerance_hz
+from rxbench.reading import (CLIP_NOTE_BELOW, INTERMITTENT_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz,
+                             read_capture)
 from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
 from rxbench.style import fmt_hz
 
@@ -140,6 +148,7 @@ class Checker:
     tolerance_db: float = LEVEL_TOLERANCE_DB
     conversion_db: float | None = field(default=None, init=False)  # dBFS minus the estimated dBm
     _noise: dict = field(default_factory=dict, init=False)  # (centre, DUT, attenuation) -> {role: dBFS/Hz}
+    _tone_at: dict = field(default_factory=dict, init=False)  # (centre, planned offset) -> (offset, capture) read first
 
     def check(self, cap: PlannedCapture, capture) -> CaptureCheck:
         """Read ``capture`` (a :class:`bench.recordings.Capture`, just written for ``cap``) and check it."""
@@ -165,9 +174,42 @@ class Checker:
                 if level.snr_db is not None and reading.tone.peak_to_floor_db < LOW_SNR_DB:
                     notes.append("the tone is close to the noise: its level is uncertain")
                 problems += self._level_problems(level, expected, upper)
+                problems += self._shape_problems(cap, reading)
         elif cap.role in NOISE_SOURCE_ROLES:
             problems += self._noise_source_problems(cap, level)
+        if reading.floor.steady_fraction < 1.0:
+            moved = f"the noise floor moved by {reading.floor.time_range_db:.1f} dB during the capture"
+            if cap.role == "antenna":  # band noise comes and goes; that is what is being measured
+                notes.append(moved + " (band noise varies; the steady, quietest time is used)")
+            else:
+                problems.append(moved + " (a gain step, AGC on, a noise source switching): capture it again")
         return CaptureCheck(cap.base_name, level, expected, upper, tuple(problems), tuple(notes))
+
+    def _shape_problems(self, cap: PlannedCapture, reading: Reading) -> list[str]:
+        """Is the tone the steady line a measurement needs, and the one the run has been reading?"""
+        tone, psd, out = reading.tone, reading.psd, []
+        tl = tone.timeline
+        if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW:
+            out.append(f"the tone is present in only {100 * tl.on_fraction:.0f} % of the capture: a loose connector, "
+                       "or the generator keyed or pulsed?")
+        if tl is not None and tl.level_change_db > 0:
+            out.append(f"the tone's level changed by {tl.level_change_db:.1f} dB during the capture: let the "
+                       "generator settle and check the cables")
+        if tone.is_broad:
+            out.append(f"a broad signal, not a tone (-3 dB width {fmt_hz(tone.width_hz)}): is the generator's "
+                       "modulation off?")
+        if tone.second_offset_hz is not None:
+            out.append(f"a second line at {fmt_hz(tone.second_offset_hz)} from the centre within "
+                       f"{abs(tone.second_db):.1f} dB of the tone: which one is the generator?")
+        if not psd.one_sided and on_dc(tone.offset_hz, psd.bin_width_hz, reading.floor.dc_halfwidth_hz):
+            out.append("the tone sits on the dongle's DC spike: tune the generator or the dongle away from it")
+            return out
+        first = self._tone_at.setdefault((cap.center_hz, cap.tone_offset_hz), (tone.offset_hz, cap.base_name))
+        tol = tolerance_hz(psd.bin_width_hz, cap.center_hz if reading.capture.is_complex else tone.offset_hz)
+        if abs(tone.offset_hz - first[0]) > tol:
+            out.append(f"the tone is at {fmt_hz(tone.offset_hz)} from the centre, but {first[1]} read it at "
+                       f"{fmt_hz(first[0])}: another signal, or the generator was retuned?")
+        return out
 
     def _noise_source_problems(self, cap: PlannedCapture, level: Level) -> list[str]:
         """A hot capture must read clearly above the cold one of the same set-up (either order)."""
