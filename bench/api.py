@@ -15,7 +15,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from rxbench.reading import CENTER_TOLERANCE_HZ, Reading, read_capture
-from rxbench.dsp.ladder import Loss
+from rxbench.dsp.loss import Loss
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.tone import DEFAULT_SNR_BANDWIDTH_HZ

@@ -292,7 +292,7 @@ def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
     """Pool the tones of repeated captures of one role (several thru captures, say).
 
     Returns the mean reading (dBFS), its Type A standard uncertainty (dB) and degrees of freedom, by
-    :func:`dsp.ladder.mean_reading` (the larger of the estimators' and the scatter's uncertainty).
+    :func:`dsp.loss.mean_reading` (the larger of the estimators' and the scatter's uncertainty).
     Raises MeasurementError naming a capture whose tone could not be read.
     """
     readings = list(readings)
@@ -302,7 +302,7 @@ def pool_tones(readings, role: str = "") -> tuple[float, float, float]:
             what = f"{role} tone" if role else "tone"
             raise MeasurementError(f"{r.capture.path}: no {what} could be read (none above the noise)")
     p, u, dof = zip(*values)
-    from rxbench.dsp.ladder import mean_reading  # here: dsp.ladder is 4 ms of every inspect's start-up
+    from rxbench.dsp.loss import mean_reading  # here: dsp.loss is 4 ms of every inspect's start-up
 
     return mean_reading(p, u, dof)
 

@@ -116,7 +116,7 @@ def test_tone_reading_is_the_inspected_tone_pooled(bench, monkeypatch, capsys):
     assert main(["inspect", "thru.sigmf-meta", "--json"]) == 0
     cli = json.loads(capsys.readouterr().out)
     assert cli["tone"]["power_dbfs"] == one.power_dbfs == one.to_dict()["readings"][0]["power_dbfs"]
-    # The same capture read twice pools to its own reading (dsp.ladder.mean_reading: a mean).
+    # The same capture read twice pools to its own reading (dsp.loss.mean_reading: a mean).
     dut = rxbench.read("dut.sigmf-meta")
     both = rxbench.tone([thru, rxbench.read("thru.sigmf-meta")], "thru")
     assert both.power_dbfs == pytest.approx(one.power_dbfs, abs=1e-9)

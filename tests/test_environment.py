@@ -1,4 +1,4 @@
-"""dsp.environment: ITU-R P.372 external noise, SNR cost of a loss, antenna-noise excess, knee fit."""
+"""dsp.environment: ITU-R P.372 external noise, SNR cost of a loss; dsp.excess: antenna-noise excess, knee fit."""
 
 import math
 
@@ -8,6 +8,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rxbench.dsp import environment as env
+from rxbench.dsp import excess as exc
 from rxbench.dsp.units import T0_K, noise_temperature_from_nf_db
 
 # ITU-R P.372 median man-made and galactic noise, Fa in dB above kT0b, worked from
@@ -174,7 +175,7 @@ def _model(loss_db, ta_k, trx_k, gain=1e-3):
 def test_knee_fit_recovers_noise_free_model():
     loss_db = np.array([0, 3, 6, 10, 15, 20, 30, 40.0])
     ta, trx = 4.0e5, 1539.8
-    fit = env.fit_knee(loss_db, _model(loss_db, ta, trx), receiver_temperature_k=trx)
+    fit = exc.fit_knee(loss_db, _model(loss_db, ta, trx), receiver_temperature_k=trx)
     assert fit.external_density == pytest.approx(1e-3 * ta, rel=1e-6)
     assert fit.internal_density == pytest.approx(1e-3 * trx, rel=1e-6)
     assert fit.excess_db == pytest.approx(10 * math.log10((ta + trx) / (T0_K + trx)), abs=1e-6)
@@ -188,7 +189,7 @@ def test_knee_fit_with_load_and_noise():
     d = _model(loss_db, ta, trx) * (1 + 0.02 * rng.standard_normal(loss_db.size))
     u = 0.02 * d
     load = _model(200.0, ta, trx)  # effectively a matched load at T0
-    fit = env.fit_knee(loss_db, d, u_density=u, load_density=load, u_load_density=0.02 * load,
+    fit = exc.fit_knee(loss_db, d, u_density=u, load_density=load, u_load_density=0.02 * load,
                        receiver_temperature_k=trx)
     assert 10 * math.log10(fit.external_density / (1e-3 * ta)) == pytest.approx(0.0, abs=0.1)
     assert 10 * math.log10(fit.internal_density / (1e-3 * trx)) == pytest.approx(0.0, abs=0.1)
@@ -198,13 +199,13 @@ def test_knee_fit_with_load_and_noise():
 
 def test_knee_fit_without_receiver_temperature_gives_no_split():
     loss_db = np.array([0, 10, 20.0])
-    fit = env.fit_knee(loss_db, _model(loss_db, 1e5, 500.0))
+    fit = exc.fit_knee(loss_db, _model(loss_db, 1e5, 500.0))
     assert math.isnan(fit.external_density) and math.isnan(fit.internal_density)
     assert fit.load_density == pytest.approx(1e-3 * (T0_K + 500.0), rel=1e-6)
 
 
 def test_knee_fit_needs_two_attenuations():
     with pytest.raises(ValueError, match="two different"):
-        env.fit_knee([6.0, 6.0], [1.0, 1.1])
+        exc.fit_knee([6.0, 6.0], [1.0, 1.1])
     with pytest.raises(ValueError, match="density"):
-        env.fit_knee([0.0, 6.0], [1.0, -1.0])
+        exc.fit_knee([0.0, 6.0], [1.0, -1.0])

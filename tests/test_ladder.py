@@ -1,4 +1,4 @@
-"""dsp.ladder on arrays: ladder check, substitution, direct loss with drift, mismatch terms.
+"""dsp.ladder and dsp.loss on arrays: ladder check, substitution, direct loss with drift, mismatch terms.
 
 The readings here are invented ladders (synthetic); the checks are the formulas they must obey:
 the law of propagation of uncertainty (JCGM 100:2008 5.1.3, checked against finite differences),
@@ -10,16 +10,8 @@ import math
 import numpy as np
 import pytest
 
-from rxbench.dsp.ladder import (
-    COMPRESSED,
-    LINEAR,
-    NOISE_LIMITED,
-    check_ladder,
-    direct_loss,
-    mean_reading,
-    mismatch_components,
-    substitution_loss,
-)
+from rxbench.dsp.ladder import COMPRESSED, LINEAR, NOISE_LIMITED, check_ladder
+from rxbench.dsp.loss import direct_loss, mean_reading, mismatch_components, substitution_loss
 from rxbench.dsp.mismatch import swr_from_gamma
 from rxbench.dsp.uncertainty import Budget
 

@@ -15,7 +15,7 @@ from rxbench.reading import read_capture
 from rxbench.cli import main
 from rxbench.recordings import memory_capture, write_sigmf
 from rxbench.dsp import synth
-from rxbench.dsp.ladder import direct_loss, substitution_loss
+from rxbench.dsp.loss import direct_loss, substitution_loss
 from rxbench.dsp.units import w_from_dbm
 
 FS = 250e3

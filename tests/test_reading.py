@@ -10,7 +10,7 @@ import pytest
 
 from rxbench.reading import capture_start_s, pool_tones, tone_db
 from rxbench.errors import MeasurementError
-from rxbench.dsp.ladder import mean_reading
+from rxbench.dsp.loss import mean_reading
 
 
 def _cap(datetime):

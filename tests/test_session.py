@@ -24,7 +24,7 @@ from rxbench.cli import main
 from rxbench.errors import UsageError
 from rxbench.recordings import SigmfWriter, write_sigmf
 from rxbench.dsp import synth
-from rxbench.dsp.ladder import mismatch_components
+from rxbench.dsp.loss import mismatch_components
 from rxbench.dsp.units import T0_K, power_from_db, w_from_dbm
 
 FS = 250e3
@@ -166,7 +166,7 @@ def test_direct_loss_recovers_a_known_attenuation_and_removes_drift(tmp_path):
 
 def test_mismatch_terms_from_the_plan_enter_the_loss_budget(tmp_path):
     # The SWRs a plan's [match] table records with the captures give the first-order mismatch terms
-    # of Harris & Warner (REFERENCES.md; dsp.ladder.mismatch_components is checked against them in
+    # of Harris & Warner (REFERENCES.md; dsp.loss.mismatch_components is checked against them in
     # test_ladder), added in quadrature to the readings' uncertainty (GUM 5.1.2).
     swr = {"source_swr": 1.1, "load_swr": 2.0, "dut_swr": 1.5}
     for folder, extra in ((tmp_path / "plain", {}), (tmp_path / "matched", swr)):

@@ -12,7 +12,7 @@ import numpy as np
 from rxbench import keys
 from rxbench.reading import capture_start_s, pool_tones, require_same_signal, tone_db
 from rxbench.dsp.same_signal import DEFAULT_PPM
-from rxbench.dsp.ladder import mismatch_components
+from rxbench.dsp.loss import mismatch_components
 from rxbench.dsp.subbands import N_SUB_BANDS  # noqa: F401  (the one default, re-exported)
 from rxbench.dsp.uncertainty import DEFAULT_K, Budget, Component
 

@@ -3,7 +3,7 @@
 for the antenna temperature, Fa and the loss the station can afford.
 
 ``rxbench excess`` and a session's ``antenna``/``load`` captures call :func:`external_noise`; the
-numerics are in :mod:`rxbench.dsp.environment`.
+numerics are in :mod:`rxbench.dsp.excess` and :mod:`rxbench.dsp.environment`.
 """
 
 from __future__ import annotations
@@ -15,6 +15,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from rxbench.dsp import environment as env
+from rxbench.dsp.excess import density_ratio_db, fit_knee, mean_density
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 from rxbench.errors import MeasurementError
 from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
@@ -50,7 +51,7 @@ def _names(readings) -> list[str]:
 
 def _density(readings) -> tuple[float, float]:
     """Mean noise density of repeated captures and its standard uncertainty."""
-    return env.mean_density([r.floor.density for r in readings], [r.floor.u_density for r in readings])
+    return mean_density([r.floor.density for r in readings], [r.floor.u_density for r in readings])
 
 
 def p372_medians(frequency_hz: float | None) -> dict | None:
@@ -156,7 +157,7 @@ def _knee(points: dict, load, trx_k, warnings) -> dict | None:
     kw = {}
     if load:
         kw = dict(zip(("load_density", "u_load_density"), _density(load)))
-    fit = env.fit_knee(loss, d, u_density=u, receiver_temperature_k=trx_k, **kw)
+    fit = fit_knee(loss, d, u_density=u, receiver_temperature_k=trx_k, **kw)
     model = (fit.antenna_density - fit.load_density) / 10 ** (loss / 10) + fit.load_density
     out = {
         "steps": [{"loss_db": float(v), "capture": str(rs[0].capture.path), "captures": _names(rs),
@@ -219,7 +220,7 @@ def external_noise(antenna: Mapping[float, Sequence], load: Sequence = (), *, rx
     direct = {}
     if 0.0 in points and load:
         (da, ua), (dl, ul) = _density(points[0.0]), _density(load)
-        excess, u_excess = env.density_ratio_db(da, ua, dl, ul)
+        excess, u_excess = density_ratio_db(da, ua, dl, ul)
         direct = dict(measured_excess_db=excess, u_measured_excess_db=u_excess,
                       antenna_density_db=float(db_from_power(da)), load_density_db=float(db_from_power(dl)))
     knee = None
@@ -261,7 +262,7 @@ def external_noise(antenna: Mapping[float, Sequence], load: Sequence = (), *, rx
     thru = None
     if through_dut and 0.0 in points:
         (da, ua), (dd, ud) = _density(points[0.0]), _density(through_dut)
-        drop, u_drop = env.density_ratio_db(da, ua, dd, ud)
+        drop, u_drop = density_ratio_db(da, ua, dd, ud)
         thru = {"density_dbfs_per_hz": float(db_from_power(dd)), "drop_db": drop, "u_drop_db": u_drop,
                 "captures": _names(through_dut)}
     return ExcessResult(

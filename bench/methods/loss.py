@@ -3,8 +3,8 @@ substitution (the ladder setting that reads like the DUT).
 
 Both take pooled tone readings (:class:`~rxbench.methods.common.PooledTone`) and settings and
 return a :class:`LossResult`; ``rxbench loss`` and a session's ``thru``/``dut``/``step`` captures
-call the same functions. The numerics are :func:`rxbench.dsp.ladder.direct_loss` and
-:func:`rxbench.dsp.ladder.substitution_loss`.
+call the same functions. The numerics are :func:`rxbench.dsp.loss.direct_loss` and
+:func:`rxbench.dsp.loss.substitution_loss`.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 from rxbench import keys
-from rxbench.dsp import ladder as ladder_mod
+from rxbench.dsp import loss as loss_mod
 from rxbench.dsp.uncertainty import Component, coverage_factor
 from rxbench.errors import MeasurementError
 from rxbench.dsp.same_signal import DEFAULT_PPM
@@ -35,7 +35,7 @@ class LossResult:
 
     Attributes
     ----------
-    loss : rxbench.dsp.ladder.Loss
+    loss : rxbench.dsp.loss.Loss
         The number and its uncertainty budget.
     n_devices : int
         Identical devices in the path (2 for a back-to-back pair): per-device loss = loss / n.
@@ -61,7 +61,7 @@ class LossResult:
     warnings : tuple of str
     """
 
-    loss: ladder_mod.Loss
+    loss: loss_mod.Loss
     n_devices: int
     center_hz: float | None
     offset_hz: float
@@ -140,7 +140,7 @@ def _swr_settings(swr: Mapping | None) -> dict:
     return {key: (swr or {}).get(key) for key in keys.SWRS}
 
 
-def _checked(loss: ladder_mod.Loss, warnings: list[str]) -> None:
+def _checked(loss: loss_mod.Loss, warnings: list[str]) -> None:
     """Warnings every insertion loss earns, whatever the method."""
     dof = loss.budget.dof_eff
     if dof < LOW_DOF:
@@ -221,7 +221,7 @@ def direct_loss(thru: PooledTone, dut: PooledTone, thru_after: PooledTone | None
 
     def compute(extra):
         try:
-            return ladder_mod.direct_loss(thru.dbfs, thru.u_db, dut.dbfs, dut.u_db, dof=dof,
+            return loss_mod.direct_loss(thru.dbfs, thru.u_db, dut.dbfs, dut.u_db, dof=dof,
                                           linearity_db=linearity_db or 0.0, extra_components=extra, **kw)
         except ValueError as exc:
             raise MeasurementError(str(exc)) from None
@@ -247,7 +247,7 @@ def generator_drift(steps: Mapping[float, PooledTone], dut: PooledTone) -> tuple
 
     A ladder step captured again after the DUT shows how far the level moved meanwhile; the largest
     change seen bounds the drift in the DUT's reading against the ladder
-    (:func:`rxbench.dsp.ladder.drift_component`). Without such a re-read the line is zero and says
+    (:func:`rxbench.dsp.loss.drift_component`). Without such a re-read the line is zero and says
     it was not assessed.
     """
     times = dut.times_s
@@ -264,7 +264,7 @@ def generator_drift(steps: Mapping[float, PooledTone], dut: PooledTone) -> tuple
             nominals.append(nominal)
     if not changes:
         return Component.not_assessed("generator drift", "capture a ladder step again after the DUT"), None
-    comp, i, beyond = ladder_mod.drift_component([c[0] for c in changes], [c[1] for c in changes],
+    comp, i, beyond = loss_mod.drift_component([c[0] for c in changes], [c[1] for c in changes],
                                                  [f"{db:g} dB step re-read after the DUT" for db in nominals])
     warning = None
     if beyond:
@@ -314,7 +314,7 @@ def substitution_loss(steps: Mapping[float, PooledTone], dut: PooledTone, *, dut
 
     def compute(extra):
         try:
-            return ladder_mod.substitution_loss(
+            return loss_mod.substitution_loss(
                 nominal, [p.dbfs for p in steps.values()], [p.u_db for p in steps.values()], dut.dbfs, dut.u_db,
                 dut_step_db=dut_attenuation_db, atten_tolerance_db=tolerance_db or 0.0, dof_dut=dut.dof,
                 dof_steps=[p.dof for p in steps.values()], extra_components=(drift, *extra))
