@@ -15,7 +15,7 @@ import json
 import numpy as np
 import pytest
 
-from rxbench import recordings
+from rxbench.recordings import sigmf_reading
 from rxbench.cli import main
 from rxbench.errors import CaptureError
 from rxbench.recordings import open_capture
@@ -124,8 +124,8 @@ def test_the_schema_sees_what_the_file_says(tmp_path, rng):
 
 
 def test_the_validator_is_built_once(tmp_path, rng):
-    recordings._sigmf_validator.cache_clear()
+    sigmf_reading._sigmf_validator.cache_clear()
     for i in range(3):
         open_capture(_write(tmp_path, f"v{i}", _codes(rng, 100).tobytes(), [{"core:sample_start": 0}]))
-    info = recordings._sigmf_validator.cache_info()
+    info = sigmf_reading._sigmf_validator.cache_info()
     assert info.misses == 1 and info.hits == 2
