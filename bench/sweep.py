@@ -39,7 +39,7 @@ import math
 
 from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.keys import ROLES
-from rxbench.plan import (DIRECT_SAMPLING_HIGH_HZ, NOISE_SOURCE_ROLES, TONE_ROLES, _NAME_RE, Plan, Step)
+from rxbench.plan.model import DIRECT_SAMPLING_HIGH_HZ, NAME_RE, NOISE_SOURCE_ROLES, TONE_ROLES, Plan, Step
 
 #: Fraction of each capture's band the analysis leaves out at each edge (dsp.floor.usable_mask's default).
 EDGE_FRACTION = 0.1
@@ -215,7 +215,7 @@ def expand_sweeps(c, data: dict, defaults: dict, dongle, tone_offset_hz: float, 
         kw = dict(number=i, label=label)
         c.known("sweep", sw, _SWEEP, **kw)
         name = c.string("sweep", sw, "name", **kw)
-        if name is None or not _NAME_RE.match(name) or len(name) > 40:
+        if name is None or not NAME_RE.match(name) or len(name) > 40:
             c.fail("sweep", "name", f"needs a name of 1-40 letters, digits, '-', '_' or '.'; got {name!r}", **kw)
         roles = sw.get("roles")
         if (not isinstance(roles, list) or not roles or not all(isinstance(r, str) for r in roles)
@@ -251,7 +251,7 @@ def expand_sweeps(c, data: dict, defaults: dict, dongle, tone_offset_hz: float, 
                    **kw)
         devices = c.number("sweep", sw, "devices", default=1, integer=True, low=1, high=100, **kw)
         device = c.string("sweep", sw, "device", default="", **kw)
-        if device and (not _NAME_RE.match(device) or len(device) > 64):
+        if device and (not NAME_RE.match(device) or len(device) > 64):
             c.fail("sweep", "device", f"must be 1-64 letters, digits, '-', '_' or '.'; got {device!r}", **kw)
         wd = sw.get("with_dut", [False])
         wd = [wd] if isinstance(wd, bool) else wd

@@ -1,100 +1,22 @@
-"""Measurement plans: a TOML file that says what to capture, in what order, and what to tell the operator.
-
-A plan is data, never code: it is parsed with :mod:`tomllib` and every field is checked against the
-schema below. An error names the file, the line and the field, and repeats the value received.
-
-Schema (every quantity carries its unit in its name)::
-
-    title = "Direct loss of the band-pass filter"      # optional
-    description = "..."                                # optional
-
-    [dongle]                 # required
-    sample_rate_hz = 250000  # 225001-300000 or 900001-3200000 (what the RTL2832U accepts)
-    gain_db = 30.0           # fixed tuner gain; automatic gain is never used
-    ppm = 0                  # frequency correction, whole ppm
-    direct_sampling = "off"  # "off", "i" or "q" (HF through the ADC input, no tuner)
-    upconverter_hz = 0       # an upconverter in front: the dongle tunes to center_hz + this
-    bias_tee = false         # DC on the antenna input: only when something there needs it
-    settle_s = 0.1           # discarded after every retune or gain change
-    full_scale_dbm = -40.0   # optional: input level that reaches full scale at this gain
-
-    [generator]              # optional: a signal generator's tone
-    level_dbm = -30.0        # its output level, when known (the input-level guard uses it)
-    offset_hz = 10000        # tone frequency minus the dongle's centre frequency
-
-    [attenuator]             # optional
-    tolerance_db = 0.3       # the step attenuator's stated accuracy (per setting), dB
-
-    [match]                  # optional: SWRs for the mismatch terms of the loss budgets
-    source_swr = 1.1         # what drives the DUT: generator with its pads and attenuator
-    load_swr = 1.2           # what the DUT drives: the dongle's input (behind its pad, if any)
-    dut_swr = 1.5            # the device under test, at its ports
-
-    [noise_source]           # optional: needed by hot/cold steps
-    enr_db = 15.0            # excess noise ratio; or a table:
-    # enr_table = [[26e6, 15.3], [30e6, 15.1]]     # [frequency_hz, enr_db] rows, ascending
-    u_enr_db = 0.2           # standard uncertainty of the ENR, dB (from its calibration)
-
-    [check]                  # optional: the check after every capture
-    level_tolerance_db = 3.0 # a tone level this far off the plan's estimate fails the check
-    stop_on_failure = false  # unattended (--yes) runs stop at a failed check instead of going on
-
-    [defaults]               # optional: values every step takes unless it gives its own
-    center_hz = 28.4e6
-    duration_s = 0.5
-    repeats = 1
-    attenuation_db = 0
-
-    [[sweep]]                # optional: many steps across frequency (see bench.sweep)
-
-    [[step]]                 # one or more (or sweeps), captured in order
-    name = "thru"            # unique; letters, digits, '-', '_', '.'; used in file names
-    role = "thru"            # thru, dut, step, hot, cold, antenna or load
-    attenuation_db = 60      # the step attenuator's setting (nominal), dB
-    center_hz = 28.4e6       # the dongle's centre frequency (the RF frequency with an upconverter)
-    duration_s = 0.5
-    repeats = 1
-    with_dut = false         # the DUT is in the path (implied by role "dut")
-    devices = 1              # identical devices in series (2 for a back-to-back pair)
-    instruction = "Connect the generator through the attenuator and a thru adapter."
-
-:func:`Plan.expand` turns the steps into the concrete captures, one per repeat.
-"""
+"""Parsing and validating a plan's TOML text (every field against the schema of :mod:`bench.plan`;
+an error names the file, the line and the field, and repeats the value received), and reading a
+plan file."""
 
 from __future__ import annotations
 
 import math
 import re
 import tomllib
-from dataclasses import dataclass, field
 from pathlib import Path
 
+from rxbench import keys
 from rxbench.errors import CaptureError, PlanError
 from rxbench.files import read_text_input
-from rxbench.quantities import QuantityError, check as check_quantity
-from rxbench import keys
 from rxbench.keys import ROLES
-
-#: Sample rates the RTL2832U accepts (Hz): (low, high] intervals, as librtlsdr checks them.
-VALID_RATE_RANGES_HZ = ((225_000.0, 300_000.0), (900_000.0, 3_200_000.0))
-#: Above this rate USB transfers commonly start to lose samples (common practice).
-RELIABLE_RATE_HZ = 2_400_000.0
-#: Roles whose input is the signal generator's tone.
-TONE_ROLES = ("thru", "dut", "step")
-#: Roles whose input is the noise source.
-NOISE_SOURCE_ROLES = ("hot", "cold")
-#: Lowest frequency most dongle tuners reach without direct sampling or an upconverter, Hz
-#: (about 24 MHz for the common R820T-family tuners; from memory).
-TUNER_LOW_HZ = 24e6
-#: Highest useful frequency in direct sampling: the Nyquist frequency of the 28.8 MHz ADC clock.
-DIRECT_SAMPLING_HIGH_HZ = 14.4e6
-
-#: Largest plan file read, bytes (a plan of a hundred steps is about 10 kB).
-PLAN_LIMIT_BYTES = 1024 * 1024
-#: Most steps a plan may expand to.
-MAX_STEPS = 5000
-
-_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+from rxbench.plan.model import (DIRECT_SAMPLING_HIGH_HZ, MAX_STEPS, NAME_RE, NOISE_SOURCE_ROLES, PLAN_LIMIT_BYTES,
+                                RELIABLE_RATE_HZ, TONE_ROLES, TUNER_LOW_HZ, VALID_RATE_RANGES_HZ, DongleSettings,
+                                Plan, Step)
+from rxbench.quantities import QuantityError, check as check_quantity
 
 _DEFAULT_INSTRUCTIONS = {
     "thru": "Connect the generator through the step attenuator ({att}) and a thru adapter to the dongle.",
@@ -105,156 +27,6 @@ _DEFAULT_INSTRUCTIONS = {
     "antenna": "Connect the antenna{dut} to the dongle (attenuator at {att}).",
     "load": "Replace the antenna by a 50-ohm load{dut} on the dongle's input.",
 }
-
-
-@dataclass(frozen=True)
-class DongleSettings:
-    """How the dongle is set up for the whole plan."""
-
-    sample_rate_hz: float
-    gain_db: float
-    ppm: int = 0
-    direct_sampling: str = "off"
-    upconverter_hz: float = 0.0
-    bias_tee: bool = False
-    settle_s: float = 0.1
-    full_scale_dbm: float | None = None
-
-
-@dataclass(frozen=True)
-class Step:
-    """One step of a plan, as written (defaults applied)."""
-
-    index: int  # 1-based, in plan order
-    name: str
-    role: str
-    attenuation_db: float
-    center_hz: float
-    duration_s: float
-    repeats: int
-    instruction: str
-    with_dut: bool
-    line: int  # line of the step's [[step]] header
-    devices: int = 1  # identical devices in series (back-to-back pair: 2)
-    device: str = ""  # which device is in the path (a label of the plan's choosing), when named
-    sweep: str = ""  # the [[sweep]] this step was expanded from, if any
-
-
-@dataclass(frozen=True)
-class PlannedCapture:
-    """One concrete capture of a plan: a step at one repeat."""
-
-    number: int  # 1-based position in the session
-    step: Step
-    repeat: int  # 1-based
-    base_name: str  # file name without suffix, unique in the session
-    generator_dbm: float | None  # nominal generator level (tone roles only)
-    tone_offset_hz: float | None  # tone minus centre frequency (tone roles only)
-    enr_db: float | None  # noise-source ENR at the centre frequency (hot/cold only)
-    u_enr_db: float | None = None  # its standard uncertainty (hot/cold only, when given)
-    attenuator_tolerance_db: float | None = None  # the attenuator's stated accuracy, when given
-    swr: tuple[tuple[str, float], ...] = ()  # (source_swr/load_swr/dut_swr, value) given (tone roles)
-
-    @property
-    def role(self) -> str:
-        return self.step.role
-
-    @property
-    def center_hz(self) -> float:
-        return self.step.center_hz
-
-    @property
-    def attenuation_db(self) -> float:
-        return self.step.attenuation_db
-
-    @property
-    def duration_s(self) -> float:
-        return self.step.duration_s
-
-    @property
-    def with_dut(self) -> bool:
-        return self.step.with_dut
-
-    @property
-    def input_dbm(self) -> float | None:
-        """Estimated tone level at the dongle's input (generator minus attenuation; the DUT's loss
-        is not counted, so the estimate errs high), or None when the generator level is unknown."""
-        if self.generator_dbm is None:
-            return None
-        return self.generator_dbm - self.attenuation_db
-
-
-@dataclass(frozen=True)
-class Plan:
-    """A validated measurement plan."""
-
-    source: str  # file name (or label) the plan came from
-    text: str  # the TOML text, kept verbatim for the session's copy
-    title: str
-    description: str
-    dongle: DongleSettings
-    steps: tuple[Step, ...]
-    generator_dbm: float | None = None
-    tone_offset_hz: float = 10_000.0
-    enr_db: float | None = None
-    enr_table: tuple[tuple[float, float], ...] = ()
-    u_enr_db: float | None = None
-    attenuator_tolerance_db: float | None = None
-    swr: tuple[tuple[str, float], ...] = ()  # [match]: (source_swr/load_swr/dut_swr, value) given
-    warnings: tuple[str, ...] = field(default=())
-    check_tolerance_db: float = 3.0  # [check] level_tolerance_db
-    stop_on_failed_check: bool = False  # [check] stop_on_failure
-
-    def step_named(self, name: str) -> Step:
-        for s in self.steps:
-            if s.name == name:
-                return s
-        known = ", ".join(s.name for s in self.steps)
-        raise PlanError(f"{self.source}: no step named {name!r} (the plan has: {known})")
-
-    def enr_at(self, frequency_hz: float) -> float | None:
-        """ENR (dB) at ``frequency_hz``: the table interpolated linearly, or the constant value.
-
-        Outside the table's range the nearest end value is used and :meth:`expand` records a warning.
-        """
-        if self.enr_table:
-            f = [r[0] for r in self.enr_table]
-            e = [r[1] for r in self.enr_table]
-            if frequency_hz <= f[0]:
-                return e[0]
-            if frequency_hz >= f[-1]:
-                return e[-1]
-            for i in range(1, len(f)):
-                if frequency_hz <= f[i]:
-                    w = (frequency_hz - f[i - 1]) / (f[i] - f[i - 1])
-                    return e[i - 1] + w * (e[i] - e[i - 1])
-        return self.enr_db
-
-    def expand(self) -> list[PlannedCapture]:
-        """The concrete captures, in order: each step once per repeat."""
-        out: list[PlannedCapture] = []
-        for step in self.steps:
-            for r in range(1, step.repeats + 1):
-                number = len(out) + 1
-                base = f"{number:02d}-{step.name}"
-                tone = step.role in TONE_ROLES
-                out.append(PlannedCapture(
-                    number=number,
-                    step=step,
-                    repeat=r,
-                    base_name=base,
-                    generator_dbm=self.generator_dbm if tone else None,
-                    tone_offset_hz=self.tone_offset_hz if tone else None,
-                    enr_db=self.enr_at(step.center_hz) if step.role in NOISE_SOURCE_ROLES else None,
-                    u_enr_db=self.u_enr_db if step.role in NOISE_SOURCE_ROLES else None,
-                    attenuator_tolerance_db=self.attenuator_tolerance_db,
-                    swr=self.swr if tone else (),
-                ))
-        return out
-
-
-# ------------------------------------------------------------------------------------------------
-# Parsing
 
 
 class _Lines:
@@ -510,7 +282,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         nm = c.string("step", s, "name", **kw)
         if nm is None:
             c.fail("step", None, "missing required field 'name'", **kw)
-        if not _NAME_RE.fullmatch(nm) or len(nm) > 64:
+        if not NAME_RE.fullmatch(nm) or len(nm) > 64:
             c.fail("step", "name", f"must be 1-64 letters, digits, '-', '_' or '.', starting with a letter "
                                    f"or digit; got {nm!r}", **kw)
         if nm in seen:
@@ -541,7 +313,7 @@ def parse_plan(text: str, name: str = "<plan>") -> Plan:
         if devices != 1 and role != "dut":
             c.fail("step", "devices", f"only a 'dut' step holds devices in series; this one is {role!r}", **kw)
         device = c.string("step", s, "device", default="", **kw)
-        if device and (not _NAME_RE.match(device) or len(device) > 64):
+        if device and (not NAME_RE.match(device) or len(device) > 64):
             c.fail("step", "device", f"must be 1-64 letters, digits, '-', '_' or '.'; got {device!r}", **kw)
         if device and not with_dut:
             c.fail("step", "device", "names the device in the path, but the device is not in it (with_dut = "
@@ -606,12 +378,3 @@ def load_plan(path) -> Plan:
     except CaptureError as exc:
         raise PlanError(str(exc)) from None
     return parse_plan(text, str(p))
-
-
-#: Folder of the example plans shipped with rxbench.
-EXAMPLES_DIR = Path(__file__).parent / "data" / "plans"
-
-
-def example_plans() -> list[Path]:
-    """The example plan files shipped with rxbench, sorted by name."""
-    return sorted(EXAMPLES_DIR.glob("*.toml"))
