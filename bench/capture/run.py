@@ -1,28 +1,11 @@
-"""Running a plan into a session folder.
-
-A session is a folder holding:
-
-- one SigMF recording per capture, raw cu8 as the dongle delivers it, named ``NN-STEP`` (``NN`` the
-  capture's position in the plan); its metadata carries, under the ``rxbench:`` extension namespace,
-  ``role``, ``step``, ``repeat``, ``attenuation_db``, ``gain_db``, ``with_dut``, ``ppm``,
-  ``generator_dbm`` and ``tone_offset_hz`` (tone roles, when known), ``enr_db`` and ``u_enr_db``
-  (hot/cold), ``attenuator_tolerance_db``, ``devices`` (a back-to-back pair: 2), ``device`` (the
-  step's device label, when named), ``dropped_samples``
-  and ``simulated``; ``core:datetime`` is the capture's start;
-- ``plan.toml``, the plan's text as it was run;
-- ``log.txt``, one timestamped line per event (appended, never rewritten);
-- ``NN-STEP.partial.sigmf-*``: what an interrupted capture had, marked ``rxbench:incomplete``;
-- ``.replaced/``: earlier recordings of steps captured again with ``--redo`` (never deleted).
-
-Running a plan into an existing session resumes it: captures already there are kept and skipped.
-Nothing is ever overwritten, and nothing appears under a final name before it is complete.
+"""Running a plan: the operator's prompts and each step's instruction, the drift re-reads that must be
+captured again with a step, every capture written atomically (a settling discard first; an
+interrupted one kept as a ``.partial``), checked once written, and the time left.
 """
 
 from __future__ import annotations
 
-import datetime as _dt
 import math
-import os
 import sys
 import time
 from dataclasses import dataclass, field
@@ -30,85 +13,16 @@ from pathlib import Path
 from typing import Callable, Sequence, TextIO
 
 from rxbench import interrupts, keys
+from rxbench.capture.folder import (LOG_NAME, REPLACED_DIR, SessionLog, move_aside, plan_bytes, prepare_session,
+                                    round_up_512, verify_kept)
+from rxbench.capture.guards import check_bias_tee, check_levels
 from rxbench.device import CHUNK_BYTES, CaptureSource
-from rxbench.errors import CaptureError, RxbenchError, UsageError
+from rxbench.errors import UsageError
+from rxbench.files import check_free_space
 from rxbench.output import Progress
-from rxbench.files import check_free_space, read_text_input
-from rxbench.plan import PLAN_LIMIT_BYTES, TONE_ROLES, Plan, PlannedCapture
-from rxbench.recordings import META_SUFFIX, SigmfWriter, open_capture, salvage_temporaries, sigmf_paths
+from rxbench.plan import TONE_ROLES, Plan, PlannedCapture
+from rxbench.recordings import META_SUFFIX, SigmfWriter, salvage_temporaries, sigmf_paths
 from rxbench.style import fmt_hz, fmt_hz_band
-
-PLAN_NAME = "plan.toml"
-LOG_NAME = "log.txt"
-#: Earlier recordings of steps captured again; a dot folder, so session readers pass it by.
-REPLACED_DIR = ".replaced"
-
-#: Damage level of a dongle's input, dBm (about +10 dBm; from memory, common practice).
-DAMAGE_DBM = 10.0
-#: Estimated input levels above this are refused unless forced, dBm (10 dB below damage).
-REFUSE_ABOVE_DBM = 0.0
-#: A tone within this much of full scale is warned about (noise peaks ride on it), dB.
-CLIP_MARGIN_DB = 3.0
-#: Without a known full-scale level, tone levels above this are warned about as likely to clip, dBm:
-#: dongles commonly reach full scale somewhere between about -50 and -10 dBm depending on the gain
-#: (common practice).
-UNKNOWN_CLIP_WARN_DBM = -40.0
-
-
-
-def round_up_512(n: float) -> int:
-    return int(math.ceil(n / 512.0)) * 512
-
-
-def check_levels(plan: Plan, *, force: bool = False) -> list[str]:
-    """The input-level guard: estimate each tone capture's level at the dongle's input.
-
-    Returns warnings (likely clipping, unknown level); raises UsageError for any level above
-    :data:`REFUSE_ABOVE_DBM` unless ``force``.
-    """
-    warnings: list[str] = []
-    fs_dbm = plan.dongle.full_scale_dbm
-    worst: dict[str, float] = {}
-    for cap in plan.expand():
-        level = cap.input_dbm
-        if level is not None and cap.step.name not in worst:
-            worst[cap.step.name] = level
-    for name, level in worst.items():
-        if level > REFUSE_ABOVE_DBM:
-            msg = (f"step {name!r}: about {level:+.1f} dBm would reach the dongle's input (generator "
-                   f"{plan.generator_dbm:+.1f} dBm minus the attenuation); its input is damaged near "
-                   f"{DAMAGE_DBM:+.0f} dBm")
-            if not force:
-                raise UsageError(f"{plan.source}: {msg}. Add attenuation; --force only if you know the "
-                                 "real level is lower")
-            warnings.append(msg + " (forced)")
-        elif fs_dbm is not None and level > fs_dbm - CLIP_MARGIN_DB:
-            warnings.append(f"step {name!r}: about {level:+.1f} dBm at the input is within "
-                            f"{CLIP_MARGIN_DB:g} dB of full scale ({fs_dbm:+.1f} dBm): it will clip")
-        elif fs_dbm is None and level > UNKNOWN_CLIP_WARN_DBM:
-            warnings.append(f"step {name!r}: about {level:+.1f} dBm at the input may clip the dongle "
-                            "(give [dongle] full_scale_dbm, e.g. from a ladder check, for a firmer check)")
-    return warnings
-
-
-def check_bias_tee(plan: Plan, *, force: bool = False) -> list[str]:
-    """The bias-tee guard: with ``[dongle] bias_tee`` on, DC (about 4.5-5 V, from memory, common
-    practice) sits on the dongle's input. A generator's output, a noise source, a 50-ohm load or a
-    DUT (a transformer shorts it, a filter may not like it) is refused unless ``force``; only an
-    antenna step (an active antenna or a masthead amplifier that wants the DC) is let through."""
-    if not plan.dongle.bias_tee:
-        return []
-    exposed = [s.name for s in plan.steps if s.role != "antenna" or s.with_dut]
-    if not exposed:
-        return []
-    msg = (f"bias tee ON with a generator, noise source, load or DUT on the input (steps "
-           f"{', '.join(exposed)}): its DC would flow into them (a transformer DUT shorts it; a generator "
-           "output can be damaged)")
-    if not force:
-        raise UsageError(f"{plan.source}: {msg}. Set [dongle] bias_tee = false, or add a DC block and use "
-                         "--force")
-    return [msg + " (forced: put a DC block in front of them)"]
-
 
 def drift_partners(plan: Plan) -> dict[str, list[str]]:
     """For each step a drift correction depends on, the steps that must be captured with it.
@@ -160,85 +74,6 @@ class SessionRun:
     stopped: bool = False
     warnings: list[str] = field(default_factory=list)
     checks: list = field(default_factory=list)  # bench.check.CaptureCheck of each capture written
-
-
-class _Log:
-    def __init__(self, path: Path):
-        self.path = path
-
-    def __call__(self, message: str) -> None:
-        stamp = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
-        with open(self.path, "a", encoding="utf-8") as f:
-            f.write(f"{stamp} {message}\n")
-
-
-def _write_new(path: Path, text: str) -> None:
-    """Write ``text`` to a new file atomically; never replaces an existing one."""
-    tmp = path.parent / f".{path.name}.{os.urandom(4).hex()}.tmp"
-    try:
-        with open(tmp, "x", encoding="utf-8") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        os.link(tmp, path)
-    except FileExistsError:
-        raise CaptureError(path, "already exists; not overwriting it") from None
-    finally:
-        tmp.unlink(missing_ok=True)  # on every path: a full disk leaves no empty temporary
-
-
-def _same_plan_data(text_a: str, text_b: str) -> bool:
-    """True when two plan texts hold the same data (they differ only in comments or layout)."""
-    import tomllib
-
-    try:
-        return tomllib.loads(text_a) == tomllib.loads(text_b)
-    except (tomllib.TOMLDecodeError, RecursionError):
-        return False
-
-
-def prepare_session(plan: Plan, session_dir) -> Path:
-    """Create the session folder or check that an existing one holds this plan (the same data; comments
-    and layout may differ, and the session keeps its own copy); returns its path."""
-    session = Path(session_dir)
-    if session.exists() and not session.is_dir():
-        raise UsageError(f"{session}: exists and is not a folder")
-    session.mkdir(parents=True, exist_ok=True)
-    plan_copy = session / PLAN_NAME
-    if plan_copy.exists():
-        try:
-            old = read_text_input(plan_copy, "plan file", limit=PLAN_LIMIT_BYTES)
-        except CaptureError as exc:
-            raise UsageError(f"cannot read the session's plan: {exc}") from None
-        if old != plan.text and not _same_plan_data(old, plan.text):
-            raise UsageError(f"{plan_copy}: the session was made with a different plan than {plan.source}; "
-                             "a session holds one plan: choose a new --out folder")
-    else:
-        if any(session.glob("*" + META_SUFFIX)):
-            raise UsageError(f"{session}: holds recordings but no {PLAN_NAME}: not an rxbench session; "
-                             "choose a new --out folder")
-        _write_new(plan_copy, plan.text)
-    return session
-
-
-def _move_aside(session: Path, meta: Path) -> list[Path]:
-    """Move a recording into ``replaced/`` under a new name (never deleting anything)."""
-    folder = session / REPLACED_DIR
-    folder.mkdir(exist_ok=True)
-    meta_path, data_path = sigmf_paths(meta)
-    base = meta_path.name[: -len(META_SUFFIX)]
-    stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
-    for i in range(1000):
-        stem = f"{base}.{stamp}" + (f"-{i}" if i else "")
-        targets = [folder / (stem + p.name[len(base):]) for p in (meta_path, data_path)]
-        if not any(t.exists() for t in targets):
-            break
-    moved = []
-    for src, dst in zip((meta_path, data_path), targets):
-        if src.exists():
-            os.rename(src, dst)
-            moved.append(dst)
-    return moved
 
 
 def _instruction_text(plan: Plan, cap: PlannedCapture, total_steps: int) -> str:
@@ -369,44 +204,10 @@ def _mmss(seconds: float) -> str:
     return f"{seconds // 60}:{seconds % 60:02d}"
 
 
-def plan_bytes(plan: Plan, session_dir, redo: Sequence[str] = ()) -> int:
-    """Bytes the plan's captures still to be made will take in ``session_dir`` (cu8: 2 a sample)."""
-    session = Path(session_dir)
-    rate = plan.dongle.sample_rate_hz
-    total = 0
-    for cap in plan.expand():
-        if cap.step.name not in redo and (session / (cap.base_name + META_SUFFIX)).exists():
-            continue
-        total += round_up_512(math.ceil(cap.duration_s * rate) * 2)
-    return total
-
-
-def verify_kept(meta: Path, cap: PlannedCapture) -> str | None:
-    """Why a recording found in the session is not the complete capture ``cap`` (None when it is):
-    both files there, the metadata readable and of this step, the length the plan asks for."""
-    meta_path, data_path = sigmf_paths(meta)
-    if not meta_path.exists():
-        return "its data has no metadata beside it"
-    if not data_path.exists():
-        return "its data file is missing"
-    try:
-        rec = open_capture(meta_path)
-    except RxbenchError as exc:
-        return str(exc.problem if isinstance(exc, CaptureError) else exc)
-    if rec.extra.get(keys.INCOMPLETE):
-        return "it is marked incomplete"
-    if rec.extra.get(keys.STEP) not in (None, cap.step.name):
-        return f"it is of step {rec.extra.get(keys.STEP)!r}, not {cap.step.name!r}"
-    expected = round_up_512(math.ceil(cap.duration_s * rec.sample_rate_hz) * 2) // 2
-    if rec.n_samples != expected:
-        return f"it holds {rec.n_samples} samples, the plan's capture {expected}"
-    return None
-
-
 def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, *, yes: bool,
                   redo: Sequence[str], show: Progress, ask: Callable[[str], str], check: bool = True,
                   preamble: str | None = None) -> None:
-    log = _Log(session / LOG_NAME)
+    log = SessionLog(session / LOG_NAME)
     log(f"run of {plan.source} with device {device.name}"
         + (f" (redo {', '.join(redo)})" if redo else "") + (" (unattended)" if yes else ""))
     for w in run.warnings:
@@ -452,7 +253,7 @@ def _run_captures(plan: Plan, session: Path, device: CaptureSource, run: Session
 
 
 def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: SessionRun, todo, *, yes: bool,
-                  show: Progress, ask: Callable[[str], str], log: _Log, check: bool) -> None:
+                  show: Progress, ask: Callable[[str], str], log: SessionLog, check: bool) -> None:
     from rxbench.check import Checker  # here: the reading's numerics load only when a capture is checked
 
     checker = Checker(plan.dongle.full_scale_dbm, plan.check_tolerance_db) if check else None
@@ -482,7 +283,7 @@ def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: Session
                     clock.left_s -= sum(c.duration_s for c, _ in todo if c.step.name == name)
                     continue
         if move:  # --redo: the earlier recording goes aside only now, just before its replacement
-            run.replaced.extend(_move_aside(session, session / (cap.base_name + META_SUFFIX)))
+            run.replaced.extend(move_aside(session, session / (cap.base_name + META_SUFFIX)))
             log(f"moved the earlier {cap.base_name} to {REPLACED_DIR}/ to capture it again")
         while True:
             meta = _capture_one(plan, cap, session, device, show, log, run, clock)
@@ -507,7 +308,7 @@ def _capture_todo(plan: Plan, session: Path, device: CaptureSource, run: Session
             answer = ask("  r: capture it again   Enter: keep it and go on   q: stop here > ").lower()
             if answer in ("r", "redo", "again"):
                 run.written.remove(meta)
-                run.replaced.extend(_move_aside(session, meta))
+                run.replaced.extend(move_aside(session, meta))
                 log(f"operator captures {cap.base_name} again after the failed check; the first one is in "
                     f"{REPLACED_DIR}/")
                 clock.left_s += cap.duration_s
@@ -536,7 +337,7 @@ def _check_one(checker, cap: PlannedCapture, meta: Path):
 
 
 def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: CaptureSource,
-                 show: Progress, log: _Log, run: SessionRun, clock: _Clock | None = None) -> Path:
+                 show: Progress, log: SessionLog, run: SessionRun, clock: _Clock | None = None) -> Path:
     settings = plan.dongle
     device.arrange(cap)
     applied = device.configure(settings, cap.center_hz)
@@ -622,6 +423,3 @@ def _capture_one(plan: Plan, cap: PlannedCapture, session: Path, device: Capture
         timing = f"; {clock.text(clock.left_s)}"
     show.finish(label, f"written {meta.name} ({n_samples / rate:.2f} s{timing})")
     return meta
-
-
-__all__ = ["run_session", "check_levels", "prepare_session", "plan_bytes", "verify_kept", "SessionRun"]
