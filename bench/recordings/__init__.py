@@ -13,7 +13,7 @@ Writing is atomic: data and metadata go to temporary names in the destination fo
 linked into place only when complete; an existing recording is never replaced unless asked; an
 interrupted recording is kept under a ``.partial`` name, marked incomplete.
 
-The package, by concept: :mod:`.encoding` (sample types to full scale and back), :mod:`.reading`
+The package, by concept: :mod:`.encoding` (sample types to full scale and back), :mod:`.samples`
 (the Capture, block reader, raw IQ and audio), :mod:`.sigmf_reading` (SigMF metadata and segments),
 :mod:`.opening` (any capture by name; the command-line options naming captures) and
 :mod:`.writing` (atomic writer, partials, salvage). Their public names are re-exported here.
@@ -22,7 +22,7 @@ The package, by concept: :mod:`.encoding` (sample types to full scale and back),
 from rxbench.recordings.encoding import ENCODINGS, FLOAT_DATATYPES, RAW_FORMATS, Encoding, decode, encode
 from rxbench.recordings.opening import (add_capture_options, capture_from_args, open_capture,
                                         step_capture_from_args)
-from rxbench.recordings.reading import (AUDIO_SUFFIXES, BLOCK_SAMPLES, DATA_SUFFIX, META_SUFFIX, Capture,
+from rxbench.recordings.samples import (AUDIO_SUFFIXES, BLOCK_SAMPLES, DATA_SUFFIX, META_SUFFIX, Capture,
                                         memory_capture, open_audio, open_raw, sigmf_paths)
 from rxbench.recordings.sigmf_reading import open_sigmf
 from rxbench.recordings.writing import SigmfWriter, atomic_path, salvage_temporaries, utc_now_iso, write_sigmf

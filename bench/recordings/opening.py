@@ -13,7 +13,7 @@ from rxbench.errors import CaptureError, UsageError
 from rxbench.files import check_regular
 from rxbench.quantities import QuantityError, arg as quantity_arg, check as check_quantity
 from rxbench.recordings.encoding import RAW_FORMATS
-from rxbench.recordings.reading import AUDIO_SUFFIXES, DATA_SUFFIX, META_SUFFIX, Capture, open_audio, open_raw
+from rxbench.recordings.samples import AUDIO_SUFFIXES, DATA_SUFFIX, META_SUFFIX, Capture, open_audio, open_raw
 from rxbench.recordings.sigmf_reading import open_sigmf
 
 def open_capture(path, *, fmt: str | None = None, rate_hz: float | None = None,

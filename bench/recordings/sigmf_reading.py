@@ -14,7 +14,7 @@ from rxbench.errors import CaptureError
 from rxbench.files import check_regular, note_input, read_text_input
 from rxbench.quantities import QuantityError, check as check_quantity
 from rxbench.recordings.encoding import ENCODINGS, Encoding
-from rxbench.recordings.reading import Capture, file_reader, positive_rate, sigmf_paths
+from rxbench.recordings.samples import Capture, file_reader, positive_rate, sigmf_paths
 
 @functools.lru_cache(maxsize=1)
 def _sigmf_validator():

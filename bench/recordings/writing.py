@@ -20,7 +20,7 @@ from rxbench import keys
 from rxbench.errors import CaptureError
 from rxbench.files import check_output
 from rxbench.recordings.encoding import ENCODINGS, encode
-from rxbench.recordings.reading import DATA_SUFFIX, META_SUFFIX, sigmf_paths
+from rxbench.recordings.samples import DATA_SUFFIX, META_SUFFIX, sigmf_paths
 
 def utc_now_iso() -> str:
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="microseconds").replace("+00:00", "Z")
