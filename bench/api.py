@@ -27,7 +27,8 @@ from rxbench.methods.gain import GainMethodResult
 from rxbench.methods.gain import gain_method as _gain_method
 from rxbench.methods.loss import LossResult
 from rxbench.methods.loss import direct_loss as _direct_loss
-from rxbench.methods.noise_source import NoiseFigureResult, noise_figure_curve, y_factor_band
+from rxbench.methods.noise_curve import NoiseFigureResult, noise_figure_curve
+from rxbench.methods.noise_source import y_factor_band
 from rxbench.methods.tone import ToneResult, read_tone
 from rxbench.recordings import Capture, open_capture
 from rxbench.session import Analysis, Session, analyze_session, open_session
@@ -92,7 +93,7 @@ def noise_figure(hot, cold, *, enr_db, hot_dut=(), cold_dut=(), n_sub_bands: int
     and ``cold_dut`` the same through the device. Readings at several centre frequencies are grouped
     by their tuning (repeats at one tuning pooled) and stitched into one curve. ``enr_db`` is the
     source's excess noise ratio (a number, or a function of offset frequency in Hz). Returns the
-    :class:`~rxbench.methods.noise_source.NoiseFigureResult` that ``rxbench nf`` prints
+    :class:`~rxbench.methods.noise_curve.NoiseFigureResult` that ``rxbench nf`` prints
     (``to_dict()`` is its JSON): ``noise_figure_db``, ``u_noise_figure_db``, ``insertion_loss_db``,
     ``bands`` (one per tuning), ``curve`` (per sub-band), ``warnings``.
     """

@@ -1,7 +1,7 @@
 """A session's swept curves per device, per amateur band, and compared between devices.
 
 Called by :func:`bench.session.analyze_session` once the noise-source results are in (one
-:class:`rxbench.methods.noise_source.NoiseFigureResult` per device label, which stitches the curve and
+:class:`rxbench.methods.noise_curve.NoiseFigureResult` per device label, which stitches the curve and
 summarises it per band with the functions below): it takes one curve per device label, summarises each (and the receive system's noise figure) per band with
 :mod:`dsp.bands`, checks each curve's continuity across retunes, and gives the per-band difference
 between each device and the first, whose uncertainty comes from each device's own captures (the
@@ -94,7 +94,7 @@ def _jumps(label: str, tunings, k: float, warnings: list[str]) -> list[dict]:
 
 def analyse_bands(analysis) -> None:
     """Fill ``analysis``'s loss curve(s), per-band tables, device differences and retune checks from its
-    noise-source results (``analysis.noise_source``: one :class:`~rxbench.methods.noise_source.NoiseFigureResult`
+    noise-source results (``analysis.noise_source``: one :class:`~rxbench.methods.noise_curve.NoiseFigureResult`
     per device)."""
     results = analysis.noise_source
     if not results:

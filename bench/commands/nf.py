@@ -4,8 +4,8 @@ source with and without the DUT in the path. Captures at several centre frequenc
 into one curve.
 
 This module parses the flags, groups the captures by centre frequency, reads them alike, and
-renders the results of :mod:`rxbench.methods.noise_source` and :mod:`rxbench.methods.gain` (the
-methods a session calls too) as text, CSV or JSON."""
+renders the results of :mod:`rxbench.methods.noise_source`, :mod:`rxbench.methods.noise_curve` and
+:mod:`rxbench.methods.gain` (the methods a session calls too) as text, CSV or JSON."""
 
 from __future__ import annotations
 
@@ -25,8 +25,8 @@ from rxbench.errors import UsageError
 from rxbench.files import check_output
 from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.methods.gain import gain_method
-from rxbench.methods.noise_source import (NoiseFigureResult, NoiseSourceBand, Spectrum, _db, noise_figure_curve,
-                                          y_factor_band)
+from rxbench.methods.noise_curve import NoiseFigureResult, noise_figure_curve
+from rxbench.methods.noise_source import NoiseSourceBand, Spectrum, _db, y_factor_band
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.quantities import arg as quantity_arg
 from rxbench.reading import accumulate, add_noise_band_option, choose_nperseg, health_warnings, read_capture

@@ -8,7 +8,8 @@ from typing import TYPE_CHECKING
 
 from rxbench.dsp.units import T0_K
 from rxbench.errors import MeasurementError, UsageError
-from rxbench.methods.noise_source import NoiseFigureResult, NoiseSourceBand, noise_figure_curve, y_factor_band
+from rxbench.methods.noise_curve import NoiseFigureResult, noise_figure_curve
+from rxbench.methods.noise_source import NoiseSourceBand, y_factor_band
 from rxbench.session.folder import Entry
 from rxbench.session.grouping import _compatible, _mhz
 
