@@ -236,7 +236,7 @@ def test_small_y_warns_with_the_uncertainty(tmp_path, capsys):
     assert res["noise_figure_db"] == pytest.approx(6.0, abs=0.3 + res["noise_figure_expanded_uncertainty_db"])
 
 
-def test_hot_clipping_and_gain_mismatch_warn(tmp_path, capsys):
+def test_hot_clipping_warns_and_a_gain_difference_is_refused(tmp_path, capsys):
     rng = np.random.default_rng(18)
     hot, cold = _pair(tmp_path, "loud", rng, enr_db=25.0, n=40_000)  # hot near -5 dBFS rms: clips
     res, _ = _json(capsys, ["nf", "--hot", hot, "--cold", cold, "--enr-db", "25"])
@@ -245,8 +245,9 @@ def test_hot_clipping_and_gain_mismatch_warn(tmp_path, capsys):
     x = synth.noise_source(40_000, FS, 15.0, True, rng)
     hot2 = _capture(tmp_path, "hot-g", x, rng, dongle=synth.Dongle(gain_db=88.0, noise_figure_db=6.0))
     cold2 = _capture(tmp_path, "cold-g", synth.noise_source(40_000, FS, 15.0, False, rng), rng)
-    res, _ = _json(capsys, ["nf", "--hot", hot2, "--cold", cold2, "--enr-db", "15"])
-    assert any("different dongle gain" in w for w in res["warnings"])
+    # a gain step between hot and cold: Y compares two different receivers, so no number at all
+    err = _fails(capsys, ["nf", "--hot", hot2, "--cold", cold2, "--enr-db", "15"])
+    assert "different dongle gain (90 vs 88 dB)" in err and "hot-g" in err and "cold-g" in err
 
 
 def test_sample_rate_mismatch_warns(tmp_path, capsys):

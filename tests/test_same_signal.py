@@ -231,3 +231,22 @@ def test_the_loss_and_ladder_methods_refuse_readings_of_two_signals(tmp_path):
     with pytest.raises(UnlikeCapturesError, match="other.sigmf-meta"):
         ladder_check({**steps, 30.0: other})
     assert ladder_check(steps).settings["drift_ppm"] == 1.0
+
+
+def test_the_methods_refuse_readings_not_taken_alike(tmp_path):
+    # A thru at one tuning and a DUT 1 kHz of tuning away read "the same" offset but are not one set-up
+    # (and a notebook user reading them one by one would not be told by the command's read_tones).
+    from pathlib import Path
+
+    from rxbench.errors import UnlikeCapturesError
+    from rxbench.methods.common import pool
+    from rxbench.methods.loss import direct_loss
+    from rxbench.reading import read_capture
+    from rxbench.recordings import open_capture
+
+    rng = np.random.default_rng(1209)
+    thru = pool([read_capture(open_capture(Path(_capture(tmp_path, "thru", rng))))])
+    dut = pool([read_capture(open_capture(Path(_capture(tmp_path, "dut", rng, level_dbfs=-28.0,
+                                                             center=CENTER_HZ + 1e3))))])
+    with pytest.raises(UnlikeCapturesError, match="centre frequency .* of dut.sigmf-meta differs"):
+        direct_loss(thru, dut)

@@ -21,7 +21,7 @@ import numpy as np
 from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.units import T0_K
 from rxbench.enr import read_enr_table
-from rxbench.errors import UsageError
+from rxbench.errors import UnlikeCapturesError, UsageError
 from rxbench.files import check_output
 from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.methods.gain import gain_method
@@ -191,11 +191,6 @@ def _group_warnings(g: _Group, healths) -> list[str]:
             out.append(f"{a.path.name} ({ra}) and {b.path.name} ({rb}) differ in sample rate "
                        f"({a.sample_rate_hz:g} vs {b.sample_rate_hz:g} Hz): compared over the common band "
                        "only, and the dongle's filter shape may differ between the two")
-        ga, gb = a.extra.get("gain_db"), b.extra.get("gain_db")
-        if ga is not None and gb is not None and float(ga) != float(gb):
-            what = "the DUT's loss" if rb.endswith("dut") else "Y and the noise figure"
-            out.append(f"{a.path.name} ({ra}) and {b.path.name} ({rb}) were taken at different dongle gain "
-                       f"({float(ga):g} vs {float(gb):g} dB): {what} cannot be trusted")
         if a.center_hz is not None and b.center_hz is not None and a.center_hz != b.center_hz:
             out.append(f"{a.path.name} ({ra}) and {b.path.name} ({rb}) were tuned to different centre "
                        f"frequencies ({a.center_hz:g} vs {b.center_hz:g} Hz)")
@@ -215,6 +210,8 @@ def _band(g: _Group, enr_db, args, warnings: list[str]) -> NoiseSourceBand:
     try:
         return y_factor_band(*(spectra[name] for name in ROLES), enr_db=enr_db, n_sub_bands=args.sub_bands,
                              t_cold_k=args.cold_k, u_enr_db=args.enr_u_db)
+    except UnlikeCapturesError:
+        raise
     except UsageError as exc:
         raise UsageError(f"--sub-bands {exc}") from None
 

@@ -14,7 +14,7 @@ import numpy as np
 from rxbench.dsp import ladder as ladder_mod
 from rxbench.errors import MeasurementError
 from rxbench.dsp.same_signal import DEFAULT_PPM
-from rxbench.methods.common import PooledTone, require_one_signal
+from rxbench.methods.common import PooledTone, require_comparable_tones
 
 #: Defaults of the check, defined once (:mod:`rxbench.dsp.ladder`).
 DEFAULT_TOLERANCE_DB = ladder_mod.DEFAULT_TOLERANCE_DB
@@ -94,7 +94,7 @@ def ladder_check(steps: Mapping[float, PooledTone], *, tolerance_db: float = DEF
     Raises UnlikeCapturesError when the steps' tones are not one signal (3 bins + ``drift_ppm``;
     a step lost in the noise is allowed), MeasurementError when the readings allow no check.
     """
-    require_one_signal(*steps.values(), drift_ppm=drift_ppm)
+    require_comparable_tones(*steps.values(), drift_ppm=drift_ppm)
     steps = dict(sorted(steps.items()))
     if len(steps) < 3:
         raise MeasurementError(f"{len(steps)} attenuator setting(s); the ladder check needs 3 or more")

@@ -19,7 +19,7 @@ from rxbench.dsp.uncertainty import Component, coverage_factor
 from rxbench.errors import MeasurementError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.methods.common import (SWR_FROM_OPTIONS, PooledTone, budget_rows, noted, pool, reading_row,
-                                    require_one_signal, with_aliases, with_impedance_mismatch)
+                                    require_comparable_tones, with_aliases, with_impedance_mismatch)
 
 #: Old key names of a loss result (old -> new), kept for one release.
 ALIASES = {"standard_uncertainty_db": "u_db", "k": "coverage_factor", "effective_dof": "dof_eff",
@@ -200,11 +200,11 @@ def direct_loss(thru: PooledTone, dut: PooledTone, thru_after: PooledTone | None
     Raises
     ------
     UnlikeCapturesError
-        The captures do not hold the same signal (:func:`~rxbench.methods.common.require_one_signal`).
+        The captures do not hold the same signal (:func:`~rxbench.methods.common.require_comparable_tones`).
     MeasurementError
         The readings cannot give a loss (e.g. the DUT does not lie between two thrus in time).
     """
-    require_one_signal(thru, dut, thru_after, drift_ppm=drift_ppm)
+    require_comparable_tones(thru, dut, thru_after, drift_ppm=drift_ppm)
     warnings: list[str] = []
     kw: dict = {}
     times_from = None
@@ -299,7 +299,7 @@ def substitution_loss(steps: Mapping[float, PooledTone], dut: PooledTone, *, dut
         Fewer than two steps, a ladder that does not fall with attenuation, or a DUT reading
         outside the ladder (never extrapolated).
     """
-    require_one_signal(*steps.values(), dut, drift_ppm=drift_ppm)
+    require_comparable_tones(*steps.values(), dut, drift_ppm=drift_ppm)
     warnings: list[str] = []
     steps = dict(sorted(steps.items()))
     if len(steps) < 2:

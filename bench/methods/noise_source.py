@@ -32,7 +32,7 @@ from rxbench.dsp.noisefig import excess_u_db, y_sensitivity
 from rxbench.dsp.spectrum import Psd
 from rxbench.dsp.subbands import N_SUB_BANDS
 from rxbench.dsp.units import T0_K, db_from_power
-from rxbench.errors import MeasurementError, UsageError
+from rxbench.errors import MeasurementError, UnlikeCapturesError, UsageError
 from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
 from rxbench.recordings import Capture
 
@@ -268,6 +268,21 @@ def _lines_warning(rows, center_hz) -> str:
             "read the noise figure high)")
 
 
+def _require_same_gain(groups) -> None:
+    """Refuse captures of one tuning taken at different dongle gain (where the metadata records it):
+    Y, and the DUT's loss, are then ratios of two different receivers' noise."""
+    recorded = [(role, s.capture) for role, g in zip(ROLES, groups) for s in g
+                if s.capture.extra.get("gain_db") is not None]
+    for role, cap in recorded[1:]:
+        r0, c0 = recorded[0]
+        g0, g1 = float(c0.extra["gain_db"]), float(cap.extra["gain_db"])
+        if g1 != g0:
+            raise UnlikeCapturesError(
+                f"{c0.path.name} ({r0.replace('_', '-')}) and {cap.path.name} ({role.replace('_', '-')}) were taken "
+                f"at different dongle gain ({g0:g} vs {g1:g} dB): a noise-source measurement needs one fixed gain "
+                "(AGC off) for every capture of a tuning")
+
+
 def _movement_warnings(groups, dc_halfwidth_hz) -> list[str]:
     out = []
     for role, group in zip(ROLES, groups):
@@ -306,6 +321,8 @@ def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_du
 
     Raises
     ------
+    UnlikeCapturesError
+        Captures of the tuning taken at different dongle gain.
     MeasurementError
         The hot reading is not above the cold one over the band (or through the DUT, see above).
     UsageError
@@ -314,6 +331,7 @@ def y_factor_band(cold: Sequence, hot: Sequence, cold_dut: Sequence = (), hot_du
     groups = [list(g) for g in (cold, hot, cold_dut, hot_dut)]
     warnings: list[str] = []
     first = groups[1][0].capture if groups[1] else groups[0][0].capture
+    _require_same_gain(groups)
     dc_hw = None if first.is_complex else 0.0
     exclude, lines = _lines(groups[0] + groups[1], dc_hw)
     warnings += _movement_warnings(groups, dc_hw)

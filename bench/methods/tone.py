@@ -17,7 +17,7 @@ import numpy as np
 
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.errors import UsageError
-from rxbench.methods.common import COVERAGE_FACTOR, PooledTone, pool, require_one_signal
+from rxbench.methods.common import COVERAGE_FACTOR, PooledTone, pool, require_comparable_tones
 from rxbench.reading import tone_dict
 
 
@@ -107,6 +107,6 @@ def read_tone(readings, role: str = "", *, drift_ppm: float = DEFAULT_PPM) -> To
     if not readings:
         raise UsageError(f"no {role or 'tone'} reading given")
     pooled = pool(readings, role)
-    require_one_signal(pooled, drift_ppm=drift_ppm)
+    require_comparable_tones(pooled, drift_ppm=drift_ppm)
     warnings = tuple(dict.fromkeys(w for r in readings for w in r.warnings))
     return ToneResult(role, pooled, warnings)
