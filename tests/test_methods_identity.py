@@ -55,10 +55,10 @@ def _cli(capsys, *argv) -> dict:
 
 def test_direct_loss_same_from_flags_and_session(tmp_path, capsys):
     swr = {"source_swr": 1.2, "load_swr": 1.5}
-    thru = write_capture(tmp_path, "01-thru", tone_in(-90, 1), role="thru", seed=1, time_s=0, **swr)
-    dut = write_capture(tmp_path, "02-dut", lossy(tone_in(-90, 2), 3.0, 2), role="dut", seed=2, time_s=5,
+    thru = write_capture(tmp_path, "01-thru", tone_in(-90, 1), role="thru", seed=501, time_s=0, **swr)
+    dut = write_capture(tmp_path, "02-dut", lossy(tone_in(-90, 2), 3.0, 2), role="dut", seed=502, time_s=5,
                         with_dut=True, **swr)
-    after = write_capture(tmp_path, "03-thru", tone_in(-90, 3), role="thru", seed=3, time_s=10, **swr)
+    after = write_capture(tmp_path, "03-thru", tone_in(-90, 3), role="thru", seed=503, time_s=10, **swr)
     (session,) = [x.to_dict() for x in analyse(tmp_path).losses]
     cli = _cli(capsys, "loss", "--thru", str(thru), "--dut", str(dut), "--thru-after", str(after),
                "--source-swr", "1.2", "--load-swr", "1.5")
@@ -71,14 +71,14 @@ def test_direct_loss_same_from_flags_and_session(tmp_path, capsys):
 def _ladder_session(tmp_path, steps_db=(0.0, 2.0, 4.0, 6.0, 10.0), tolerance_db=0.1):
     paths = {}
     for i, db in enumerate(steps_db):
-        paths[db] = write_capture(tmp_path, f"{i:02d}-step", tone_in(-80 - db, 10 + i), role="step", seed=10 + i,
+        paths[db] = write_capture(tmp_path, f"{i:02d}-step", tone_in(-80 - db, 10 + i), role="step", seed=500 + 10 + i,
                                   time_s=i, attenuation_db=db, attenuator_tolerance_db=tolerance_db)
     return paths
 
 
 def test_substitution_loss_same_from_flags_and_session(tmp_path, capsys):
     steps = _ladder_session(tmp_path)
-    dut = write_capture(tmp_path, "20-dut", lossy(tone_in(-80, 30), 3.0, 30), role="dut", seed=30, time_s=20,
+    dut = write_capture(tmp_path, "20-dut", lossy(tone_in(-80, 30), 3.0, 30), role="dut", seed=530, time_s=20,
                         with_dut=True, attenuator_tolerance_db=0.1)
     (session,) = [x.to_dict() for x in analyse(tmp_path).losses if x.method == "substitution"]
     cli = _cli(capsys, "loss", *(a for db, p in steps.items() for a in ("--step", f"{db:g}={p}")), "--dut", str(dut),
@@ -98,10 +98,10 @@ def test_ladder_check_same_from_flags_and_session(tmp_path, capsys):
 
 def test_excess_and_knee_same_from_flags_and_session(tmp_path, capsys):
     # Antenna noise at 4000 K over a 290 K load; 10 dB of attenuation (a passive loss at T0) for the knee.
-    ant = write_capture(tmp_path, "01-antenna", noise_in(4000.0, 1), role="antenna", seed=1, time_s=0)
-    step = write_capture(tmp_path, "02-antenna", lossy(noise_in(4000.0, 2), 10.0, 2), role="antenna", seed=2,
+    ant = write_capture(tmp_path, "01-antenna", noise_in(4000.0, 1), role="antenna", seed=501, time_s=0)
+    step = write_capture(tmp_path, "02-antenna", lossy(noise_in(4000.0, 2), 10.0, 2), role="antenna", seed=502,
                          time_s=1, attenuation_db=10.0)
-    load = write_capture(tmp_path, "03-load", noise_in(T0_K, 3), role="load", seed=3, time_s=2)
+    load = write_capture(tmp_path, "03-load", noise_in(T0_K, 3), role="load", seed=503, time_s=2)
     (session,) = analyse(tmp_path).external_noise
     assert session.pop("band") == "10 m"
     cli = _cli(capsys, "excess", "--antenna", str(ant), "--load", str(load), "--antenna-step", f"10={step}")
