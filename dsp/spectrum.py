@@ -1,16 +1,14 @@
-"""The one spectral path: a streaming Welch PSD accumulator and a band-integration helper.
+"""The one spectral path: a streaming Welch PSD accumulator with its time track, and a
+band-integration helper.
 
 Every reading rxbench makes (tone power, noise density, SNR, the noise-source methods) stands on the
-averaged power spectral density this module produces. (A little over 500 lines: the accumulator,
-its time track and the window figures it needs are one concept; the readings of the track live in
-:mod:`dsp.timeline`.)
+averaged power spectral density this module produces. The windows and their figures live in
+:mod:`dsp.windows` (re-exported here), the readings of the time track in :mod:`dsp.timeline`.
 
 References
 ----------
 Welch, P. D., "The use of fast Fourier transform for the estimation of power spectra", IEEE Trans.
 Audio Electroacoust. AU-15(2), 1967.
-Harris, F. J., "On the use of windows for harmonic analysis with the discrete Fourier transform",
-Proc. IEEE 66(1), 1978.
 """
 
 from __future__ import annotations
@@ -20,6 +18,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
+
+from rxbench.dsp.windows import (  # noqa: F401  (kernel, window_properties: re-exported)
+    COSINE_WINDOWS, WindowProperties, get_window, kernel, welch_dof, window_properties)
 
 
 class Inline:
@@ -45,120 +46,6 @@ MAX_SLOTS = 16384
 TRACK_SUBBANDS = 128
 #: A segment that starts or ends with this many exactly-zero samples is in or across a run of them.
 DEAD_RUN = 16
-
-
-@dataclass(frozen=True)
-class WindowProperties:
-    """Figures of merit of a DFT window (Harris 1978).
-
-    ``coherent_gain`` = sum(w)/N; ``enbw_bins`` = N*sum(w**2)/sum(w)**2; ``scalloping_loss_db`` is
-    the loss of a tone halfway between two bins, relative to one on a bin.
-    """
-
-    name: str
-    n: int
-    coherent_gain: float
-    enbw_bins: float
-    scalloping_loss_db: float
-
-
-#: Generalised cosine windows, w[n] = sum_k (-1)**k a_k cos(2 pi k n / N) (Harris 1978), by name.
-#: Other names go to scipy.signal.get_window (imported only then: it is slow to import).
-COSINE_WINDOWS = {
-    "boxcar": (1.0,),
-    "rectangular": (1.0,),
-    "hann": (0.5, 0.5),
-    "hamming": (0.54, 0.46),
-    "blackmanharris": (0.35875, 0.48829, 0.14128, 0.01168),
-}
-
-
-def get_window(window: str | tuple, nperseg: int) -> np.ndarray:
-    """The periodic (DFT-even) window of ``nperseg`` points, float64."""
-    if nperseg < 16:
-        raise ValueError(f"{nperseg=} must be at least 16")
-    if isinstance(window, str) and window in COSINE_WINDOWS:
-        phase = 2.0 * np.pi * np.arange(nperseg) / nperseg
-        return sum((-1) ** k * a * np.cos(k * phase) for k, a in enumerate(COSINE_WINDOWS[window]))
-    import scipy.signal
-
-    try:
-        return scipy.signal.get_window(window, nperseg, fftbins=True).astype(np.float64)
-    except ValueError as exc:
-        raise ValueError(f"unknown window {window!r}: {exc}") from None
-
-
-def window_properties(window: str | tuple, nperseg: int) -> WindowProperties:
-    """Coherent gain, ENBW (bins) and scalloping loss (dB) of a periodic window.
-
-    Examples
-    --------
-    >>> round(window_properties("hann", 4096).enbw_bins, 3)
-    1.5
-    """
-    w = get_window(window, nperseg)
-    n = np.arange(nperseg)
-    half_bin = abs(np.sum(w * np.exp(-1j * np.pi * n / nperseg)))
-    return WindowProperties(
-        name=str(window),
-        n=nperseg,
-        coherent_gain=float(w.sum() / nperseg),
-        enbw_bins=float(nperseg * np.sum(w**2) / w.sum() ** 2),
-        scalloping_loss_db=float(-20.0 * np.log10(half_bin / w.sum())),
-    )
-
-
-def kernel(window: np.ndarray, offsets_bins: np.ndarray) -> np.ndarray:
-    """|W(delta)|^2 / (N * sum(w**2)) at fractional bin offsets: the PSD shape of a pure tone.
-
-    Normalised so that summing it over all N bins gives 1 (Parseval); so ``power * kernel / bin_width``
-    is the expected density of a tone of ``power`` at that offset.
-
-    Notes
-    -----
-    The DTFT of an N-point sequence is its DFT interpolated by the Dirichlet kernel,
-    W(delta) = (1/N) sum_m W_m D(delta - m) with D(x) = sum_n exp(-2j pi x n / N). Cosine windows
-    (Hann, Hamming, Blackman-Harris) have only a few non-zero W_m, so this costs a few terms per
-    offset instead of N.
-    """
-    w = np.asarray(window, dtype=float)
-    n_w = w.size
-    d = np.atleast_1d(np.asarray(offsets_bins, dtype=float))
-    spec = np.fft.fft(w)
-    m = np.flatnonzero(np.abs(spec) > 1e-9 * np.abs(spec).max())
-    m = np.where(m > n_w // 2, m - n_w, m)  # signed bin numbers
-    x = d[:, None] - m[None, :]
-    phase = np.exp(-1j * np.pi * x * (n_w - 1) / n_w)
-    den = np.sin(np.pi * x / n_w)
-    at_pole = np.abs(den) < 1e-12  # x a multiple of N: the sum is N times the phase's sign
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = np.where(at_pole, n_w * np.sign(phase.real), np.sin(np.pi * x) / den)
-    dirichlet = phase * ratio
-    value = dirichlet @ spec[np.where(m < 0, m + n_w, m)] / n_w
-    return np.abs(value) ** 2 / (n_w * np.sum(w**2))
-
-
-def welch_dof(n_segments: int, window: np.ndarray, step: int) -> float:
-    """Equivalent degrees of freedom of a Welch average of complex (two-sided) periodograms.
-
-    Notes
-    -----
-    nu = 2K / [1 + 2*sum_{m=1}^{K-1} (1 - m/K) * rho(m)**2], with rho(m) the correlation of the
-    window with itself shifted by m*step (Welch 1967); for Hann at 50 % overlap,
-    rho(1) = 1/6 and nu ~ 36K^2/(19K - 1) (Percival & Walden 1993).
-    """
-    if n_segments < 1:
-        raise ValueError(f"{n_segments=} must be >= 1")
-    w = np.asarray(window, dtype=float)
-    norm = np.sum(w**2)
-    total = 0.0
-    for m in range(1, n_segments):
-        shift = m * step
-        if shift >= w.size:
-            break
-        rho = np.sum(w[shift:] * w[: w.size - shift]) / norm
-        total += (1.0 - m / n_segments) * rho**2
-    return 2.0 * n_segments / (1.0 + 2.0 * total)
 
 
 @dataclass(frozen=True)
@@ -310,9 +197,12 @@ class PsdAccumulator:
         self._slots = np.zeros((capacity, n_sub), np.float32)
         self._slot_dead = np.zeros(capacity, np.int64)
         self._dead: list[int] = []  # per sub-average
+        self._finished = False  # result() taken: the slots belong to it
 
     def update(self, block) -> None:
         """Add a block of samples (complex for two-sided, real for one-sided)."""
+        if self._finished:
+            raise ValueError("the accumulator's result() was taken: it takes no more blocks")
         x = np.asarray(block)
         if x.ndim != 1:
             raise ValueError(f"block must be one-dimensional, got shape {x.shape}")
@@ -424,6 +314,10 @@ class PsdAccumulator:
         if first_break:
             starts = np.concatenate([[0], starts])
         slot_sums = np.add.reduceat(rows, starts, axis=0).astype(np.float32, copy=False)
+        if not self.one_sided and n_sub > 1:
+            # The fftshift of the bins, by whole sub-bands, on these few rows: the slots are kept in
+            # the PSD's order, so the track needs no reordered copy at the end.
+            slot_sums = np.roll(slot_sums, n_sub // 2, axis=1)
         slot_dead = np.add.reduceat(dead.astype(np.int64), starts) if dead.any() else None
         return squares[0::2] + squares[1::2], first_segment // slot_len, slot_sums, slot_dead
 
@@ -454,8 +348,14 @@ class PsdAccumulator:
         self._dead.append(0)
 
     def result(self) -> Psd:
-        """The averaged PSD so far. Raises ValueError when no complete segment was seen."""
+        """The averaged PSD of every block fed. Raises ValueError when no complete segment was seen.
+
+        The time track is handed over, not copied (its slots become the result's ``track``, scaled
+        to densities in place): the accumulator takes no more blocks after a result.
+        """
         self._work.drain()
+        if self._finished:
+            raise ValueError("result() was already taken from this accumulator")
         if self.n_segments == 0:
             raise ValueError(
                 f"fewer samples than one segment ({self.nperseg=}): the capture is too short"
@@ -474,7 +374,6 @@ class PsdAccumulator:
         else:
             freq = np.fft.fftshift(np.fft.fftfreq(n, 1.0 / fs))
             sums = np.fft.fftshift(sums, axes=-1)
-        track, slot_counts, track_bins = self._track(fs)
         # Segments in or across runs of exactly-zero samples are left out of every average: they
         # are missing data, not a quiet signal.
         active = counts - np.array(self._dead)
@@ -482,6 +381,7 @@ class PsdAccumulator:
         if n_active == 0:
             raise ValueError("every segment is exactly zero: there is no signal or noise to measure")
         keep = active > 0
+        track, slot_counts, track_bins = self._track(fs)
         batch_density = sums[keep] * scale / active[keep, None]
         density = sums.sum(axis=0) * scale / n_active
         props_enbw = n * np.sum(self.window**2) / self.window.sum() ** 2
@@ -519,10 +419,11 @@ class PsdAccumulator:
         # Real input: every bin but DC and Nyquist is folded (x2); the two outer sub-bands hold one
         # unfolded bin each, so their density reads low by at most 1/width (they are never used).
         scale = (2.0 if self.one_sided else 1.0) / (fs * np.sum(self.window**2))
-        track = self._slots[:n_slots] * np.float32(scale) / np.maximum(slot_counts, 1)[:, None].astype(np.float32)
-        track /= widths.astype(np.float32)
-        if not self.one_sided and n_sub > 1:
-            track = np.roll(track, n_sub // 2, axis=1)  # the fftshift of the bins, by whole sub-bands
+        # In place: the slots (already in the PSD's sub-band order) become the track.
+        track = self._slots[:n_slots]
+        track *= (scale / np.maximum(slot_counts, 1)).astype(np.float32)[:, None]
+        track *= (1.0 / widths).astype(np.float32)  # (all equal for complex input: no reordering)
+        self._finished = True
         track.setflags(write=False)
         return track, slot_counts, np.stack([edges[:-1], edges[1:]], axis=1)
 
