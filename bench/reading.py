@@ -280,6 +280,17 @@ def noise_dict(reading: Reading) -> dict:
     }
 
 
+def health_dict(health: Health) -> dict:
+    """The JSON view of a capture's health (shared by inspect and the session): the fraction and
+    count of samples at a rail value, and the peak magnitude of any rail (full-scale units; beyond 1
+    for float data not normalised to full scale)."""
+    return {
+        "clip_fraction": health.clip_fraction,
+        "clip_count": health.n_clipped,
+        "peak_magnitude": health.peak_magnitude,
+    }
+
+
 def tone_db(reading: Reading) -> tuple[float, float, float]:
     """(power dBFS, standard uncertainty dB, dof) of a reading's tone; (nan, nan, inf) when there is none."""
     t = reading.tone

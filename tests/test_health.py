@@ -139,3 +139,73 @@ def test_health_warnings_effect_text():
                peak_magnitude=1.0)
     (w,) = health_warnings("x", h, "the hot reading is wrong")
     assert w == "x: 1 % of samples at the rails (clipping): the hot reading is wrong"
+
+
+# --------------------------------------------------------------------------------------------
+# The health keys of `rxbench inspect --json` and the session's per-capture entries
+
+
+def _cu8_known_rails(rng, n_i, n_q, n_both, top_code=None):
+    """cu8 codes of noise (about 20 codes rms) kept off the rails (codes 10 .. 240), with exactly
+    ``n_i`` samples whose I code, ``n_q`` whose Q code and ``n_both`` whose two codes are at a rail (0
+    or 255: cu8's extreme codes, a fact of the format), and optionally one I code ``top_code``."""
+    x = _counts(rng, rms=20.0, tone=30.0) + np.complex64(127.5 + 127.5j)
+    codes = np.clip(np.rint(x.view(np.float32)), 10, 240).astype(np.uint8)
+    where = rng.choice(N, size=n_i + n_q + n_both + 1, replace=False)
+    i_only, q_only, both, top = np.split(where, np.cumsum([n_i, n_q, n_both]))
+    rail = lambda k: rng.choice([0, 255], size=k).astype(np.uint8)  # noqa: E731
+    codes[2 * i_only] = rail(n_i)
+    codes[2 * q_only + 1] = rail(n_q)
+    codes[2 * both], codes[2 * both + 1] = rail(n_both), rail(n_both)
+    if top_code is not None:
+        codes[2 * top] = top_code
+    return codes
+
+
+@pytest.mark.parametrize("n_i, n_q, n_both", [(3, 0, 0), (20, 17, 5)])
+def test_inspect_json_gives_the_clip_count_and_the_peak(tmp_path, rng, capsys, n_i, n_q, n_both):
+    codes = _cu8_known_rails(rng, n_i, n_q, n_both)
+    path = write_sigmf(tmp_path / "rails", codes, sample_rate_hz=FS, center_hz=50.2e6, datatype="cu8")
+    assert main(["inspect", str(path), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    # A sample with both codes at a rail is one sample at a rail.
+    assert out["clip_count"] == n_i + n_q + n_both
+    assert out["clip_fraction"] == pytest.approx((n_i + n_q + n_both) / N)
+    # Codes 0 and 255 decode to -1 and +1: full scale (cu8's (code - 127.5) / 127.5).
+    assert out["peak_magnitude"] == pytest.approx(1.0, rel=1e-6)
+
+
+def test_inspect_json_peak_without_rails(tmp_path, rng, capsys):
+    codes = _cu8_known_rails(rng, 0, 0, 0, top_code=250)
+    path = write_sigmf(tmp_path / "norails", codes, sample_rate_hz=FS, center_hz=50.2e6, datatype="cu8")
+    assert main(["inspect", str(path), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["clip_count"] == 0 and out["clip_fraction"] == 0.0
+    assert out["peak_magnitude"] == pytest.approx((250 - 127.5) / 127.5, rel=1e-6)
+
+
+def test_unnormalised_float_peak_and_pile_up_count_in_json(tmp_path, rng, capsys):
+    # 12-bit counts clipped at +/-2047 (a signed 12-bit converter's extreme codes): the pile-up is
+    # counted, the peak is the rail.
+    x = _counts(rng, rms=1500.0, tone=0.0)
+    clipped = _rails_clipped(x, 2047.0)
+    at_rail = int(np.count_nonzero((np.abs(clipped.real) >= 2047.0) | (np.abs(clipped.imag) >= 2047.0)))
+    assert at_rail >= PILEUP_MIN_SAMPLES
+    path = write_sigmf(tmp_path / "counts", clipped, sample_rate_hz=FS, center_hz=7.1e6, datatype="cf32_le")
+    assert main(["inspect", str(path), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["clip_count"] == at_rail
+    assert out["peak_magnitude"] == 2047.0
+
+
+def test_session_entries_carry_the_clip_count_and_the_peak(tmp_path, rng):
+    from rxbench import session as sess
+
+    codes = _cu8_known_rails(rng, 4, 2, 1)
+    write_sigmf(tmp_path / "01-thru", codes, sample_rate_hz=FS, center_hz=50.2e6, datatype="cu8",
+                extra={"role": "thru"}, datetime="2026-03-01T10:00:00Z")
+    a = sess.analyze_session(sess.open_session(tmp_path))
+    (entry,) = a.captures
+    assert entry["clip_count"] == 7
+    assert entry["clip_fraction"] == pytest.approx(7 / N)
+    assert entry["peak_magnitude"] == pytest.approx(1.0, rel=1e-6)

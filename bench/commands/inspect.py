@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.reading import INTERMITTENT_BELOW, add_noise_band_option, noise_dict, read_capture, tone_dict
+from rxbench.reading import (INTERMITTENT_BELOW, add_noise_band_option, health_dict, noise_dict, read_capture,
+                             tone_dict)
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
@@ -49,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
         "noise": noise_dict(r),
         "spectrum": {"nperseg": r.psd.nperseg, "bin_width_hz": r.psd.bin_width_hz, "enbw_hz": r.psd.enbw_hz,
                      "segments": r.psd.n_segments, "dof": r.psd.dof},
-        "clip_fraction": r.health.clip_fraction,
+        **health_dict(r.health),  # clip_fraction, clip_count, peak_magnitude
         "dc_offset_dbfs": r.health.dc_offset_dbfs,
         "mean_power_dbfs": db_from_power(r.health.power),
         "warnings": r.warnings,
@@ -78,7 +79,8 @@ def run(args: argparse.Namespace) -> int:
     lines += [
         f"  noise         {fmt_db(result['noise']['density_dbfs_per_hz'])} dBFS/Hz  (moves "
         f"{r.floor.time_range_db:.2g} dB in time, {r.floor.band_range_db:.2g} dB across the band)",
-        f"  clipped       {100 * r.health.clip_fraction:.4g} % of samples",
+        f"  clipped       {100 * r.health.clip_fraction:.4g} % of samples ({r.health.n_clipped} at a rail);"
+        f" peak magnitude {r.health.peak_magnitude:.4g} ({fmt_db(r.health.peak_dbfs, 1)} dBFS)",
         f"  DC offset     {fmt_db(r.health.dc_offset_dbfs, 1)} dBFS",
     ]
     emit(args, result, "\n".join(lines), r.warnings)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from rxbench.reading import Reading, noise_dict, read_capture, tone_dict
+from rxbench.reading import Reading, health_dict, noise_dict, read_capture, tone_dict
 from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.methods.common import COVERAGE_FACTOR, N_SUB_BANDS
@@ -110,7 +110,7 @@ def _capture_dict(e: Entry, r: Reading | None, error: str | None) -> dict:
         out.update({
             "tone": tone_dict(r.tone, cap.center_hz) if e.role in TONE_ROLES else None,
             "noise": noise_dict(r),
-            "clip_fraction": r.clip_fraction, "warnings": list(r.warnings),
+            **health_dict(r.health), "warnings": list(r.warnings),
         })
     return out
 
