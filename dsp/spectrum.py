@@ -310,15 +310,22 @@ class PsdAccumulator:
             rest = rails[:, n_sub * width :]
             rows[:, -1] += np.einsum("ij,ij->i", rest, rest)
         first_break = (-first_segment) % slot_len  # first row that starts a new slot
-        starts = np.arange(first_break, n_rows, slot_len)
-        if first_break:
-            starts = np.concatenate([[0], starts])
-        slot_sums = np.add.reduceat(rows, starts, axis=0).astype(np.float32, copy=False)
+        if first_break == 0 and n_rows % slot_len == 0:  # whole slots (every row of a short capture)
+            slot_sums = rows.reshape(n_rows // slot_len, slot_len, n_sub).sum(axis=1) if slot_len > 1 else rows
+            starts = None
+        else:
+            starts = np.arange(first_break, n_rows, slot_len)
+            if first_break:
+                starts = np.concatenate([[0], starts])
+            slot_sums = np.add.reduceat(rows, starts, axis=0)
         if not self.one_sided and n_sub > 1:
             # The fftshift of the bins, by whole sub-bands, on these few rows: the slots are kept in
             # the PSD's order, so the track needs no reordered copy at the end.
             slot_sums = np.roll(slot_sums, n_sub // 2, axis=1)
-        slot_dead = np.add.reduceat(dead.astype(np.int64), starts) if dead.any() else None
+        slot_dead = None
+        if dead.any():
+            d = dead.astype(np.int64)
+            slot_dead = d.reshape(-1, slot_len).sum(axis=1) if starts is None else np.add.reduceat(d, starts)
         return squares[0::2] + squares[1::2], first_segment // slot_len, slot_sums, slot_dead
 
     def _work_buffer(self, dtype, rows: int) -> np.ndarray:

@@ -127,7 +127,7 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
     # Per resolution, one work array of the noise-only sub-bands (the track's size at most); every
     # step after the per-slot floor needs only the multiset of its values, so the medians sort or
     # partition it in place (the readings are those of np.median on a copy).
-    tone_cols = values[:, sel].astype(float)
+    tone_cols = values.take(np.flatnonzero(sel), axis=1).astype(float)
     noise_cols = np.flatnonzero(noise)
     g = 1
     while len(counts) // g >= 8:
