@@ -38,14 +38,17 @@ k = int(np.argmax(p)); print(f[k], 10 * np.log10(p[k]))
 CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 
-def run_timed(cmd: list[str]) -> tuple[float, float]:
-    """Wall time (s) and peak RSS (MB) of one child process."""
+def run_timed(cmd: list[str], cpu: bool = False) -> tuple:
+    """Wall time (s) and peak RSS (MB) of one child process; with ``cpu`` also its CPU time (user +
+    system, s), which a loaded machine disturbs less than the wall time."""
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=CHILD_ENV)
     _, status, usage = os.wait4(proc.pid, 0)
     elapsed = time.perf_counter() - t0
     if os.waitstatus_to_exitcode(status) != 0:
         raise SystemExit(f"{' '.join(cmd)} failed: {proc.stderr.read().decode()[-500:]}")
+    if cpu:
+        return elapsed, usage.ru_maxrss / 1024.0, usage.ru_utime + usage.ru_stime
     return elapsed, usage.ru_maxrss / 1024.0
 
 

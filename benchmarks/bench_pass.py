@@ -15,8 +15,8 @@ ones by repeating it) and times, in interleaved rounds:
   checkout installed), e.g. main before the change;
 - numpy + ``scipy.signal.welch`` on the whole file in memory, for captures up to ``--welch-max-s``.
 
-It prints medians of the wall times, the per-round ratios' median and range, and the peak resident
-memory of each. The machine is shared and noisy: compare ratios taken in the same rounds.
+It prints medians of the wall times, the peak resident memory and the CPU time (user + system) of
+each, and the per-round ratios' median and range of all three. The machine is shared and noisy: compare ratios taken in the same rounds.
 Targets (DEVELOPERS.md): the 60 s pass within 1.25x of the limit, 1 s within 1.5x, peak memory
 flat in the capture length, and within 10 % of the baseline in time and memory.
 """
@@ -108,18 +108,21 @@ def main() -> int:
         runs = {name: [] for name in cmds}
         for _ in range(args.rounds):
             for name, cmd in cmds.items():
-                runs[name].append(run_timed(cmd))
+                runs[name].append(run_timed(cmd, cpu=True))
         ours = runs["rxbench inspect"]
         print(f"\n{seconds} s at 2.4 MS/s cu8 ({cap.stat().st_size / 1e6:.0f} MB), {args.rounds} interleaved rounds")
         for name, results in runs.items():
             t = statistics.median(r[0] for r in results)
             mem = statistics.median(r[1] for r in results)
-            line = f"  {name:28s} {t:7.3f} s  {mem:7.0f} MB"
+            cpu = statistics.median(r[2] for r in results)
+            line = f"  {name:28s} {t:7.3f} s  {mem:7.0f} MB  cpu {cpu:7.3f} s"
             if name != "rxbench inspect":
                 ratios = [a[0] / b[0] for a, b in zip(ours, results)]
                 mems = [a[1] / b[1] for a, b in zip(ours, results)]
+                cpus = [a[2] / b[2] for a, b in zip(ours, results)]
                 line += (f"   inspect/this: time {statistics.median(ratios):.3f}x ({min(ratios):.2f}-{max(ratios):.2f}),"
-                         f" memory {statistics.median(mems):.3f}x")
+                         f" memory {statistics.median(mems):.3f}x ({min(mems):.2f}-{max(mems):.2f}),"
+                         f" cpu {statistics.median(cpus):.3f}x ({min(cpus):.2f}-{max(cpus):.2f})")
             print(line, flush=True)
     return 0
 

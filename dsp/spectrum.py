@@ -294,7 +294,7 @@ class PsdAccumulator:
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
         dtype = np.result_type(segments.dtype, win.dtype)
-        work = self._work_buffer(dtype, max(len(segments), _SEGMENTS_PER_CALL))
+        work = self._work_buffer(dtype, len(segments))
         windowed = np.multiply(segments, win, out=work[: len(segments)])
         # One thread per call: the runner spreads the calls over the cores.
         if self.one_sided:
@@ -335,7 +335,10 @@ class PsdAccumulator:
         key = np.dtype(dtype)
         buf = buffers.get(key)
         if buf is None or len(buf) < rows:
-            buf = buffers[key] = np.empty((rows, self.nperseg), dtype)
+            # As large as the largest call seen: a worker's holds a full batch (2 MiB at 4096
+            # points), the main thread's only the few segments across block joins it computes itself.
+            buf = buffers[key] = np.empty((rows if rows < _SEGMENTS_PER_CALL // 2 else _SEGMENTS_PER_CALL,
+                                           self.nperseg), dtype)
         return buf
 
     def _open_batch(self) -> None:
