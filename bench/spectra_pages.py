@@ -27,27 +27,21 @@ C_SHADE = "#BBBBBB"
 TONE_ROLES = ("thru", "dut", "step")
 #: An image or DC spike is labelled when it stands this far above the floor, dB.
 LABEL_ABOVE_FLOOR_DB = 6.0
-#: Points of a trace kept per panel (min and max per bucket, so peaks survive the thinning).
-TRACE_POINTS = 1200
 
 
-def _thin(f: np.ndarray, y: np.ndarray, points: int = TRACE_POINTS) -> tuple[np.ndarray, np.ndarray]:
-    """The trace thinned to about ``points`` points: each bucket's minimum and maximum, in order,
-    so a line through them covers the same vertical extent as the full trace at this size."""
+def decimate(f: np.ndarray, y: np.ndarray, columns: int) -> tuple[np.ndarray, np.ndarray]:
+    """The trace reduced to what ``columns`` pixel columns can show: in each column the lowest and
+    the highest point, in their order along the trace. A line through them covers the same vertical
+    extent in every column as the full trace, so no peak (the tone, the DC spike) is ever thinned
+    away; traces with no more than two points per column are returned as they are."""
     n = y.size
-    bucket = n // (points // 2)
-    if bucket < 2:
+    if columns < 1 or n <= 2 * columns:
         return f, y
-    m = (n // bucket) * bucket
-    yb = y[:m].reshape(-1, bucket)
-    fb = f[:m].reshape(-1, bucket)
-    lo, hi = yb.argmin(axis=1), yb.argmax(axis=1)
-    first = np.minimum(lo, hi)
-    second = np.maximum(lo, hi)
-    rows = np.arange(yb.shape[0])
-    fx = np.column_stack([fb[rows, first], fb[rows, second]]).ravel()
-    yx = np.column_stack([yb[rows, first], yb[rows, second]]).ravel()
-    return fx, yx
+    edges = np.linspace(0, n, columns + 1).astype(np.intp)  # uniform bins: columns by index
+    col = np.repeat(np.arange(columns), np.diff(edges))
+    order = np.lexsort((y, col))  # column by column, each from its lowest point to its highest
+    keep = np.unique(np.concatenate([order[edges[:-1]], order[edges[1:] - 1]]))
+    return f[keep], y[keep]
 
 
 def _panel_data(entry, reading) -> dict:
@@ -76,13 +70,13 @@ def _panel_data(entry, reading) -> dict:
     cap = entry.capture
     att = "" if entry.attenuation_db is None else f", {entry.attenuation_db:g} dB"
     dut = ", with DUT" if entry.through_dut and entry.role != "dut" else ""
-    d["title"] = f"{entry.name}  ({entry.role}{att}{dut})"
+    at = "" if cap.center_hz is None else f" at {fmt_hz(cap.center_hz)}"
+    d["title"] = f"{entry.name}  ({entry.role}{att}{dut}){at}"
     if d["tone"] is not None:
         d["note"] = (f"tone {tone.power_dbfs:.2f} dBFS at {tone.offset_hz / 1e3:+.2f} kHz; "
                      f"floor {floor_db:.1f} dBFS/Hz")
     else:
         d["note"] = f"floor {floor_db:.1f} dBFS/Hz"
-    d["xlabel"] = "offset (kHz)" if cap.center_hz is None else f"offset from {fmt_hz(cap.center_hz)} (kHz)"
     return d
 
 
@@ -96,12 +90,15 @@ class _Page:
         from matplotlib.patches import Patch
         from matplotlib.ticker import MaxNLocator
 
-        height = 3.0 * rows + 1.1
+        height = 2.6 * rows + 1.1
+        self.rows, self.cols = rows, cols
         self.fig = Figure(figsize=(5.0 * cols, height), dpi=DPI)
         FigureCanvasAgg(self.fig)
         self.fig.subplots_adjust(left=0.07 if cols > 1 else 0.13, right=0.98, bottom=0.5 / height,
-                                 top=1.0 - 1.05 / height, hspace=0.75, wspace=0.12)
+                                 top=1.0 - 1.05 / height, hspace=0.5, wspace=0.12)
         self.axes = self.fig.subplots(rows, cols, squeeze=False, sharey=True).ravel()
+        #: Pixel columns of a panel: the traces are decimated to these.
+        self.columns = int(round(self.axes[0].get_position().width * self.fig.get_figwidth() * DPI))
         self.panels = []
         for ax in self.axes:
             p = {
@@ -137,29 +134,37 @@ class _Page:
         highs = [max(d["peak_db"], d["floor_db"] + 10) for d in items]
         bottom, top = min(lows) - 12.0, max(highs) + 14.0  # room above the peak for the marker
         self.axes[0].set_ylim(bottom, top)
-        for ax, p, d in zip(self.axes, self.panels, items + [None] * (len(self.axes) - len(items))):
+        # Panels of one frequency span show their offset scale once, under each column's last panel
+        # (text is most of a page's drawing time); pages that mix spans label every panel.
+        same_span = len({(d["half_khz"], d["complex"]) for d in items}) == 1
+        last_in_column = {i % self.cols: i for i in range(len(items))}
+        for i, (ax, p) in enumerate(zip(self.axes, self.panels)):
+            d = items[i] if i < len(items) else None
             ax.set_visible(d is not None)
             if d is None:
                 continue
-            p["trace"].set_data(*_thin(d["f_khz"], d["dens_db"]))
+            half = d["half_khz"]
+            ax.set_xlim(-half if d["complex"] else 0.0, half)
+            p["trace"].set_data(*decimate(d["f_khz"], d["dens_db"], self.columns))
             p["floor"].set_ydata([d["floor_db"], d["floor_db"]])
             if d["tone"] is not None:
                 x, y, _ = d["tone"]
                 p["tone"].set_data([x], [y + 5.0])
             else:
                 p["tone"].set_data([], [])
-            half, edge = d["half_khz"], d["edge_khz"]
-            lo_edge = -edge if d["complex"] else None
+            edge = d["edge_khz"]
             _set_span(p["shade_hi"], edge, half)
-            _set_span(p["shade_lo"], -half if d["complex"] else 0.0, lo_edge if lo_edge is not None else 0.0)
+            _set_span(p["shade_lo"], -half if d["complex"] else 0.0, -edge if d["complex"] else 0.0)
             for key in ("dc", "image"):
                 spot = d[key]
                 p[key].set_visible(spot is not None)
                 if spot is not None:
                     p[key].set_position((spot[0] + (half * 0.015 if key == "dc" else 0.0), min(spot[1] + 1.0, top - 4)))
-            ax.set_xlim(-half if d["complex"] else 0.0, half)
-            ax.set_title(f"{d['title']}\n{d['note']}", fontsize=8)
-            ax.set_xlabel(d["xlabel"], fontsize=8)
+            # y given: matplotlib then skips its search for overlapping tick labels above the panel.
+            ax.set_title(f"{d['title']}\n{d['note']}", fontsize=8, y=1.0, pad=4.0)
+            labelled = not same_span or last_in_column[i % self.cols] == i
+            ax.tick_params(labelbottom=labelled)
+            ax.set_xlabel("offset from the tuned frequency (kHz)" if labelled else "", fontsize=8)
         self.title.set_text(f"Capture spectra (page {page}), one level scale for the page")
         self.fig.savefig(path, dpi=DPI)
 
