@@ -400,6 +400,30 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
     return checks
 
 
+#: Points of the true loss curve drawn in the demo's plots.
+TRUTH_CURVE_POINTS = 400
+
+
+def plot_truth(analysis, truth, plan, checks):
+    """The simulated truth for the report's plots: the device's true loss (and, passive at 290 K,
+    its noise figure) across the measured frequencies, the receiver's true noise figure and the
+    true SNR cost per band (from ``checks``)."""
+    from rxbench.report.plots import SimulatedTruth
+
+    freqs = [c["frequency_hz"] for c in checks if c["frequency_hz"] is not None]
+    curve = analysis.loss_vs_frequency
+    if curve is not None and curve["frequency_hz"]:
+        half = max(curve["width_hz"]) / 2
+        freqs += [min(curve["frequency_hz"]) - half, max(curve["frequency_hz"]) + half]
+    lo, hi = min(freqs), max(freqs)
+    pad = max(0.05 * (hi - lo), 100e3)
+    f = np.linspace(lo - pad, hi + pad, TRUTH_CURVE_POINTS)
+    nf = float(db_from_power(1.0 + receiver_temperature_k(truth, plan) / T0_K))
+    costs = {c["frequency_hz"]: c["truth"] for c in checks if c["quantity"] == "SNR cost"}
+    return SimulatedTruth(frequency_hz=f, loss_db=np.asarray(truth.dut_loss_db(f)), receiver_nf_db=nf,
+                          snr_cost_db=costs)
+
+
 def _check_line(c: dict) -> str:
     f = "" if c["frequency_hz"] is None else f" at {fmt_hz(c['frequency_hz'])}"
     ok = "within" if c["within"] else "OUTSIDE"
@@ -454,7 +478,8 @@ def run_demo(out, *, seed: int = SEED):
     analysis = analyze_session(open_session(folder))
     checks = truth_checks(analysis, truth, plan)
     md = f"## The question\n\n{SCENARIO}\n\nAnswer: {_answer(analysis)}.\n\n" + truth_markdown(checks)
-    report_dir = write_report(analysis, extra_markdown=md, extra_json={"truth_checks": checks, "scenario": SCENARIO})
+    report_dir = write_report(analysis, extra_markdown=md, extra_json={"truth_checks": checks, "scenario": SCENARIO},
+                              truth=plot_truth(analysis, truth, plan, checks))
     return analysis, report_dir, checks, list(run.warnings)
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -22,7 +23,26 @@ C_GREY = "#777777"
 ENV_COLOURS = {"city": "#E69F00", "residential": "#56B4E9", "rural": "#009E73", "quiet-rural": "#CC79A7",
                QUIET_GALACTIC: "#999999"}
 C_DIRECT = "#1B3A5C"
+C_TRUTH = "#000000"
 DPI = 100
+#: The label of everything drawn from :class:`SimulatedTruth`.
+TRUTH_LABEL = "simulated truth"
+
+
+@dataclass(frozen=True)
+class SimulatedTruth:
+    """What the simulated bench knows and a real session cannot: drawn in the demo's plots beside
+    the measured points and labelled "simulated truth" (a real session passes none).
+
+    ``frequency_hz`` and ``loss_db``: the device's true insertion loss, sampled; the device is
+    passive at 290 K, so its true noise figure is the same curve. ``receiver_nf_db``: the receive
+    chain's true noise figure. ``snr_cost_db``: the true SNR cost at each band's frequency (Hz).
+    """
+
+    frequency_hz: np.ndarray
+    loss_db: np.ndarray
+    receiver_nf_db: float | None = None
+    snr_cost_db: dict = field(default_factory=dict)
 
 
 def _figure(width_in: float, height_in: float, *, constrained: bool = True):
@@ -94,10 +114,22 @@ def _bars(k: float, u_seq) -> np.ndarray:
     return np.where(np.isfinite(u) & (u >= 0), k * u, np.nan)
 
 
-def plot_frequency(analysis: Analysis, path: Path) -> bool:
+def _truth_line(ax, truth: SimulatedTruth | None, lo_mhz: float, hi_mhz: float, label: str) -> None:
+    """The true loss between ``lo_mhz`` and ``hi_mhz`` as a thin black line (it is known
+    everywhere, so a line is right here where the measured points stay points)."""
+    if truth is None:
+        return
+    f = np.asarray(truth.frequency_hz, dtype=float) / 1e6
+    sel = (f >= lo_mhz) & (f <= hi_mhz)
+    if sel.sum() >= 2:
+        ax.plot(f[sel], np.asarray(truth.loss_db)[sel], color=C_TRUTH, lw=1.0, zorder=5, label=label)
+
+
+def plot_frequency(analysis: Analysis, path: Path, truth: SimulatedTruth | None = None) -> bool:
     """Loss (and noise figure) against frequency: each sub-band a point with its ±U bar (no lines
     joining noisy points into a ripple that is not there), the tone losses beside them, and in the
-    noise-figure panel the passive device's "NF = loss" reference at each tuning's whole-band loss."""
+    noise-figure panel the passive device's "NF = loss" reference at each tuning's whole-band loss.
+    With ``truth`` (the demo), the simulated bench's true loss and noise figures beside them."""
     curve = analysis.loss_vs_frequency
     tone_losses = [x for x in analysis.losses if x.frequency_hz is not None]
     if curve is None and not tone_losses:
@@ -131,6 +163,9 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
         centre = float(np.mean([x.insertion_loss_db for x in tone_losses]))
         half = max(0.25, 3 * max(x.expanded_uncertainty_db for x in tone_losses))
         ax1.set_ylim(centre - half, centre + half)
+    lo_mhz, hi_mhz = ax1.get_xlim()
+    _truth_line(ax1, truth, lo_mhz, hi_mhz, TRUTH_LABEL)
+    ax1.set_xlim(lo_mhz, hi_mhz)
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Insertion loss of the device under test against frequency")
     ax1.grid(True, lw=0.3)
@@ -154,6 +189,10 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
             ax2.plot([lo, hi], [n.insertion_loss_db] * 2, color=C_GREY, lw=1.6, ls="--",
                      label="NF = loss (passive device at 290 K; whole-band loss)" if first else None)
             first = False
+        _truth_line(ax2, truth, lo_mhz, hi_mhz, f"{TRUTH_LABEL}: device (passive at 290 K: NF = loss)")
+        if truth is not None and truth.receiver_nf_db is not None:
+            ax2.axhline(truth.receiver_nf_db, color=C_TRUTH, lw=1.0, ls="-.", zorder=5,
+                        label=f"{TRUTH_LABEL}: receiver")
         ax2.set_ylabel("noise figure (dB)")
         ax2.set_title("Noise figure (Y-factor) against frequency")
         ax2.grid(True, lw=0.3)
@@ -167,7 +206,10 @@ def plot_frequency(analysis: Analysis, path: Path) -> bool:
 SNR_COST_FLOOR_DB = 0.003
 
 
-def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
+def plot_snr_cost(analysis: Analysis, path: Path, truth: SimulatedTruth | None = None) -> bool:
+    """The SNR the loss costs per band: measured (±U), predicted for the P.372 environments, the
+    loss itself for scale; with ``truth`` (the demo), the true cost as a black bar across the
+    measured ones."""
     costs = analysis.snr_cost
     if not costs:
         return False
@@ -206,6 +248,16 @@ def plot_snr_cost(analysis: Analysis, path: Path) -> bool:
     for xi, c in zip(x, costs):
         ax.hlines(c["loss_db"], xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
     ax.plot([], [], ":", color=C_BAD, label="the loss itself (the cost if the receiver's noise dominated)")
+    if truth is not None:
+        first = True
+        for xi, c in zip(x, costs):
+            true = truth.snr_cost_db.get(c["frequency_hz"])
+            if true is None:
+                continue
+            n_meas = 1 + int(c.get("snr_degradation_through_dut_db") is not None)  # across the measured bars
+            ax.hlines(true, xi - 0.4, xi - 0.4 + n_meas * width, colors=C_TRUTH, lw=2.0, zorder=5,
+                      label=TRUTH_LABEL if first else None)
+            first = False
     labels = [f"{c['band']}, {fmt_hz(c['frequency_hz'])}\nloss {c['loss_db']:.2f} dB, band noise "
               f"{c['excess_db']:.1f} dB over the receiver's" for c in costs]
     ax.set_xticks(x, labels, fontsize=8)
