@@ -15,6 +15,7 @@ import io
 import json
 import math
 
+import numpy as np
 import pytest
 
 from rxbench.cli import main
@@ -90,6 +91,48 @@ def test_demo_truth_checks_can_fail(demo_run):
     assert all(c["within"] for c in good if "sub-band" not in c["quantity"])
     assert not any(c["within"] for c in bad if c["quantity"] in ("insertion loss (direct)",
                                                                   "insertion loss (substitution)"))
+
+
+def test_demo_plots_draw_the_simulated_truth_and_a_real_session_none(demo_run, monkeypatch, tmp_path):
+    """The loss / noise-figure and SNR-cost plots draw the simulated bench's truth, labelled, where the
+    demo passes it; the same analysis drawn as a real session (no truth) has no such artist."""
+    from rxbench.plan import parse_plan
+    from rxbench.report import plots
+    from rxbench.session import analyze_session, open_session
+
+    folder, _ = demo_run
+    analysis = analyze_session(open_session(folder))
+    truth, plan = demo.demo_truth(), parse_plan(demo.PLAN_TEXT, "demo")
+    checks = demo.truth_checks(analysis, truth, plan)
+    drawn = demo.plot_truth(analysis, truth, plan, checks)
+    figures = []
+    monkeypatch.setattr(plots, "_save", lambda fig, path: figures.append(fig))
+
+    def labelled(fig):
+        return {line.get_label(): line for ax in fig.axes for line in ax.get_lines() + ax.collections
+                if line.get_label().startswith(plots.TRUTH_LABEL)}
+
+    assert plots.plot_frequency(analysis, tmp_path / "f.png", drawn)
+    assert plots.plot_snr_cost(analysis, tmp_path / "s.png", drawn)
+    freq, snr = (labelled(fig) for fig in figures)
+    loss_line = freq[plots.TRUTH_LABEL]
+    f_mhz, loss = loss_line.get_data()
+    # The line is the bench's own loss table (bench/simulated.py), across the measured band.
+    assert np.allclose(loss, np.interp(np.asarray(f_mhz) * 1e6, *zip(*truth.dut_loss_table)))
+    curve = analysis.loss_vs_frequency
+    assert min(f_mhz) <= min(curve["frequency_hz"]) / 1e6 and max(f_mhz) >= max(curve["frequency_hz"]) / 1e6
+    receiver = freq[f"{plots.TRUTH_LABEL}: receiver"]
+    nf_true = [c["truth"] for c in checks if c["quantity"] == "receiver noise figure"][0]
+    assert np.allclose(receiver.get_ydata(), nf_true)
+    assert f"{plots.TRUTH_LABEL}: device (passive at 290 K: NF = loss)" in freq
+    costs = snr[plots.TRUTH_LABEL]  # one bar per band, at the true cost
+    true_costs = sorted(c["truth"] for c in checks if c["quantity"] == "SNR cost")
+    assert sorted(seg[0][1] for seg in costs.get_segments()) == pytest.approx(true_costs)
+
+    figures.clear()
+    plots.plot_frequency(analysis, tmp_path / "f.png")
+    plots.plot_snr_cost(analysis, tmp_path / "s.png")
+    assert not any(labelled(fig) for fig in figures)
 
 
 def test_snr_cost_truth_follows_the_formula():

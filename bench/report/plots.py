@@ -248,16 +248,12 @@ def plot_snr_cost(analysis: Analysis, path: Path, truth: SimulatedTruth | None =
     for xi, c in zip(x, costs):
         ax.hlines(c["loss_db"], xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
     ax.plot([], [], ":", color=C_BAD, label="the loss itself (the cost if the receiver's noise dominated)")
-    if truth is not None:
-        first = True
-        for xi, c in zip(x, costs):
-            true = truth.snr_cost_db.get(c["frequency_hz"])
-            if true is None:
-                continue
-            n_meas = 1 + int(c.get("snr_degradation_through_dut_db") is not None)  # across the measured bars
-            ax.hlines(true, xi - 0.4, xi - 0.4 + n_meas * width, colors=C_TRUTH, lw=2.0, zorder=5,
-                      label=TRUTH_LABEL if first else None)
-            first = False
+    if truth is not None:  # one black bar per band across its measured bars
+        spans = [(truth.snr_cost_db[c["frequency_hz"]], xi - 0.4,
+                  xi - 0.4 + (1 + int(c.get("snr_degradation_through_dut_db") is not None)) * width)
+                 for xi, c in zip(x, costs) if c["frequency_hz"] in truth.snr_cost_db]
+        if spans:
+            ax.hlines(*zip(*spans), colors=C_TRUTH, lw=2.0, zorder=5, label=TRUTH_LABEL)
     labels = [f"{c['band']}, {fmt_hz(c['frequency_hz'])}\nloss {c['loss_db']:.2f} dB, band noise "
               f"{c['excess_db']:.1f} dB over the receiver's" for c in costs]
     ax.set_xticks(x, labels, fontsize=8)
