@@ -45,12 +45,23 @@ class SimulatedTruth:
     snr_cost_db: dict = field(default_factory=dict)
 
 
-def _figure(width_in: float, height_in: float, *, constrained: bool = True):
+def _figure(width_in: float, height_in: float, *, constrained: bool = True, margins_in: tuple | None = None,
+            gap_in: float = 0.0, rows: int = 1):
+    """A figure on its own Agg canvas. ``margins_in`` (left, right, bottom, top, in inches) fixes the
+    axes' place instead of matplotlib's constrained layout, which costs about as much again as
+    drawing the figure (0.85 s of 2.2 s for the ladder, frequency and SNR-cost plots); ``gap_in`` is
+    then the space between ``rows`` stacked axes, room for the lower ones' titles."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained" if constrained else None)
+    fixed = margins_in is not None
+    fig = Figure(figsize=(width_in, height_in), dpi=DPI, layout="constrained" if constrained and not fixed else None)
     FigureCanvasAgg(fig)
+    if fixed:
+        left, right, bottom, top = margins_in
+        axes_in = (height_in - bottom - top - gap_in * (rows - 1)) / rows
+        fig.subplots_adjust(left=left / width_in, right=1 - right / width_in, bottom=bottom / height_in,
+                            top=1 - top / height_in, hspace=gap_in / axes_in if rows > 1 else 0.2)
     return fig
 
 
@@ -63,7 +74,7 @@ def plot_ladder(lad, path: Path) -> None:
     c = lad.check
     nom, rd, err, uerr = c.nominal_db, c.reading_dbfs, c.error_db, c.k * c.u_error_db
     region, flagged = c.region, c.flagged
-    fig = _figure(8.0, 7.0)
+    fig = _figure(8.0, 7.0, margins_in=(0.85, 0.15, 0.55, 0.4), gap_in=0.4, rows=2)
     ax1, ax2 = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
     span = np.linspace(nom.min(), nom.max(), 50)
     ax1.plot(span, c.offset_dbfs - span, color=C_GREY, lw=1, ls="--", label="ideal (reading = reference − step)")
@@ -135,7 +146,8 @@ def plot_frequency(analysis: Analysis, path: Path, truth: SimulatedTruth | None 
     if curve is None and not tone_losses:
         return False
     has_nf = curve is not None and bool(curve["frequency_hz"])
-    fig = _figure(9.0, 7.5 if has_nf else 4.5)
+    fig = _figure(9.0, 7.5 if has_nf else 4.5, margins_in=(0.75, 0.15, 0.55, 0.35), gap_in=0.45,
+                  rows=2 if has_nf else 1)
     axes = fig.subplots(2 if has_nf else 1, 1, sharex=True, squeeze=False).ravel()
     ax1 = axes[0]
     k = COVERAGE_FACTOR
@@ -217,7 +229,7 @@ def plot_snr_cost(analysis: Analysis, path: Path, truth: SimulatedTruth | None =
     through = any(c.get("snr_degradation_through_dut_db") is not None for c in costs)
     n_bars = 1 + int(through) + len(envs)
     width = 0.8 / n_bars
-    fig = _figure(max(7.0, 2.6 * len(costs) + 3.0), 5.2)
+    fig = _figure(max(7.0, 2.6 * len(costs) + 3.0), 5.2, margins_in=(0.75, 0.15, 0.65, 0.35))
     ax = fig.subplots()
     x = np.arange(len(costs))
     left = x - 0.4 + width / 2
