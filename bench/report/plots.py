@@ -99,7 +99,7 @@ def plot_ladder(lad, path: Path) -> None:
     ax1.grid(True, lw=0.3)
     ax2.set_xlabel("nominal attenuation (dB)")
     ax2.set_ylabel("error: measured − nominal (dB)")
-    ax2.set_title(f"step errors with ±{c.k:g}u bars", fontsize=10)
+    ax2.set_title(f"step errors with ±U bars (U = {c.k:g}u, about 95 %)", fontsize=10)
     ax2.legend(fontsize=8, loc="best")
     ax2.grid(True, lw=0.3)
     _save(fig, path)
