@@ -5,20 +5,10 @@ from __future__ import annotations
 
 import math
 
-from rxbench.dsp.bands import AMATEUR_BANDS  # defined once there
+from rxbench.dsp.bands import band_of  # noqa: F401  (the one band lookup, beside the band table)
 
 #: The sign between a value and its uncertainty, everywhere.
 PM = "±"
-
-
-def band_of(frequency_hz: float | None) -> str | None:
-    """The amateur band holding ``frequency_hz`` ("10 m"), or None."""
-    if frequency_hz is None or not math.isfinite(frequency_hz):
-        return None
-    for name, low, high in AMATEUR_BANDS:
-        if low <= frequency_hz <= high:
-            return name
-    return None
 
 
 def fmt_hz(frequency_hz: float | None, resolution_hz: float | None = None) -> str:

@@ -1,5 +1,6 @@
 """Loss (or noise figure) per amateur band from a stitched curve of sub-bands, its continuity across
-retunes, and the per-band difference of two devices measured against the same reference.
+retunes, and the per-band difference of two devices measured against the same reference; the
+amateur band table and the one lookup of a frequency's band; a curve read at one frequency.
 
 Pure numerics: arrays of sub-band centres, widths, values (dB) and standard uncertainties in; frozen
 dataclasses out.
@@ -178,3 +179,59 @@ def difference_curve(value_a_db, own_u_a_db, value_b_db, own_u_b_db):
     reference, attenuator and source cancel in the difference and are not counted)."""
     a, b = np.asarray(value_a_db, dtype=float), np.asarray(value_b_db, dtype=float)
     return a - b, np.hypot(np.asarray(own_u_a_db, dtype=float), np.asarray(own_u_b_db, dtype=float))
+
+
+def band_of(frequency_hz) -> str | None:
+    """The amateur band (:data:`AMATEUR_BANDS`, edges included) holding ``frequency_hz``, or None
+    (also for None or a frequency that is not finite)."""
+    if frequency_hz is None or not np.isfinite(frequency_hz):
+        return None
+    for name, low, high in AMATEUR_BANDS:
+        if low <= frequency_hz <= high:
+            return name
+    return None
+
+
+@dataclass(frozen=True)
+class CurvePoint:
+    """A curve of sub-bands read at one frequency (see :func:`curve_at`).
+
+    ``value_db`` and its standard uncertainty ``u_db``; ``at_hz`` is the centre of the sub-band that
+    holds the frequency, or the frequency itself when the value is interpolated between two
+    neighbouring sub-bands (``interpolated``).
+    """
+
+    value_db: float
+    u_db: float
+    at_hz: float
+    interpolated: bool
+
+
+def curve_at(frequency_hz: float, centre_hz, width_hz, value_db, u_db) -> CurvePoint | None:
+    """The value of a curve of sub-bands at ``frequency_hz``, or None where the curve does not say.
+
+    The sub-band whose centre lies within half its width of the frequency gives its own value. A
+    frequency between two neighbouring sub-bands whose centres are at most the sum of their widths
+    apart is read on the straight line between them, v = (1 - w)*v0 + w*v1 with
+    w = (f - f0)/(f1 - f0), and the two values' uncertainties taken as independent (each sub-band is
+    read from captures of its own): u = sqrt(((1 - w)*u0)**2 + (w*u1)**2) (JCGM 100:2008, 5.1.2).
+    Never extrapolated beyond the curve's ends, nor across a wider gap. Points whose value is not
+    finite (no value there) are left out; the points may come in any order.
+    """
+    f, width, v, u = (np.atleast_1d(np.asarray(a, dtype=float)) for a in (centre_hz, width_hz, value_db, u_db))
+    if not f.shape == width.shape == v.shape == u.shape or f.ndim != 1:
+        raise ValueError(f"centre, width, value and u must be 1-D and alike, got {f.shape}, {width.shape}, "
+                         f"{v.shape}, {u.shape}")
+    keep = np.isfinite(v)
+    f, width, v, u = f[keep], width[keep], v[keep], u[keep]
+    order = np.argsort(f, kind="stable")
+    f, width, v, u = f[order], width[order], v[order], u[order]
+    i = int(np.searchsorted(f, frequency_hz))
+    for j in (i - 1, i):
+        if 0 <= j < f.size and abs(f[j] - frequency_hz) < width[j] / 2:
+            return CurvePoint(float(v[j]), float(u[j]), float(f[j]), False)
+    if 0 < i < f.size and f[i] - f[i - 1] <= width[i] + width[i - 1]:
+        w = (frequency_hz - f[i - 1]) / (f[i] - f[i - 1])
+        return CurvePoint(float((1 - w) * v[i - 1] + w * v[i]), float(np.hypot((1 - w) * u[i - 1], w * u[i])),
+                          float(frequency_hz), True)
+    return None

@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from rxbench.dsp.bands import curve_at
 from rxbench.errors import MeasurementError
 from rxbench.methods.external import external_noise
 from rxbench.methods.snr_cost import snr_cost
@@ -24,7 +25,8 @@ def loss_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
 
     A tone-based loss counts when its tone lies within ``half_band_hz``; otherwise the noise-source
     curve is used: the sub-band holding the frequency, or a straight line between two neighbouring
-    sub-bands (never extrapolated beyond the curve). Returns (loss_db, u_db, at_hz, source) or None.
+    sub-bands (never extrapolated beyond the curve; :func:`rxbench.dsp.bands.curve_at`). Returns
+    (loss_db, u_db, at_hz, source) or None.
     """
     cands = [x for x in analysis.losses
              if x.frequency_hz is not None and abs(x.frequency_hz - frequency_hz) <= half_band_hz]
@@ -35,18 +37,13 @@ def loss_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
     curve = analysis.loss_vs_frequency
     if curve is None or not curve["has_loss"]:
         return None
-    pts = [(f, l, u, w) for f, l, u, w in zip(curve["frequency_hz"], curve["insertion_loss_db"],
-                                               curve["u_insertion_loss_db"], curve["width_hz"]) if l is not None]
-    f = np.array([p[0] for p in pts])
-    i = int(np.searchsorted(f, frequency_hz))
-    for j in (i - 1, i):
-        if 0 <= j < len(pts) and abs(pts[j][0] - frequency_hz) < pts[j][3] / 2:
-            return pts[j][1], pts[j][2], pts[j][0], f"noise-source loss, sub-band at {pts[j][0] / 1e6:.4f} MHz"
-    if 0 < i < len(pts) and f[i] - f[i - 1] <= pts[i][3] + pts[i - 1][3]:
-        w = (frequency_hz - f[i - 1]) / (f[i] - f[i - 1])
-        loss = (1 - w) * pts[i - 1][1] + w * pts[i][1]
-        u = math.hypot((1 - w) * pts[i - 1][2], w * pts[i][2])
-        return loss, u, frequency_hz, "noise-source loss, interpolated between two sub-bands"
+    p = curve_at(frequency_hz, curve["frequency_hz"], curve["width_hz"], curve["insertion_loss_db"],
+                 curve["u_insertion_loss_db"])
+    if p is None:
+        return None
+    where = ("interpolated between two sub-bands" if p.interpolated
+             else f"sub-band at {p.at_hz / 1e6:.4f} MHz")
+    return p.value_db, p.u_db, p.at_hz, f"noise-source loss, {where}"
     return None
 
 
