@@ -11,6 +11,14 @@ from rxbench.dsp.bands import band_of  # noqa: F401  (the one band lookup, besid
 PM = "±"
 
 
+def band_name(frequency_hz: float | None) -> str:
+    """The amateur band holding ``frequency_hz`` ("10 m", :func:`rxbench.dsp.bands.band_of`), or the
+    frequency in MHz ("27.000 MHz"; "unknown frequency" without one): a label for every result."""
+    if frequency_hz is None:
+        return "unknown frequency"
+    return band_of(frequency_hz) or f"{frequency_hz / 1e6:.3f} MHz"
+
+
 def fmt_hz(frequency_hz: float | None, resolution_hz: float | None = None) -> str:
     """``28.42 MHz``, ``20 kHz``, ``2.4 MHz``, ``512 Hz``: the unit that suits the value, trailing
     zeros dropped, digits down to ``resolution_hz`` (default: 1 kHz above 1 MHz, 1 Hz above 1 kHz,

@@ -102,8 +102,9 @@ def test_excess_and_knee_same_from_flags_and_session(tmp_path, capsys):
     step = write_capture(tmp_path, "02-antenna", lossy(noise_in(4000.0, 2), 10.0, 2), role="antenna", seed=502,
                          time_s=1, attenuation_db=10.0)
     load = write_capture(tmp_path, "03-load", noise_in(T0_K, 3), role="load", seed=503, time_s=2)
-    (session,) = analyse(tmp_path).external_noise
-    assert session.pop("band") == "10 m"
+    (res,) = analyse(tmp_path).external_noise
+    assert res.band == "10 m"
+    session = res.to_dict()
     cli = _cli(capsys, "excess", "--antenna", str(ant), "--load", str(load), "--antenna-step", f"10={step}")
     assert cli["excess_db"] == cli["measured_excess_db"]
     assert cli["knee"]["steps_db"] == [0.0, 10.0]
@@ -119,14 +120,15 @@ def test_snr_cost_same_from_flags_and_session(tmp_path, capsys):
                   enr_db=15.0)
     write_capture(tmp_path, "05-antenna", noise_in(T0_K * 30, 5), role="antenna", seed=805, time_s=4)
     write_capture(tmp_path, "06-load", noise_in(T0_K, 6), role="load", seed=806, time_s=5)
-    (session,) = analyse(tmp_path).snr_cost
+    (res,) = analyse(tmp_path).snr_cost
+    session = res.to_dict()
     assert session["predicted"] is not None  # the measured noise figure gives the P.372 predictions
     cli = _cli(capsys, "predict", "--loss-db", repr(session["loss_db"]), "--loss-u-db", repr(session["u_loss_db"]),
                "--antenna-excess-db", repr(session["excess_db"]),
                "--antenna-excess-u-db", repr(session["u_excess_db"]),
                "--rx-nf-db", repr(session["receiver_noise_figure_db"]), "--frequency", repr(session["frequency_hz"]))
     # The method's own keys; the loss's provenance (where it was measured) differs by nature.
-    keys = set(session) - {"band", "loss_source", "loss_frequency_hz"}
+    keys = set(session) - {"loss_source", "loss_frequency_hz"}
     _same({k: cli[k] for k in keys}, {k: session[k] for k in keys})
 
 

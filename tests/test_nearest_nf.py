@@ -58,13 +58,13 @@ def test_interpolated_between_the_tunings_either_side(tmp_path):
     a, ex = _external(tmp_path, 29.2e6)
     nfs = {n.center_hz: n.noise_figure_db for n in a.noise_figure}
     # linear interpolation, 0.2 of the way from 28.2 to 29.2 MHz
-    assert ex["receiver_noise_figure_db"] == pytest.approx(nfs[28.2e6] + 0.2 * (nfs[29.2e6] - nfs[28.2e6]))
-    assert "interpolated between 28.2 MHz and 29.2 MHz" in ex["receiver_noise_figure_note"]
-    assert ex["fa_db"] is not None
+    assert ex.receiver_noise_figure_db == pytest.approx(nfs[28.2e6] + 0.2 * (nfs[29.2e6] - nfs[28.2e6]))
+    assert "interpolated between 28.2 MHz and 29.2 MHz" in ex.receiver_noise_figure_note
+    assert ex.fa_db is not None
     assert any("interpolated" in w for w in a.warnings)
 
 
 def test_the_nearest_alone_when_the_other_is_too_far(tmp_path):
     # 28.2 MHz is 200 kHz away (within 10 %) and is used alone; 50 MHz is beyond 10 % of 28.4 MHz
     a, ex = _external(tmp_path, 50.0e6)
-    assert "measured at 28.2 MHz, 200 kHz away" in ex["receiver_noise_figure_note"]
+    assert "measured at 28.2 MHz, 200 kHz away" in ex.receiver_noise_figure_note

@@ -383,16 +383,16 @@ def test_excess_and_snr_cost_match_the_formulas(tmp_path):
     trx = DONGLE.noise_temperature_k
     x_true = (ta + trx) / (T0_K + trx)
     (ex,) = a.external_noise
-    assert ex["band"] == "10 m"
-    assert abs(ex["excess_db"] - 10 * math.log10(x_true)) <= ex["expanded_uncertainty_db"]
-    assert ex["knee"] is not None and ex["knee"]["residual_rms_db"] < 0.2
+    assert ex.band == "10 m"
+    assert abs(ex.excess_db - 10 * math.log10(x_true)) <= ex.expanded_uncertainty_db
+    assert ex.knee is not None and ex.knee["residual_rms_db"] < 0.2
     (cost,) = a.snr_cost
     true_cost = 10 * math.log10(1 + (power_from_db(loss) - 1) / x_true)
-    assert abs(cost["snr_degradation_db"] - true_cost) <= cost["expanded_uncertainty_db"]
-    assert abs(cost["snr_degradation_through_dut_db"] - true_cost) <= cost["expanded_uncertainty_through_dut_db"]
+    assert abs(cost.snr_degradation_db - true_cost) <= cost.expanded_uncertainty_db
+    assert abs(cost.through_dut_db - true_cost) <= cost.expanded_uncertainty_through_dut_db
     # Far less than the loss itself: the band noise dominates.
-    assert cost["snr_degradation_db"] < loss / 2
-    assert cost["predicted"] is None  # no receiver noise figure measured: no ITU predictions
+    assert cost.snr_degradation_db < loss / 2
+    assert cost.predicted is None  # no receiver noise figure measured: no ITU predictions
 
 
 def test_excess_without_a_loss_reports_no_cost(tmp_path):

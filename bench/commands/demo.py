@@ -386,17 +386,17 @@ def truth_checks(analysis, truth, plan) -> list[dict]:
                 _band_loss_truth(truth, f - w / 2, f + w / 2))
     x_true = {}
     for ex in analysis.external_noise:
-        ta = T0_K * power_from_db(truth.fa_db(ex["frequency_hz"]))
-        x_true[ex["frequency_hz"]] = (ta + trx) / (T0_K + trx)
-        add("band-noise excess", ex["frequency_hz"], ex["excess_db"], ex["expanded_uncertainty_db"],
-            float(db_from_power(x_true[ex["frequency_hz"]])))
+        ta = T0_K * power_from_db(truth.fa_db(ex.frequency_hz))
+        x_true[ex.frequency_hz] = (ta + trx) / (T0_K + trx)
+        add("band-noise excess", ex.frequency_hz, ex.excess_db, ex.expanded_uncertainty_db,
+            float(db_from_power(x_true[ex.frequency_hz])))
     for c in analysis.snr_cost:
-        big_l = power_from_db(truth.dut_loss_db(c["loss_frequency_hz"]))
-        true = float(db_from_power(1.0 + (big_l - 1.0) / x_true[c["frequency_hz"]]))
-        add("SNR cost", c["frequency_hz"], c["snr_degradation_db"], c["expanded_uncertainty_db"], true, c["band"])
-        if c.get("snr_degradation_through_dut_db") is not None:
-            add("SNR cost (antenna through the device)", c["frequency_hz"], c["snr_degradation_through_dut_db"],
-                c["expanded_uncertainty_through_dut_db"], true, c["band"])
+        big_l = power_from_db(truth.dut_loss_db(c.provenance["loss_frequency_hz"]))
+        true = float(db_from_power(1.0 + (big_l - 1.0) / x_true[c.frequency_hz]))
+        add("SNR cost", c.frequency_hz, c.snr_degradation_db, c.expanded_uncertainty_db, true, c.band)
+        if c.through_dut_db is not None:
+            add("SNR cost (antenna through the device)", c.frequency_hz, c.through_dut_db,
+                c.expanded_uncertainty_through_dut_db, true, c.band)
     return checks
 
 
@@ -447,11 +447,11 @@ def truth_markdown(checks: list[dict]) -> str:
 
 
 def _answer(analysis) -> str:
-    costs = [c for c in analysis.snr_cost if c["band"] == "10 m"]
+    costs = [c for c in analysis.snr_cost if c.band == "10 m"]
     if not costs:
         return "no SNR cost on 10 m could be worked out (see the warnings)"
-    parts = [f"{c['snr_degradation_db']:.2f} ± {c['expanded_uncertainty_db']:.2f} dB at "
-             f"{fmt_hz(c['frequency_hz'])} (loss {c['loss_db']:.2f} dB, band noise {c['excess_db']:.1f} dB "
+    parts = [f"{c.snr_degradation_db:.2f} ± {c.expanded_uncertainty_db:.2f} dB at "
+             f"{fmt_hz(c.frequency_hz)} (loss {c.loss_db:.2f} dB, band noise {c.excess_db:.1f} dB "
              "above the receiver's)" for c in costs]
     return ("on 10 m the splitter and filter cost " + "; ".join(parts)
             + ": the band noise at this quiet site sits well above the receiver's own, so the SNR suffers far "

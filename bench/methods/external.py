@@ -19,6 +19,7 @@ from rxbench.dsp.excess import density_ratio_db, fit_knee, mean_density
 from rxbench.dsp.units import T0_K, db_from_power, noise_temperature_from_nf_db
 from rxbench.errors import MeasurementError
 from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
+from rxbench.style import band_name
 
 #: Below this excess (dB) the antenna noise is too close to the receiver's own to say much about Ta.
 LOW_EXCESS_DB = 1.0
@@ -91,6 +92,9 @@ class ExcessResult:
         The antenna through the DUT: the drop of its noise.
     captures : dict
     warnings : tuple of str
+    receiver_noise_figure_note : str or None
+        Where the receiver noise figure came from when it was not measured at this tuning (a
+        session's nearest tunings); None otherwise.
     """
 
     center_hz: float | None
@@ -108,10 +112,16 @@ class ExcessResult:
     through_dut: dict | None = None
     captures: dict = field(default_factory=dict)
     warnings: tuple = ()
+    receiver_noise_figure_note: str | None = None
 
     @property
     def frequency_hz(self) -> float | None:
         return self.center_hz
+
+    @property
+    def band(self) -> str:
+        """The amateur band of the tuning, or its frequency (:func:`rxbench.style.band_name`)."""
+        return band_name(self.center_hz)
 
     @property
     def expanded_uncertainty_db(self) -> float:
@@ -145,6 +155,8 @@ class ExcessResult:
             "snr_cost": self.snr_cost_table(), "loss_budget_db": loss_budget(self.excess_db),
             "caveats": list(CAVEATS), "captures": self.captures, "warnings": list(self.warnings),
         }
+        if self.receiver_noise_figure_note is not None:
+            out["receiver_noise_figure_note"] = self.receiver_noise_figure_note
         return with_aliases(out, ALIASES)
 
 

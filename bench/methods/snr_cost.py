@@ -14,6 +14,7 @@ from rxbench.dsp import environment as env
 from rxbench.dsp.units import noise_temperature_from_nf_db
 from rxbench.methods.common import COVERAGE_FACTOR, with_aliases
 from rxbench.methods.external import p372_medians
+from rxbench.style import band_name
 
 #: A cost from the excess and one from the antenna through the DUT may differ by this beyond
 #: their uncertainties before they are said to disagree, dB.
@@ -62,6 +63,20 @@ class SnrCostResult:
     def expanded_uncertainty_db(self) -> float:
         return COVERAGE_FACTOR * self.u_db
 
+    @property
+    def expanded_uncertainty_through_dut_db(self) -> float | None:
+        return None if self.u_through_dut_db is None else COVERAGE_FACTOR * self.u_through_dut_db
+
+    @property
+    def band(self) -> str:
+        """The amateur band of the frequency, or the frequency (:func:`rxbench.style.band_name`)."""
+        return band_name(self.frequency_hz)
+
+    @property
+    def loss_source(self) -> str | None:
+        """Where the loss came from (the provenance's ``loss_source``), when given."""
+        return self.provenance.get("loss_source")
+
     def to_dict(self) -> dict:
         out = {
             "frequency_hz": self.frequency_hz, "loss_db": self.loss_db, "u_loss_db": self.u_loss_db,
@@ -69,8 +84,7 @@ class SnrCostResult:
             "snr_degradation_db": self.snr_degradation_db, "u_db": self.u_db,
             "expanded_uncertainty_db": self.expanded_uncertainty_db, "coverage_factor": COVERAGE_FACTOR,
             "snr_degradation_through_dut_db": self.through_dut_db,
-            "expanded_uncertainty_through_dut_db": (None if self.u_through_dut_db is None
-                                                    else COVERAGE_FACTOR * self.u_through_dut_db),
+            "expanded_uncertainty_through_dut_db": self.expanded_uncertainty_through_dut_db,
             "receiver_noise_figure_db": self.receiver_noise_figure_db, "predicted": self.predicted,
             **self.provenance, "warnings": list(self.warnings),
         }

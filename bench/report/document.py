@@ -108,41 +108,41 @@ def markdown(analysis: Analysis, plots: dict, extra_markdown: str | None = None)
           "the measured receiver noise figure; real sites differ from the medians by several dB.\n\n")
         rows = []
         for ex in analysis.external_noise:
-            rows.append([ex["band"], _mhz(ex["frequency_hz"]), _pm(ex["excess_db"], ex["expanded_uncertainty_db"]),
-                         _f(ex.get("receiver_noise_figure_db")),
-                         "n/a" if ex.get("antenna_temperature_k") is None else f"{ex['antenna_temperature_k']:.0f}",
-                         _f(ex.get("fa_db"), 1)])
+            rows.append([ex.band, _mhz(ex.frequency_hz), _pm(ex.excess_db, ex.expanded_uncertainty_db),
+                         _f(ex.receiver_noise_figure_db),
+                         "n/a" if ex.antenna_temperature_k is None else f"{ex.antenna_temperature_k:.0f}",
+                         _f(ex.fa_db, 1)])
         w(_table(["band", "frequency", "excess X", "receiver NF (dB)", "T_a (K)", "F_a (dB)"], rows) + "\n\n")
         for ex in analysis.external_noise:
-            if ex.get("receiver_noise_figure_note"):
-                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: {ex['receiver_noise_figure_note']} "
+            if ex.receiver_noise_figure_note:
+                w(f"- {ex.band} at {_mhz(ex.frequency_hz)}: {ex.receiver_noise_figure_note} "
                   "(no noise figure measured at this tuning).\n")
-            knee = ex.get("knee")
+            knee = ex.knee
             if knee:
                 steps = ", ".join(f"{v:g}" for v in knee["steps_db"])
-                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: the antenna through {steps} dB of attenuation "
+                w(f"- {ex.band} at {_mhz(ex.frequency_hz)}: the antenna through {steps} dB of attenuation "
                   f"(and the load) fits the lossy-network model with an excess of {_pm(knee['excess_db'], COVERAGE_FACTOR * knee['u_excess_db'])}, "
                   f"residuals {knee['residual_rms_db']:.2f} dB RMS.\n")
-            td = ex.get("through_dut")
+            td = ex.through_dut
             if td:
-                w(f"- {ex['band']} at {_mhz(ex['frequency_hz'])}: through the device the antenna noise drops by "
+                w(f"- {ex.band} at {_mhz(ex.frequency_hz)}: through the device the antenna noise drops by "
                   f"{_pm(td['drop_db'], COVERAGE_FACTOR * td['u_drop_db'])}.\n")
         w("\n")
         if analysis.snr_cost:
             envs = list(ENV_COLOURS)
             rows = []
             for c in analysis.snr_cost:
-                pred = c["predicted"] or {}
-                rows.append([c["band"], _mhz(c["frequency_hz"]), _pm(c["loss_db"], COVERAGE_FACTOR * c["u_loss_db"]),
-                             _pm(c["snr_degradation_db"], c["expanded_uncertainty_db"]),
-                             _pm(c.get("snr_degradation_through_dut_db"), c.get("expanded_uncertainty_through_dut_db"))]
+                pred = c.predicted or {}
+                rows.append([c.band, _mhz(c.frequency_hz), _pm(c.loss_db, COVERAGE_FACTOR * c.u_loss_db),
+                             _pm(c.snr_degradation_db, c.expanded_uncertainty_db),
+                             _pm(c.through_dut_db, c.expanded_uncertainty_through_dut_db)]
                             + [_f(pred.get(e)) for e in envs])
             w(_table(["band", "frequency", "loss", "SNR cost (from the excess)", "SNR cost (antenna through the device)"]
                      + [f"{e} (dB)" for e in envs], rows) + "\n\n")
             w("The cost through the device is L minus the drop of the antenna noise through it: "
               "SNR_with/SNR_without = N_with/(L·N_without) at the dongle, with no noise model needed.\n\n")
             for c in analysis.snr_cost:
-                w(f"- {c['band']}: loss taken from the {c['loss_source']}.\n")
+                w(f"- {c.band}: loss taken from the {c.loss_source}.\n")
             w("\n")
         if "snr_cost" in plots:
             w(f"![SNR cost per band]({plots['snr_cost']})\n\n")

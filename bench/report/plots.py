@@ -225,8 +225,8 @@ def plot_snr_cost(analysis: Analysis, path: Path, truth: SimulatedTruth | None =
     costs = analysis.snr_cost
     if not costs:
         return False
-    envs = [e for e in ENV_COLOURS if any(c["predicted"] and e in c["predicted"] for c in costs)]
-    through = any(c.get("snr_degradation_through_dut_db") is not None for c in costs)
+    envs = [e for e in ENV_COLOURS if any(c.predicted and e in c.predicted for c in costs)]
+    through = any(c.through_dut_db is not None for c in costs)
     n_bars = 1 + int(through) + len(envs)
     width = 0.8 / n_bars
     fig = _figure(max(7.0, 2.6 * len(costs) + 3.0), 5.2, margins_in=(0.75, 0.15, 0.65, 0.35))
@@ -241,40 +241,40 @@ def plot_snr_cost(analysis: Analysis, path: Path, truth: SimulatedTruth | None =
                             xytext=(0, 10 if bold else 2), ha="center", fontsize=9 if bold else 7,
                             fontweight="bold" if bold else "normal")
 
-    meas = np.array([c["snr_degradation_db"] for c in costs])
-    err = np.array([c["expanded_uncertainty_db"] for c in costs])
+    meas = np.array([c.snr_degradation_db for c in costs])
+    err = np.array([c.expanded_uncertainty_db for c in costs])
     labelled(ax.bar(left, meas, width, yerr=err, capsize=4, color=C_TRACE,
                     label="measured: loss and band-noise excess (±U, k = 2)"), meas, bold=True)
     j = 1
     if through:
-        vals = np.array([np.nan if c.get("snr_degradation_through_dut_db") is None
-                         else c["snr_degradation_through_dut_db"] for c in costs])
-        errs = np.array([c.get("expanded_uncertainty_through_dut_db") or 0.0 for c in costs])
+        vals = np.array([np.nan if c.through_dut_db is None
+                         else c.through_dut_db for c in costs])
+        errs = np.array([c.expanded_uncertainty_through_dut_db or 0.0 for c in costs])
         labelled(ax.bar(left + width, vals, width, yerr=errs, capsize=4, color=C_DIRECT,
                         label="measured: antenna through the device (±U, k = 2)"), vals, bold=True)
         j = 2
     for i, e in enumerate(envs):
-        vals = np.array([c["predicted"].get(e, np.nan) if c["predicted"] else np.nan for c in costs])
+        vals = np.array([c.predicted.get(e, np.nan) if c.predicted else np.nan for c in costs])
         labelled(ax.bar(left + (j + i) * width, vals, width, color=ENV_COLOURS[e], alpha=0.8,
                         label=f"predicted: ITU-R P.372 {e}"), vals)
     for xi, c in zip(x, costs):
-        ax.hlines(c["loss_db"], xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
+        ax.hlines(c.loss_db, xi - 0.45, xi + 0.45, colors=C_BAD, linestyles=":", lw=1.5)
     ax.plot([], [], ":", color=C_BAD, label="the loss itself (the cost if the receiver's noise dominated)")
     if truth is not None:  # one black bar per band across its measured bars
-        spans = [(truth.snr_cost_db[c["frequency_hz"]], xi - 0.4,
-                  xi - 0.4 + (1 + int(c.get("snr_degradation_through_dut_db") is not None)) * width)
-                 for xi, c in zip(x, costs) if c["frequency_hz"] in truth.snr_cost_db]
+        spans = [(truth.snr_cost_db[c.frequency_hz], xi - 0.4,
+                  xi - 0.4 + (1 + int(c.through_dut_db is not None)) * width)
+                 for xi, c in zip(x, costs) if c.frequency_hz in truth.snr_cost_db]
         if spans:
             ax.hlines(*zip(*spans), colors=C_TRUTH, lw=2.0, zorder=5, label=TRUTH_LABEL)
-    labels = [f"{c['band']}, {fmt_hz(c['frequency_hz'])}\nloss {c['loss_db']:.2f} dB, band noise "
-              f"{c['excess_db']:.1f} dB over the receiver's" for c in costs]
+    labels = [f"{c.band}, {fmt_hz(c.frequency_hz)}\nloss {c.loss_db:.2f} dB, band noise "
+              f"{c.excess_db:.1f} dB over the receiver's" for c in costs]
     ax.set_xticks(x, labels, fontsize=8)
     ax.set_ylabel("SNR lost to the device (dB, log scale)")
     ax.set_title("What the loss costs in signal-to-noise ratio, per band")
     # A log scale: the costs that matter (0.01-0.4 dB) stay visible beside the loss itself (several dB).
     from matplotlib.ticker import FuncFormatter
 
-    top = float(np.nanmax(np.append(meas + err, [c["loss_db"] for c in costs])))
+    top = float(np.nanmax(np.append(meas + err, [c.loss_db for c in costs])))
     ax.set_yscale("log")
     ax.set_ylim(SNR_COST_FLOOR_DB, top * 12)
     ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))

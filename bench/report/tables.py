@@ -55,19 +55,19 @@ def csv_rows(analysis: Analysis) -> list[dict]:
                 add("vs_frequency", "dut_noise_figure", f, curve["dut_noise_figure_db"][i], "dB",
                     COVERAGE_FACTOR * curve["u_dut_noise_figure_db"][i], "noise source", "sub-band")
     for ex in analysis.external_noise:
-        add("external_noise", "excess", ex["frequency_hz"], ex["excess_db"], "dB", ex["expanded_uncertainty_db"],
-            "antenna/load", ex["band"])
-        if ex.get("fa_db") is not None:
-            add("external_noise", "fa", ex["frequency_hz"], ex["fa_db"], "dB", None, "from excess and NF", ex["band"])
+        add("external_noise", "excess", ex.frequency_hz, ex.excess_db, "dB", ex.expanded_uncertainty_db,
+            "antenna/load", ex.band)
+        if ex.fa_db is not None:
+            add("external_noise", "fa", ex.frequency_hz, ex.fa_db, "dB", None, "from excess and NF", ex.band)
     for c in analysis.snr_cost:
-        add("snr_cost", "snr_degradation", c["frequency_hz"], c["snr_degradation_db"], "dB",
-            c["expanded_uncertainty_db"], "from loss and excess", c["band"])
-        if c.get("snr_degradation_through_dut_db") is not None:
-            add("snr_cost", "snr_degradation", c["frequency_hz"], c["snr_degradation_through_dut_db"], "dB",
-                c["expanded_uncertainty_through_dut_db"], "antenna through the device", c["band"])
-        for env, v in (c["predicted"] or {}).items():
-            add("snr_cost", "snr_degradation_predicted", c["frequency_hz"], v, "dB", None, f"ITU-R P.372 {env}",
-                c["band"])
+        add("snr_cost", "snr_degradation", c.frequency_hz, c.snr_degradation_db, "dB",
+            c.expanded_uncertainty_db, "from loss and excess", c.band)
+        if c.through_dut_db is not None:
+            add("snr_cost", "snr_degradation", c.frequency_hz, c.through_dut_db, "dB",
+                c.expanded_uncertainty_through_dut_db, "antenna through the device", c.band)
+        for env, v in (c.predicted or {}).items():
+            add("snr_cost", "snr_degradation_predicted", c.frequency_hz, v, "dB", None, f"ITU-R P.372 {env}",
+                c.band)
     return rows
 
 

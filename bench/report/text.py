@@ -71,14 +71,14 @@ def summary_lines(analysis: Analysis) -> list[str]:
             text += f"; {n.device or 'DUT'} loss over the band {_pm(n.insertion_loss_db, n.expanded_uncertainty_loss_db)}"
         lines.append(text + headline_tags({"captures": n.captures}, clips))
     for ex in analysis.external_noise:
-        lines.append(f"band noise on {ex['band']} ({_mhz(ex['frequency_hz'])}): "
-                     f"{_pm(ex['excess_db'], ex['expanded_uncertainty_db'])} above the receiver's own")
+        lines.append(f"band noise on {ex.band} ({_mhz(ex.frequency_hz)}): "
+                     f"{_pm(ex.excess_db, ex.expanded_uncertainty_db)} above the receiver's own")
     for c in analysis.snr_cost:
-        text = (f"SNR cost on {c['band']} ({_mhz(c['frequency_hz'])}): "
-                f"{_pm(c['snr_degradation_db'], c['expanded_uncertainty_db'])} for a loss of {c['loss_db']:.2f} dB")
-        if c.get("snr_degradation_through_dut_db") is not None:
+        text = (f"SNR cost on {c.band} ({_mhz(c.frequency_hz)}): "
+                f"{_pm(c.snr_degradation_db, c.expanded_uncertainty_db)} for a loss of {c.loss_db:.2f} dB")
+        if c.through_dut_db is not None:
             text += (f" (antenna through the device: "
-                     f"{_pm(c['snr_degradation_through_dut_db'], c['expanded_uncertainty_through_dut_db'])})")
+                     f"{_pm(c.through_dut_db, c.expanded_uncertainty_through_dut_db)})")
         lines.append(text)
     if not lines:
         lines.append("no measurement could be made from these captures (see the warnings)")

@@ -65,9 +65,8 @@ class Analysis:
             n = min(nfs, key=lambda v: v.expanded_uncertainty_db)
             out["noise_figure_db"] = n.noise_figure_db
             out["noise_figure_expanded_uncertainty_db"] = n.expanded_uncertainty_db
-        out["snr_cost"] = [{"band": c["band"], "frequency_hz": c["frequency_hz"],
-                            "snr_degradation_db": c["snr_degradation_db"],
-                            "expanded_uncertainty_db": c["expanded_uncertainty_db"]} for c in self.snr_cost]
+        out["snr_cost"] = [{"band": c.band, "frequency_hz": c.frequency_hz, "snr_degradation_db": c.snr_degradation_db,
+                            "expanded_uncertainty_db": c.expanded_uncertainty_db} for c in self.snr_cost]
         return out
 
     def to_dict(self) -> dict:
@@ -90,8 +89,8 @@ class Analysis:
             "per_band_noise_figure": self.per_band_noise_figure,
             "device_differences": self.device_differences,
             "retune_steps": self.retune_steps,
-            "external_noise": self.external_noise,
-            "snr_cost": self.snr_cost,
+            "external_noise": [{**x.to_dict(), "band": x.band} for x in self.external_noise],
+            "snr_cost": [{**x.to_dict(), "band": x.band} for x in self.snr_cost],
             "coverage_factor": COVERAGE_FACTOR,
             "settings": self.settings,
             "warnings": self.warnings,
@@ -180,7 +179,7 @@ def analyze_session(session: Session, *, n_sub_bands: int = N_SUB_BANDS, drift_p
         res = _external(center, group, a.readings, a)
         if res is not None:
             a.external_noise.append(res)
-    a.external_noise.sort(key=lambda x: (x["center_hz"] is None, x["center_hz"] or 0.0))
+    a.external_noise.sort(key=lambda x: (x.center_hz is None, x.center_hz or 0.0))
     a.gain_method = _gain_methods(readable, a.readings, a)
     _snr_costs(a)
     # A warning said twice (by two methods reading one capture) is said once.

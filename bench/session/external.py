@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import TYPE_CHECKING
 
@@ -9,9 +10,8 @@ import numpy as np
 
 from rxbench.dsp.bands import curve_at
 from rxbench.errors import MeasurementError
-from rxbench.methods.external import external_noise
+from rxbench.methods.external import ExcessResult, external_noise
 from rxbench.methods.snr_cost import snr_cost
-from rxbench.session.bands import band_name
 from rxbench.session.folder import Entry
 from rxbench.style import fmt_hz
 from rxbench.session.grouping import _compatible, _mhz
@@ -89,9 +89,9 @@ def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
 # External noise and what the loss costs
 
 
-def _external(center, group: list[Entry], readings, analysis: Analysis) -> dict | None:
-    """The excess at one tuning (:func:`rxbench.methods.external.external_noise`), as its JSON view
-    with the band named."""
+def _external(center, group: list[Entry], readings, analysis: Analysis) -> ExcessResult | None:
+    """The excess at one tuning (:func:`rxbench.methods.external.external_noise`), with the note on a
+    receiver noise figure taken from other tunings."""
     warnings = analysis.warnings
     where = f"external noise at {_mhz(center)}"
     ant = [e for e in group if e.role == "antenna" and not e.through_dut]
@@ -119,30 +119,29 @@ def _external(center, group: list[Entry], readings, analysis: Analysis) -> dict 
         warnings.append(f"{where}: {exc}")
         return None
     warnings.extend(f"{where}: {w}" for w in res.warnings)
-    out = {**res.to_dict(), "band": band_name(res.frequency_hz)}
     if nf is not None and nf[2] is not None:
-        out["receiver_noise_figure_note"] = nf[2]
+        res = dataclasses.replace(res, receiver_noise_figure_note=nf[2])
         warnings.append(f"{where}: {nf[2]}: Fa and the predictions use it")
-    return out
+    return res
 
 
 def _snr_costs(analysis: Analysis) -> None:
     for ex in analysis.external_noise:
-        f = ex["frequency_hz"]
-        where = f"SNR cost on {ex['band']}"
+        f = ex.frequency_hz
+        where = f"SNR cost on {ex.band}"
         if f is None:
             analysis.warnings.append(f"{where}: the captures give no frequency; cannot match a loss")
             continue
-        found = loss_at(analysis, f, 0.5 * ex["sample_rate_hz"])
+        found = loss_at(analysis, f, 0.5 * ex.sample_rate_hz)
         if found is None:
             analysis.warnings.append(f"{where} ({f / 1e6:.3f} MHz): no loss measured at this frequency; "
                                      "the excess alone is reported")
             continue
         loss_db, u_loss, loss_hz, source = found
-        td = ex["through_dut"] or {}
-        res = snr_cost(loss_db, ex["excess_db"], u_loss_db=u_loss, u_excess_db=ex["u_excess_db"], frequency_hz=f,
-                       rx_nf_db=ex["receiver_noise_figure_db"], drop_db=td.get("drop_db"),
+        td = ex.through_dut or {}
+        res = snr_cost(loss_db, ex.excess_db, u_loss_db=u_loss, u_excess_db=ex.u_excess_db, frequency_hz=f,
+                       rx_nf_db=ex.receiver_noise_figure_db, drop_db=td.get("drop_db"),
                        u_drop_db=td.get("u_drop_db", 0.0),
                        provenance={"loss_source": source, "loss_frequency_hz": loss_hz})
         analysis.warnings.extend(f"{where}: {w}" for w in res.warnings)
-        analysis.snr_cost.append({**res.to_dict(), "band": ex["band"]})
+        analysis.snr_cost.append(res)
