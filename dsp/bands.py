@@ -235,3 +235,40 @@ def curve_at(frequency_hz: float, centre_hz, width_hz, value_db, u_db) -> CurveP
         return CurvePoint(float((1 - w) * v[i - 1] + w * v[i]), float(np.hypot((1 - w) * u[i - 1], w * u[i])),
                           float(frequency_hz), True)
     return None
+
+
+@dataclass(frozen=True)
+class NearbyValue:
+    """A value taken from tunings near a frequency (see :func:`near_tunings`): ``value_db`` and its
+    standard uncertainty ``u_db``, from the tuning at ``low_hz`` alone (``high_hz`` None) or on the line
+    between the tunings at ``low_hz`` and ``high_hz``."""
+
+    value_db: float
+    u_db: float
+    low_hz: float
+    high_hz: float | None
+
+
+def near_tunings(frequency_hz: float, centre_hz, value_db, u_db, *, max_distance_hz: float) -> NearbyValue | None:
+    """A value at ``frequency_hz`` from tunings within ``max_distance_hz`` of it, or None.
+
+    With a tuning either side, the straight line between the nearest two, v = (1 - w)*v0 + w*v1; its
+    uncertainty is the larger of the two, u = max(u0, u1): a bound for inputs that are fully
+    correlated (a noise figure's shares the one noise source's ENR), where the line's own would be
+    (1 - w)*u0 + w*u1 (JCGM 100:2008, 5.2.2). With tunings on one side only, the nearest one's own
+    value. Tunings whose value is not finite are left out; any order.
+    """
+    f, v, u = (np.atleast_1d(np.asarray(a, dtype=float)) for a in (centre_hz, value_db, u_db))
+    if not f.shape == v.shape == u.shape or f.ndim != 1:
+        raise ValueError(f"centre, value and u must be 1-D and alike, got {f.shape}, {v.shape}, {u.shape}")
+    keep = np.isfinite(f) & np.isfinite(v) & (np.abs(f - frequency_hz) <= max_distance_hz)
+    f, v, u = f[keep], v[keep], u[keep]
+    if not f.size:
+        return None
+    below, above = np.flatnonzero(f < frequency_hz), np.flatnonzero(f > frequency_hz)
+    if below.size and above.size:
+        i, j = below[np.argmax(f[below])], above[np.argmin(f[above])]
+        w = (frequency_hz - f[i]) / (f[j] - f[i])
+        return NearbyValue(float(v[i] + w * (v[j] - v[i])), float(max(u[i], u[j])), float(f[i]), float(f[j]))
+    i = int(np.argmin(np.abs(f - frequency_hz)))
+    return NearbyValue(float(v[i]), float(u[i]), float(f[i]), None)

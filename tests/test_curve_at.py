@@ -1,4 +1,4 @@
-"""dsp.bands.curve_at (a stitched curve read at one frequency) and dsp.bands.band_of, on arrays.
+"""dsp.bands.curve_at (a stitched curve read at one frequency), near_tunings and band_of, on arrays.
 
 Checks: the straight line between two neighbouring sub-bands against numpy.interp (a general-purpose
 reference library); its uncertainty against the first-order law of propagation written out by hand
@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 
-from rxbench.dsp.bands import band_of, curve_at
+from rxbench.dsp.bands import band_of, curve_at, near_tunings
 
 CENTRES = np.array([28.00e6, 28.01e6, 28.02e6, 28.50e6])
 WIDTHS = np.full(4, 0.006e6)  # half-width 3 kHz: gaps of 4 kHz between the first three
@@ -65,3 +65,22 @@ def test_band_of_the_table_edges():
     assert band_of(28.0e6) == "10 m" and band_of(29.7e6) == "10 m"
     assert band_of(27.999e6) is None and band_of(None) is None and band_of(float("nan")) is None
     assert band_of(14.2e6) == "20 m"
+
+
+def test_near_tunings_line_between_the_two_either_side():
+    # Tunings at 28.2, 28.9 and 29.2 MHz (any order); 29.0 MHz lies between 28.9 and 29.2: w = 1/3,
+    # the line numpy.interp draws; u the larger of the two (a bound for fully correlated inputs).
+    centres, nf, u = [29.2e6, 28.2e6, 28.9e6], [7.0, 5.0, 6.4], [0.3, 0.1, 0.2]
+    p = near_tunings(29.0e6, centres, nf, u, max_distance_hz=2.9e6)
+    assert (p.low_hz, p.high_hz) == (28.9e6, 29.2e6)
+    assert p.value_db == pytest.approx(float(np.interp(29.0e6, [28.2e6, 28.9e6, 29.2e6], [5.0, 6.4, 7.0])), abs=1e-12)
+    assert p.value_db == pytest.approx(6.4 + (0.1 / 0.3) * 0.6, abs=1e-12)  # 6.6 dB, by hand
+    assert p.u_db == 0.3
+
+
+def test_near_tunings_one_side_and_too_far():
+    centres, nf, u = [28.2e6, 28.9e6], [5.0, 6.4], [0.1, 0.2]
+    p = near_tunings(29.1e6, centres, nf, u, max_distance_hz=2.91e6)
+    assert (p.value_db, p.u_db, p.low_hz, p.high_hz) == (6.4, 0.2, 28.9e6, None)
+    assert near_tunings(29.1e6, centres, nf, u, max_distance_hz=0.1e6) is None  # 200 kHz to the nearest
+    assert near_tunings(28.5e6, centres, [np.nan, 6.4], u, max_distance_hz=1e6).high_hz is None  # nan left out

@@ -3,12 +3,11 @@
 from __future__ import annotations
 
 import dataclasses
-import math
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from rxbench.dsp.bands import curve_at
+from rxbench.dsp.bands import curve_at, near_tunings
 from rxbench.errors import MeasurementError
 from rxbench.methods.external import ExcessResult, external_noise
 from rxbench.methods.snr_cost import snr_cost
@@ -56,8 +55,8 @@ NF_NEAREST_FRACTION = 0.1
 def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
     """Receiver noise figure (dB), its u and a note at ``frequency_hz``: the same tuning or the curve
     (note None); else the nearest measured tunings, interpolated between the two either side (or the
-    nearest one), within :data:`NF_NEAREST_FRACTION` of the frequency, with a note saying how far
-    away they were; else None."""
+    nearest one; :func:`rxbench.dsp.bands.near_tunings`), within :data:`NF_NEAREST_FRACTION` of the
+    frequency, with a note saying how far away they were; else None."""
     for n in analysis.noise_figure:
         if n.center_hz is not None and abs(n.center_hz - frequency_hz) <= half_band_hz:
             return n.noise_figure_db, n.u_noise_figure_db, None
@@ -68,21 +67,18 @@ def _nf_at(analysis: Analysis, frequency_hz: float, half_band_hz: float):
         if (np.abs(f - frequency_hz) <= w).any():
             i = int(np.argmin(np.abs(f - frequency_hz)))
             return curve["noise_figure_db"][i], curve["u_noise_figure_db"][i], None
-    tuned = sorted((n.center_hz, n.noise_figure_db, n.u_noise_figure_db) for n in analysis.noise_figure
-                   if n.center_hz is not None and math.isfinite(n.noise_figure_db))
-    near = [t for t in tuned if abs(t[0] - frequency_hz) <= NF_NEAREST_FRACTION * frequency_hz]
-    if not near:
+    tuned = [n for n in analysis.noise_figure if n.center_hz is not None]
+    near = near_tunings(frequency_hz, [n.center_hz for n in tuned], [n.noise_figure_db for n in tuned],
+                        [n.u_noise_figure_db for n in tuned], max_distance_hz=NF_NEAREST_FRACTION * frequency_hz)
+    if near is None:
         return None
-    below = [t for t in near if t[0] < frequency_hz]
-    above = [t for t in near if t[0] > frequency_hz]
-    if below and above:
-        (f0, nf0, u0), (f1, nf1, u1) = below[-1], above[0]
-        w = (frequency_hz - f0) / (f1 - f0)
+    f0, f1 = near.low_hz, near.high_hz
+    if f1 is not None:
         note = (f"receiver noise figure interpolated between {fmt_hz(f0)} and {fmt_hz(f1)} "
                 f"({fmt_hz(frequency_hz - f0)} and {fmt_hz(f1 - frequency_hz)} away)")
-        return nf0 + w * (nf1 - nf0), max(u0, u1), note
-    f0, nf0, u0 = min(near, key=lambda t: abs(t[0] - frequency_hz))
-    return nf0, u0, f"receiver noise figure measured at {fmt_hz(f0)}, {fmt_hz(abs(frequency_hz - f0))} away"
+    else:
+        note = f"receiver noise figure measured at {fmt_hz(f0)}, {fmt_hz(abs(frequency_hz - f0))} away"
+    return near.value_db, near.u_db, note
 
 
 # --------------------------------------------------------------------------------------------
