@@ -9,7 +9,6 @@ import numpy as np
 
 from rxbench.methods.common import COVERAGE_FACTOR
 from rxbench.report.text import _mhz, _pm
-from rxbench.spectra_pages import plot_spectra
 from rxbench.style import fmt_hz
 from rxbench.session import QUIET_GALACTIC, Analysis
 

@@ -13,7 +13,8 @@ from rxbench.errors import UsageError
 from rxbench.files import is_recording
 from rxbench.output import json_safe
 from rxbench.report.document import markdown
-from rxbench.report.plots import SimulatedTruth, plot_frequency, plot_ladder, plot_snr_cost, plot_spectra
+from rxbench.report.plots import SimulatedTruth, plot_frequency, plot_ladder, plot_snr_cost
+from rxbench.spectra_pages import plot_spectra
 from rxbench.report.tables import csv_rows, write_csv
 from rxbench.session import Analysis
 

@@ -10,7 +10,6 @@ from rxbench.errors import RxbenchError
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.methods.common import COVERAGE_FACTOR, N_SUB_BANDS
 from rxbench.methods.loss import LossResult
-from rxbench.dsp.units import db_from_power
 from rxbench.session.folder import TONE_ROLES, Entry, Session
 from rxbench.session.external import _external, _snr_costs
 from rxbench.session.grouping import _center_key, _groups
