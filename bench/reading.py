@@ -390,34 +390,6 @@ def require_comparable(captures, *, tuning: bool = True, gain: bool = True) -> l
     return warnings
 
 
-def add_tone_reading_options(parser) -> None:
-    """The options of every command that compares tones across captures (``loss``, ``ladder``): where
-    the tone is, the FFT length, the frequency tolerance between captures and the noise band."""
-    from rxbench.quantities import arg as quantity_arg
-
-    parser.add_argument("--near", type=quantity_arg("offset"), metavar="HZ",
-                        help="measure the tone near this offset from centre, Hz")
-    parser.add_argument("--nperseg", type=int, metavar="N", help="FFT segment length (default: from the capture length)")
-    add_drift_option(parser)
-    add_noise_band_option(parser)
-
-
-def add_noise_band_option(parser) -> None:
-    """``--noise-band LO HI``: where in the band the noise floor of every capture read is taken."""
-    from rxbench.quantities import arg as quantity_arg
-
-    parser.add_argument("--noise-band", type=quantity_arg("offset"), nargs=2, metavar=("LO", "HI"),
-                        help="take the noise floor between these offsets from centre, Hz (default: the whole band, "
-                             "or near the signals when the floor is not flat)")
-
-
-def add_drift_option(parser) -> None:
-    """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`signal_differences`)."""
-    parser.add_argument("--drift-ppm", type=float, default=DEFAULT_PPM, metavar="PPM",
-                        help="how far the tone may move between captures, ppm of the centre frequency, on top of "
-                             f"{DEFAULT_BINS:g} FFT bins (default %(default)g; widen for a dongle still warming up)")
-
-
 def _offset(hz: float) -> str:
     return f"{hz:+.0f} Hz"
 

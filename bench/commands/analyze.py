@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.reading import add_drift_option, add_noise_band_option
+from rxbench.options import add_drift_option, add_noise_band_option
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.output import Progress, add_json_option, emit
 from rxbench.report import summary_lines, write_report

@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from rxbench.reading import (INTERMITTENT_BELOW, add_noise_band_option, health_dict, noise_dict, read_capture,
-                             tone_dict)
+from rxbench.options import add_noise_band_option
+from rxbench.reading import INTERMITTENT_BELOW, health_dict, noise_dict, read_capture, tone_dict
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args

@@ -29,7 +29,8 @@ from rxbench.methods.noise_curve import NoiseFigureResult, noise_figure_curve
 from rxbench.methods.noise_source import NoiseSourceBand, Spectrum, _db, y_factor_band
 from rxbench.output import add_json_option, emit, fmt_db
 from rxbench.quantities import arg as quantity_arg
-from rxbench.reading import accumulate, add_noise_band_option, choose_nperseg, health_warnings, read_capture
+from rxbench.options import add_noise_band_option
+from rxbench.reading import accumulate, choose_nperseg, health_warnings, read_capture
 from rxbench.recordings import Capture, add_capture_options, atomic_path, capture_from_args
 from rxbench.style import fmt_hz_band
 
