@@ -236,9 +236,9 @@ def plot_bands(analysis, path) -> bool:
     curves = {k: c for k, c in curves.items() if c is not None and c["frequency_hz"]}
     if not curves or not (analysis.per_band or analysis.per_band_noise_figure):
         return False
-    from rxbench.report.plots import _figure, _save, _segments
+    from rxbench.report.plots import _figure, _save
 
-    fig = _figure(10.0, 7.0)
+    fig = _figure(10.0, 7.0, margins_in=(0.8, 0.2, 0.55, 0.4), gap_in=0.45, rows=2)
     ax1, ax2 = fig.subplots(2, 1, sharex=True)
     f_all = np.concatenate([np.asarray(c["frequency_hz"]) for c in curves.values()]) / 1e6
     lo, hi = float(f_all.min()), float(f_all.max())
@@ -256,10 +256,9 @@ def plot_bands(analysis, path) -> bool:
         col = _COLOURS[i % len(_COLOURS)]
         f = np.asarray(c["frequency_hz"]) / 1e6
         loss, u = _arr(c["insertion_loss_db"]), _arr(c["u_insertion_loss_db"])
-        for j, idx in enumerate(_segments(f)):
-            ax1.fill_between(f[idx], loss[idx] - c["k"] * u[idx], loss[idx] + c["k"] * u[idx], color=col, alpha=0.2,
-                             lw=0)
-            ax1.plot(f[idx], loss[idx], "-", color=col, lw=1.3, label=f"{lab} (±U)" if j == 0 else None)
+        # points with their ±U bars, not joined: a line through noisy sub-bands suggests a ripple
+        ax1.errorbar(f, loss, yerr=c["k"] * u, fmt="o", color=col, ms=3, elinewidth=0.8,
+                     label=f"{lab}, per sub-band (±U)")
     colour = {lab: _COLOURS[i % len(_COLOURS)] for i, lab in enumerate(curves)}
     marks = {"direct": "s", "substitution": "D"}
     seen = set()
@@ -275,16 +274,17 @@ def plot_bands(analysis, path) -> bool:
     ax1.set_ylabel("insertion loss (dB)")
     ax1.set_title("Loss against frequency, amateur bands shaded", pad=14)
     ax1.grid(True, lw=0.3)
-    ax1.legend(fontsize=8)
     c = analysis.loss_vs_frequency
     f = np.asarray(c["frequency_hz"]) / 1e6
     nf, u = _arr(c["noise_figure_db"]), _arr(c["u_noise_figure_db"])
-    for j, idx in enumerate(_segments(f)):
-        ax2.fill_between(f[idx], nf[idx] - c["k"] * u[idx], nf[idx] + c["k"] * u[idx], color="#555555", alpha=0.2, lw=0)
-        ax2.plot(f[idx], nf[idx], "-", color="#333333", lw=1.2, label="receive system (±U)" if j == 0 else None)
+    ax2.errorbar(f, nf, yerr=c["k"] * u, fmt="o", color="#333333", ms=3, elinewidth=0.8,
+                 label="receive system, per sub-band (±U)")
     ax2.set_ylabel("noise figure (dB)")
     ax2.set_xlabel("frequency (MHz)")
     ax2.grid(True, lw=0.3)
-    ax2.legend(fontsize=8)
+    for ax in (ax1, ax2):  # headroom above the points for the legend, so it covers none of them
+        y0, y1 = ax.get_ylim()
+        ax.set_ylim(y0, y1 + 0.25 * (y1 - y0))
+        ax.legend(fontsize=8, loc="upper right")
     _save(fig, path)
     return True
