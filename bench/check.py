@@ -28,9 +28,9 @@ import math
 from dataclasses import dataclass, field
 
 from rxbench.errors import RxbenchError
-from rxbench.dsp.same_signal import on_dc, tolerance_hz
-from rxbench.reading import (CLIP_NOTE_BELOW, INTERMITTENT_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz,
-                             read_capture)
+from rxbench.dsp.same_signal import tolerance_hz
+from rxbench.reading import (CLIP_NOTE_BELOW, LOW_SNR_DB, Reading, noise_density_dbfs_per_hz, read_capture,
+                             tone_shape)
 from rxbench.plan import NOISE_SOURCE_ROLES, TONE_ROLES, PlannedCapture
 from rxbench.style import fmt_hz
 
@@ -186,22 +186,23 @@ class Checker:
         return CaptureCheck(cap.base_name, level, expected, upper, tuple(problems), tuple(notes))
 
     def _shape_problems(self, cap: PlannedCapture, reading: Reading) -> list[str]:
-        """Is the tone the steady line a measurement needs, and the one the run has been reading?"""
+        """Is the tone the steady line a measurement needs (:func:`rxbench.reading.tone_shape`, the same
+        findings a reading warns of), and the one the run has been reading?"""
         tone, psd, out = reading.tone, reading.psd, []
-        tl = tone.timeline
-        if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW:
-            out.append(f"the tone is present in only {100 * tl.on_fraction:.0f} % of the capture: a loose connector, "
-                       "or the generator keyed or pulsed?")
-        if tl is not None and tl.level_change_db > 0:
-            out.append(f"the tone's level changed by {tl.level_change_db:.1f} dB during the capture: let the "
+        shape = tone_shape(psd, reading.floor, tone)
+        if shape.on_fraction is not None:
+            out.append(f"the tone is present in only {100 * shape.on_fraction:.0f} % of the capture: a loose "
+                       "connector, or the generator keyed or pulsed?")
+        if shape.level_change_db > 0:
+            out.append(f"the tone's level changed by {shape.level_change_db:.1f} dB during the capture: let the "
                        "generator settle and check the cables")
-        if tone.is_broad:
+        if shape.broad:
             out.append(f"a broad signal, not a tone (-3 dB width {fmt_hz(tone.width_hz)}): is the generator's "
                        "modulation off?")
-        if tone.second_offset_hz is not None:
-            out.append(f"a second line at {fmt_hz(tone.second_offset_hz)} from the centre within "
-                       f"{abs(tone.second_db):.1f} dB of the tone: which one is the generator?")
-        if not psd.one_sided and on_dc(tone.offset_hz, psd.bin_width_hz, reading.floor.dc_halfwidth_hz):
+        if shape.second_offset_hz is not None:
+            out.append(f"a second line at {fmt_hz(shape.second_offset_hz)} from the centre within "
+                       f"{abs(shape.second_db):.1f} dB of the tone: which one is the generator?")
+        if shape.on_dc:
             out.append("the tone sits on the dongle's DC spike: tune the generator or the dongle away from it")
             return out
         first = self._tone_at.setdefault((cap.center_hz, cap.tone_offset_hz), (tone.offset_hz, cap.base_name))

@@ -17,8 +17,9 @@ from rxbench.recordings import Capture
 from rxbench.dsp.floor import BAND_RANGE_DB, NoiseFloor, noise_floor
 from rxbench.dsp.health import Health, HealthAccumulator
 from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
-from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, on_dc, same_signal
-from rxbench.dsp.tone import BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, Tone, measure_tone
+from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, same_signal
+from rxbench.dsp.tone import (BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, INTERMITTENT_BELOW, Tone,  # noqa: F401
+                              measure_tone, tone_shape)
 from rxbench.dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
@@ -33,8 +34,6 @@ RATE_TOLERANCE = 1e-6
 CENTER_TOLERANCE_HZ = 1.0
 #: A tone closer than this to the noise (peak bin over floor, dB) gets a low-SNR warning.
 LOW_SNR_DB = 10.0
-#: A tone present for less than this fraction of the capture is called intermittent.
-INTERMITTENT_BELOW = 0.9
 
 
 @dataclass(frozen=True)
@@ -189,43 +188,39 @@ def _floor_warnings(name: str, floor: NoiseFloor) -> list[str]:
 
 def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: bool = False) -> list[str]:
     out = []
-    tl = tone.timeline
-    varies = tl is not None and ((tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW)
-                                 or tl.level_change_db > 0)
-    if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW:
+    shape = tone_shape(psd, floor, tone)
+    if shape.on_fraction is not None:
         out.append(
-            f"{name}: intermittent: present in {100 * tl.on_fraction:.0f} % of the capture; power_dbfs "
+            f"{name}: intermittent: present in {100 * shape.on_fraction:.0f} % of the capture; power_dbfs "
             f"({tone.power_dbfs:.2f} dBFS) is the average over the whole capture, on_power_dbfs "
             f"({tone.on_power_dbfs:.2f} dBFS) the power while present"
         )
-    if tl is not None and tl.level_change_db > 0:
-        how = (f"a drift of {tl.drift_db_per_s:+.3g} dB/s" if tl.drift_db_per_s is not None else "in steps")
-        out.append(f"{name}: the tone's level changes by {tl.level_change_db:.1f} dB during the capture "
+    if shape.level_change_db > 0:
+        how = (f"a drift of {shape.drift_db_per_s:+.3g} dB/s" if shape.drift_db_per_s is not None else "in steps")
+        out.append(f"{name}: the tone's level changes by {shape.level_change_db:.1f} dB during the capture "
                    f"({how}): its power is an average over that change")
     if tone.peak_to_floor_db < LOW_SNR_DB:
         out.append(
             f"{name}: tone only {tone.peak_to_floor_db:.1f} dB above the noise in one bin; "
             f"its power is uncertain by ±{tone.u_power_db * 2:.2f} dB (95 %)"
         )
-    if tone.power <= 0 or (tone.ci95_dbfs[0] == -np.inf and not varies):
+    if tone.power <= 0 or (tone.ci95_dbfs[0] == -np.inf and not shape.varies):
         out.append(f"{name}: tone power not distinguishable from the noise")
-    if tone.is_broad:
+    if shape.broad:
         out.append(
             f"{name}: a broad signal, not a tone (-3 dB width {tone.width_hz:.4g} Hz, a line here is "
             f"{tone.line_width_hz:.3g} Hz): power reads as a band power over "
             f"{(2 * BAND_HALFWIDTH_BINS + 1) * psd.bin_width_hz:.4g} Hz"
         )
-    if tone.second_offset_hz is not None:
+    if shape.second_offset_hz is not None:
         out.append(
             f"{name}: a second line at {tone.second_offset_hz:+.0f} Hz within {abs(tone.second_db):.1f} dB of the "
             f"one read at {tone.offset_hz:+.0f} Hz (two-tone keying?): "
             + ("both lie near --near; narrow it" if chosen else "give --near HZ to choose")
         )
-    if psd.one_sided:
-        return out
-    if on_dc(tone.offset_hz, psd.bin_width_hz, floor.dc_halfwidth_hz):
+    if shape.on_dc:
         out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz sits on the DC spike; tune it away from the centre")
-    if abs(tone.offset_hz) > floor.edge_hz:
+    if not psd.one_sided and abs(tone.offset_hz) > floor.edge_hz:
         out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz is near the band edge (anti-alias roll-off)")
     return out
 

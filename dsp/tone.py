@@ -26,6 +26,7 @@ import numpy as np
 from scipy import special
 
 from rxbench.dsp.floor import NoiseFloor, detection_threshold, usable_mask
+from rxbench.dsp.same_signal import on_dc
 from rxbench.dsp.spectrum import Psd, kernel
 from rxbench.dsp.timeline import Timeline, tone_timeline
 from rxbench.dsp.units import db_from_power
@@ -38,6 +39,10 @@ BROAD_FACTOR = 3.0
 SECOND_LINE_DB = 1.0
 #: Default noise bandwidth for the reported SNR, Hz (a speech channel).
 DEFAULT_SNR_BANDWIDTH_HZ = 2500.0
+
+
+#: A tone present for less than this fraction of the capture is called intermittent.
+INTERMITTENT_BELOW = 0.9
 
 
 @dataclass(frozen=True)
@@ -305,3 +310,42 @@ def _second_line(spectrum: Psd, floor: NoiseFloor, k: int, own_bins: tuple[int, 
         return None
     rel = float(10 * np.log10(excess[best] / excess[k]))
     return (best, rel) if rel >= -SECOND_LINE_DB else None
+
+
+@dataclass(frozen=True)
+class ToneShape:
+    """What a tone reading says about the signal's shape, decided once: for a reading's warnings and
+    for the check after a capture (``rxbench.check``).
+
+    ``on_fraction`` is set only when the tone is intermittent (present less than
+    INTERMITTENT_BELOW of the time); ``level_change_db`` is 0 for a steady level.
+    """
+
+    on_fraction: float | None
+    level_change_db: float
+    drift_db_per_s: float | None
+    broad: bool
+    second_offset_hz: float | None
+    second_db: float | None
+    on_dc: bool
+
+    @property
+    def varies(self) -> bool:
+        """Intermittent, or its level changes: the power is an average over that."""
+        return self.on_fraction is not None or self.level_change_db > 0
+
+
+def tone_shape(psd: Psd, floor: NoiseFloor, tone: Tone) -> ToneShape:
+    """The shape findings of ``tone`` read from ``psd`` with ``floor``."""
+    tl = tone.timeline
+    on = tl.on_fraction if tl is not None and tl.on_fraction is not None and tl.on_fraction < INTERMITTENT_BELOW \
+        else None
+    return ToneShape(
+        on_fraction=on,
+        level_change_db=tl.level_change_db if tl is not None else 0.0,
+        drift_db_per_s=tl.drift_db_per_s if tl is not None else None,
+        broad=bool(tone.is_broad),
+        second_offset_hz=tone.second_offset_hz,
+        second_db=tone.second_db,
+        on_dc=not psd.one_sided and on_dc(tone.offset_hz, psd.bin_width_hz, floor.dc_halfwidth_hz),
+    )
