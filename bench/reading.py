@@ -83,16 +83,21 @@ def accumulate(capture: Capture, nperseg: int | None = None, window: str = "hann
                          expected_samples=capture.n_samples, runner=runner)
     health = HealthAccumulator(capture.clip_level, capture.float_samples, runner=runner)
     done = 0
+    blocks = capture.blocks()
     try:
-        for block in capture.blocks():
+        for block in blocks:
             health.update(block)
             acc.update(block)
             done += block.size
             if progress is not None:
                 progress(done, capture.n_samples)
+            del block  # (not held while the next one is read, nor while the result is made)
     except BaseException:  # an interrupt or a bad block: no work left running behind us
         runner.cancel()
         raise
+    finally:
+        if hasattr(blocks, "close"):
+            blocks.close()  # the reader's buffer goes now, not when this frame does
     h = health.result()
     if h.n_nonfinite:
         raise CaptureError(capture.path, f"{h.n_nonfinite} samples are NaN or infinite")

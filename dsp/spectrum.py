@@ -199,7 +199,11 @@ class PsdAccumulator:
             expected_segments = max(1, 1 + (int(expected_samples) - self.nperseg) // self.step)
             self._slot_len = -(-expected_segments // MAX_SLOTS)
             capacity = -(-expected_segments // self._slot_len)
-        self._slots = np.zeros((capacity, n_sub), np.float32)
+        # bfloat16 (see _to_bfloat16): half float32's memory (the track is most of the pass's own),
+        # at a relative step of 2**-8 (a slot's own scatter is a few %); the slot still being
+        # filled is held in float32 (_store_slots).
+        self._slots = np.zeros((capacity, n_sub), np.uint16)
+        self._open: tuple[int, np.ndarray] | None = None
         self._slot_dead = np.zeros(capacity, np.int64)
         self._dead: list[int] = []  # per sub-average
         self._finished = False  # result() taken: the slots belong to it
@@ -216,21 +220,27 @@ class PsdAccumulator:
         if self._tail is not None and self._tail.size:
             x = x.astype(self._tail.dtype, copy=False)
             t = self._tail.size
-            inside = -(-t // self.step) * self.step  # first segment start at or after the join
-            used = inside - self.step + self.nperseg - t  # block samples the straddling segments need
+            joins = -(-t // self.step)  # segments that start in the tail
+            joins += (-(self.n_segments + joins)) % self._slot_len  # and on to a slot's end
+            inside = joins * self.step  # the next segment's start, from the tail's
+            used = inside - self.step + self.nperseg - t  # block samples the joined segments need
             if x.size >= used:
                 # Only the segments across the join need a joined copy; the rest are views of x.
-                self._segments(np.concatenate([self._tail, x[:used]]))
+                self._segments(np.concatenate([self._tail, x[:used]]), whole_slots=False)
                 x = x[inside - t :]
             else:
                 x = np.concatenate([self._tail, x])
         n_seg = self._segments(x)
         self._tail = x[n_seg * self.step :].copy()
 
-    def _segments(self, x: np.ndarray) -> int:
-        """Add every whole segment of ``x`` (starting at 0, every ``step``); return how many."""
+    def _segments(self, x: np.ndarray, whole_slots: bool = True) -> int:
+        """Add the whole segments of ``x`` (starting at 0, every ``step``); return how many. With
+        ``whole_slots``, only up to the last time slot they complete: the rest wait (in the tail) for
+        the next block, so that every call but those at joins holds whole slots."""
         n_seg = 0 if x.size < self.nperseg else 1 + (x.size - self.nperseg) // self.step
-        if not n_seg:
+        if whole_slots and self._slot_len > 1:
+            n_seg -= (self.n_segments + n_seg) % self._slot_len
+        if n_seg <= 0:
             return 0
         # Segments whose first or last sample is exactly zero, found once for the whole block: only
         # calls holding one look for runs of zeros (see DEAD_RUN).
@@ -242,7 +252,7 @@ class PsdAccumulator:
         first = 0
         while first < n_seg:
             self._open_batch()
-            count = min(_SEGMENTS_PER_CALL, n_seg - first, self._batch_len - self._counts[-1])
+            count = min(self._call_rows(), n_seg - first, self._batch_len - self._counts[-1])
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
             view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
@@ -254,6 +264,12 @@ class PsdAccumulator:
             first += count
         return n_seg
 
+    def _call_rows(self) -> int:
+        """Segments per call: _SEGMENTS_PER_CALL, rounded up to whole slots when a slot is shorter
+        (a call that starts on a slot boundary then ends on one)."""
+        slot = self._slot_len
+        return -(-_SEGMENTS_PER_CALL // slot) * slot if slot <= _SEGMENTS_PER_CALL else _SEGMENTS_PER_CALL
+
     def _add(self, batch: int, segments: np.ndarray, zero_ends: bool = True) -> None:
         """Add the periodograms of ``segments`` to sub-average ``batch``, on a worker thread unless
         the batch is too small to be worth the hand-off; ``zero_ends``: some segment begins or ends
@@ -262,7 +278,7 @@ class PsdAccumulator:
         def add(sums, batch=batch):
             total, first_slot, slot_sums, slot_dead = sums
             self._batches[batch] += total
-            self._slots[first_slot : first_slot + len(slot_sums)] += slot_sums
+            self._store_slots(first_slot, slot_sums)
             if slot_dead is not None:
                 self._dead[batch] += int(slot_dead.sum())
                 self._slot_dead[first_slot : first_slot + len(slot_dead)] += slot_dead
@@ -270,34 +286,54 @@ class PsdAccumulator:
         self._work.submit(add, self._periodogram_sum, segments, self.n_segments, self._slot_len, zero_ends,
                           inline=len(segments) < _SEGMENTS_PER_CALL // 2)
 
+    def _store_slots(self, first_slot: int, slot_sums: np.ndarray) -> None:
+        """Add one call's slot sums (float32, in order) to the track. Every slot but the last the
+        call touched is complete (the calls' results arrive in order) and is stored, rounded once to
+        bfloat16; the last is held in float32 until the next call completes it (or result())."""
+        if self._open is not None and self._open[0] == first_slot:
+            slot_sums[0] += self._open[1]
+        elif self._open is not None:  # the held slot was complete
+            self._slots[self._open[0]] = _to_bfloat16(self._open[1])
+        self._slots[first_slot : first_slot + len(slot_sums) - 1] = _to_bfloat16(slot_sums[:-1])
+        self._open = (first_slot + len(slot_sums) - 1, slot_sums[-1])
+
+    def _flush_open_slot(self) -> None:
+        if self._open is not None:
+            self._slots[self._open[0]] = _to_bfloat16(self._open[1])
+            self._open = None
+
     def _make_room(self, count: int) -> None:
         """Make sure the time track has slots for the next ``count`` segments: grow it, or merge its
         slots pairwise (doubling their length) when it would pass MAX_SLOTS."""
         last = (self.n_segments + count - 1) // self._slot_len
         while last >= MAX_SLOTS:
             self._work.drain()  # the slots about to merge must be complete
+            self._flush_open_slot()
             used = -(-self.n_segments // self._slot_len)
             slots = self._slots[:used + used % 2]
             if len(slots) < used + used % 2:
-                slots = np.vstack([slots, np.zeros((1, self._n_sub), np.float32)])
-            merged = slots[0::2] + slots[1::2]
-            self._slots = np.zeros((MAX_SLOTS, self._n_sub), np.float32)
+                slots = np.vstack([slots, np.zeros((1, self._n_sub), np.uint16)])
+            merged = _to_bfloat16(_from_bfloat16(slots[0::2]) + _from_bfloat16(slots[1::2]))
+            self._slots = np.zeros((MAX_SLOTS, self._n_sub), np.uint16)
             self._slots[: len(merged)] = merged
+            # The last merged slot may be completed by the next call: held in float32 again.
+            self._open = (len(merged) - 1, _from_bfloat16(merged[-1]))
             dead = np.concatenate([self._slot_dead[:used], [0] * (used % 2)])
             self._slot_dead = np.zeros(MAX_SLOTS, np.int64)
             self._slot_dead[: len(merged)] = dead[0::2] + dead[1::2]
             self._slot_len *= 2
             last = (self.n_segments + count - 1) // self._slot_len
         if last >= len(self._slots):
-            grown = np.zeros((min(MAX_SLOTS, max(2 * len(self._slots), last + 1)), self._n_sub), np.float32)
+            grown = np.zeros((min(MAX_SLOTS, max(2 * len(self._slots), last + 1)), self._n_sub), np.uint16)
             grown[: len(self._slots)] = self._slots
             self._slots = grown
             self._slot_dead = np.concatenate([self._slot_dead, np.zeros(len(grown) - len(self._slot_dead), np.int64)])
 
     def _periodogram_sum(self, segments: np.ndarray, first_segment: int, slot_len: int, zero_ends: bool = True):
-        """Sum over segments of |FFT(w * segment)|**2 (float64), single precision for complex64; and
-        the same summed into the track's sub-bands and time slots: ``(sum, first slot, slot sums,
-        dead segments per slot or None)``.
+        """Sum over segments of the squares of FFT(w * segment)'s real and imaginary parts
+        (interleaved), single precision for complex64; and |FFT|**2 summed into the track's sub-bands
+        (in FFT order) and time slots: ``(sums, first slot, slot sums, dead segments per slot or
+        None)``.
 
         A segment that begins or ends with DEAD_RUN exactly-zero samples lies in or across a run of
         them (a dropped transfer, digital silence): it is left out of every sum and counted (looked
@@ -334,13 +370,11 @@ class PsdAccumulator:
             # first_break, whole slot_len rows, and the rest); the PSD's column sums and the slots'
             # sub-band sums then come from those few rows.
             per_slot = self._slot_bins(rails, min(first_break, n_rows), slot_len,
-                                       self._work_buffer(rails.dtype, 2 + _SEGMENTS_PER_CALL // slot_len, rails.shape[1]))
-            squares = per_slot.sum(axis=0).astype(np.float64)  # (a float64 reduction is 2.5x slower)
-            power = squares[0::2] + squares[1::2]
+                                       self._work_buffer(rails.dtype, 2 + n_rows // slot_len, rails.shape[1]))
+            columns = per_slot.sum(axis=0)
             slot_sums = self._subband_sums(per_slot, n_sub, width)
         else:
-            squares = np.einsum("ij,ij->j", rails, rails).astype(np.float64)
-            power = squares[0::2] + squares[1::2]
+            columns = np.einsum("ij,ij->j", rails, rails)
             rows = self._subband_sums(rails, n_sub, width, squared=False)
             if first_break == 0 and n_rows % slot_len == 0:  # whole slots (every row of a short capture)
                 slot_sums = rows.reshape(n_rows // slot_len, slot_len, n_sub).sum(axis=1) if slot_len > 1 else rows
@@ -349,16 +383,11 @@ class PsdAccumulator:
                 if first_break:
                     starts = np.concatenate([[0], starts])
                 slot_sums = np.add.reduceat(rows, starts, axis=0)
-        if not self.one_sided and n_sub > 1:
-            # The fftshift of the bins, by whole sub-bands, on these few rows: the slots are kept in
-            # the PSD's order, so the track needs no reordered copy at the end.
-            half = n_sub - n_sub // 2
-            slot_sums = np.concatenate([slot_sums[:, half:], slot_sums[:, :half]], axis=1)
         slot_dead = None
         if dead is not None and dead.any():
             starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
             slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
-        return power, first_segment // slot_len, slot_sums, slot_dead
+        return columns, first_segment // slot_len, slot_sums, slot_dead
 
     @staticmethod
     def _slot_bins(rails: np.ndarray, head: int, slot_len: int, scratch: np.ndarray) -> np.ndarray:
@@ -404,7 +433,7 @@ class PsdAccumulator:
         if buf is None or len(buf) < rows:
             # As large as the largest call seen: a worker's holds a full batch (2 MiB at 4096
             # points), the main thread's only the few segments across block joins it computes itself.
-            buf = buffers[key] = np.empty((rows if rows < _SEGMENTS_PER_CALL // 2 else _SEGMENTS_PER_CALL,
+            buf = buffers[key] = np.empty((rows if rows < _SEGMENTS_PER_CALL // 2 else max(rows, _SEGMENTS_PER_CALL),
                                            columns), dtype)
         return buf
 
@@ -420,7 +449,7 @@ class PsdAccumulator:
             self._batch_len *= 2
             if self._counts[-1] < self._batch_len:
                 return
-        self._batches.append(np.zeros(self._nbins))
+        self._batches.append(np.zeros(2 * self._nbins))  # (real and imaginary parts' squares)
         self._counts.append(0)
         self._dead.append(0)
 
@@ -430,9 +459,13 @@ class PsdAccumulator:
         The time track is handed over, not copied (its slots become the result's ``track``, scaled
         to densities in place): the accumulator takes no more blocks after a result.
         """
-        self._work.drain()
         if self._finished:
             raise ValueError("result() was already taken from this accumulator")
+        if self._tail is not None and self._tail.size >= self.nperseg:  # segments left waiting
+            done = self._segments(self._tail, whole_slots=False)
+            self._tail = self._tail[done * self.step :].copy()
+        self._work.drain()
+        self._scratch = threading.local()  # the worker threads' scratch arrays: no longer needed
         if self.n_segments == 0:
             raise ValueError(
                 f"fewer samples than one segment ({self.nperseg=}): the capture is too short"
@@ -440,6 +473,7 @@ class PsdAccumulator:
         fs, n = self.sample_rate_hz, self.nperseg
         scale = 1.0 / (fs * np.sum(self.window**2))
         sums = np.array(self._batches)
+        sums = sums[:, 0::2] + sums[:, 1::2]
         counts = np.array(self._counts)
         if self.one_sided:
             freq = np.fft.rfftfreq(n, 1.0 / fs)
@@ -496,13 +530,35 @@ class PsdAccumulator:
         # Real input: every bin but DC and Nyquist is folded (x2); the two outer sub-bands hold one
         # unfolded bin each, so their density reads low by at most 1/width (they are never used).
         scale = (2.0 if self.one_sided else 1.0) / (fs * np.sum(self.window**2))
-        # In place: the slots (already in the PSD's sub-band order) become the track.
-        track = self._slots[:n_slots]
+        # The slots become the track, float32 (their storage freed; for complex input their
+        # sub-bands put in the PSD's order, a few thousand rows at a time).
+        self._flush_open_slot()
+        slots = self._slots[:n_slots]
+        track = np.empty(slots.shape, np.float32)
+        half = n_sub // 2 if not self.one_sided else 0
+        order = np.roll(np.arange(n_sub), half)  # the PSD's sub-band of each column
+        bits = track.view(np.uint32)
+        for i in range(0, n_slots, 4096):  # a few thousand rows at a time: no copy of the whole
+            np.left_shift(slots[i : i + 4096].take(order, axis=1), np.uint32(16), out=bits[i : i + 4096],
+                          dtype=np.uint32)
+        self._slots = None
         track *= (scale / np.maximum(slot_counts, 1)).astype(np.float32)[:, None]
         track *= (1.0 / widths).astype(np.float32)  # (all equal for complex input: no reordering)
         self._finished = True
         track.setflags(write=False)
         return track, slot_counts, np.stack([edges[:-1], edges[1:]], axis=1)
+
+
+def _to_bfloat16(x: np.ndarray) -> np.ndarray:
+    """Non-negative float32 -> bfloat16 (the top 16 bits of a float32: its exponent and 8 bits of
+    significand, relative step 2**-8), rounded to nearest, ties to even; as uint16."""
+    u = np.ascontiguousarray(x, np.float32).view(np.uint32)
+    return ((u + (np.uint32(0x7FFF) + ((u >> 16) & np.uint32(1)))) >> 16).astype(np.uint16)
+
+
+def _from_bfloat16(b: np.ndarray) -> np.ndarray:
+    """bfloat16 held as uint16 -> float32 (exact), in one new array."""
+    return np.left_shift(b, np.uint32(16), dtype=np.uint32).view(np.float32)
 
 
 def psd(x, sample_rate_hz: float, **kwargs) -> Psd:

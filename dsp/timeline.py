@@ -9,7 +9,7 @@ sub-band's level relative to its own average (so the band's shape cancels), time
 floor density; the tone's power is the excess over that floor in the sub-bands that hold the tone's
 band, less the average excess of whatever else shares those sub-bands (taken as steady). The
 per-slot noise is measured, not modelled: a robust spread (1.4826 MAD) of the noise-only sub-bands'
-relative levels.
+relative levels (those of at most SPREAD_SLOTS evenly spaced slots: a few hundred thousand values).
 
 The decision "present in a slot" is made at the finest time resolution (slots merged 1, 2, 4, ...)
 at which the tone's strong slots (98th percentile) stand at least DETECT_MARGIN deviations above
@@ -36,6 +36,10 @@ DETECT_MARGIN = 10.0
 LEVEL_CHANGE_DB = 1.0
 #: Sub-bands whose average level is within this of the median sub-band's (dB) count as noise-only.
 NOISE_SUBBAND_DB = 0.5
+#: Slots worked at a time, and the most (evenly spaced) whose noise levels give the noise's
+#: robust spread: the work arrays stay a few MB at any capture length (DEVELOPERS.md, Memory).
+CHUNK_SLOTS = 2048
+SPREAD_SLOTS = 2048
 #: Blocks the on-time is cut into for the level change.
 LEVEL_BLOCKS = 16
 #: A change is a drift when a straight line leaves residuals (RMS) below this fraction of it (a
@@ -92,6 +96,42 @@ def _merge(values: np.ndarray, counts: np.ndarray, g: int):
     return v, c
 
 
+def _noise_levels(track: np.ndarray, rows, counts: np.ndarray, noise_cols: np.ndarray,
+                  noise_mean: np.ndarray, g: int):
+    """The noise at resolution ``g`` (the live slots, ``rows`` of the track or all when None, merged
+    ``g`` at a time): per merged slot, the floor's level relative to the capture's (the median over
+    the noise-only sub-bands of each one's level relative to its mean); the robust spread (1.4826
+    MAD) of those relative levels, each divided by its slot's floor; and the merged counts.
+
+    Worked CHUNK_SLOTS slots at a time, and the spread taken from at most SPREAD_SLOTS evenly spaced
+    merged slots, so the work arrays stay a few MB whatever the capture's length."""
+    n = len(counts)
+    n_merged = -(-n // g)
+    every = -(-n_merged // SPREAD_SLOTS)
+    floor_ratio = np.empty(n_merged)
+    merged_counts = np.empty(n_merged, np.float32)
+    picked = []
+    chunk = max(1, CHUNK_SLOTS // g) * g
+    m = len(noise_cols)
+    for start in range(0, n, chunk):
+        stop = min(n, start + chunk)
+        part = track[start:stop] if rows is None else track.take(rows[start:stop], axis=0)
+        rel, c = _merge(part.take(noise_cols, axis=1), counts[start:stop], g)  # take: 3x a mask's speed
+        rel /= noise_mean
+        rel.sort(axis=1)  # the per-slot median (numpy's vectorised sort: 5x np.median's partition)
+        ratio = 0.5 * (rel[:, (m - 1) // 2].astype(float) + rel[:, m // 2])
+        first = start // g
+        floor_ratio[first : first + len(c)] = ratio
+        merged_counts[first : first + len(c)] = c
+        pick = np.arange((-first) % every, len(c), every)
+        if pick.size:
+            picked.append(rel[pick] / ratio[pick, None].astype(np.float32))
+    rel = np.concatenate(picked)
+    rel -= np.float32(np.median(rel))
+    sigma_sub = 1.4826 * float(np.median(np.abs(rel, out=rel)))
+    return floor_ratio, sigma_sub, merged_counts
+
+
 def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins: tuple[int, int],
                   power: float) -> Timeline:
     """The time-resolved reading of a tone whose band is bins ``tone_bins`` (first, one past last)
@@ -110,12 +150,10 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
     lo, hi = tone_bins
     sel = (bins[:, 1] > lo) & (bins[:, 0] < hi)
     counts = spectrum.track_counts.astype(np.float32)
-    live = counts > 0  # slots wholly in runs of exactly-zero samples are left out
-    # Single precision (the track is float32) for the noise sub-bands' work array.
-    values, counts = (track, counts) if live.all() else (track[live], counts[live])
-    if len(counts) < 8:
+    live = np.flatnonzero(counts > 0)  # slots wholly in runs of exactly-zero samples are left out
+    if len(live) < 8:
         return unknown
-    mean = _weighted_mean(values, counts)
+    mean = _weighted_mean(track, counts)  # (a dead slot weighs nothing)
     candidates = inside & ~sel & (mean > 0)
     if candidates.sum() < 4:
         return unknown
@@ -124,22 +162,16 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
         return unknown
     bw = spectrum.bin_width_hz
     sel_width_hz = float(widths[sel].sum() * bw)
-    # Per resolution, one work array of the noise-only sub-bands (the track's size at most); every
-    # step after the per-slot floor needs only the multiset of its values, so the medians sort or
-    # partition it in place (the readings are those of np.median on a copy).
-    tone_cols = values.take(np.flatnonzero(sel), axis=1).astype(float)
+    rows = None if len(live) == len(counts) else live
+    tone_cols = track.take(np.flatnonzero(sel), axis=1).astype(float)
+    if rows is not None:
+        tone_cols, counts = tone_cols[rows], counts[rows]
     noise_cols = np.flatnonzero(noise)
+    noise_mean = mean[noise].astype(np.float32)
     g = 1
     while len(counts) // g >= 8:
-        rel, c = _merge(values.take(noise_cols, axis=1), counts, g)  # take: 3x a boolean mask's speed
+        floor_ratio, sigma_sub, c = _noise_levels(track, rows, counts, noise_cols, noise_mean, g)
         tone_v, _ = _merge(tone_cols.copy() if g > 1 else tone_cols, counts, g)
-        rel /= mean[noise].astype(np.float32)
-        rel.sort(axis=1)  # the per-slot median (numpy's vectorised sort: 5x np.median's partition)
-        floor_ratio = 0.5 * (rel[:, (rel.shape[1] - 1) // 2].astype(float) + rel[:, rel.shape[1] // 2])
-        rel /= floor_ratio[:, None].astype(np.float32)
-        rel -= np.float32(np.median(rel, overwrite_input=True))
-        sigma_sub = 1.4826 * float(np.median(np.abs(rel, out=rel), overwrite_input=True))
-        del rel
         c = c.astype(float)
         excess = (tone_v * widths[sel]).sum(axis=1) * bw - floor_density * floor_ratio * sel_width_hz
         mean_excess = c @ excess / c.sum()
