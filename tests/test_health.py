@@ -209,3 +209,19 @@ def test_session_entries_carry_the_clip_count_and_the_peak(tmp_path, rng):
     assert entry["clip_count"] == 7
     assert entry["clip_fraction"] == pytest.approx(7 / N)
     assert entry["peak_magnitude"] == pytest.approx(1.0, rel=1e-6)
+
+
+@pytest.mark.parametrize("n", [5, 1024, 1 << 19, (1 << 19) + 7])
+@pytest.mark.parametrize("complex_", [True, False])
+def test_block_sum_matches_numpy_in_double_precision(rng, n, complex_):
+    # Reference: numpy's sum of the samples converted to float64 (the reference library). The row
+    # sums are single precision: within 1e-8 of the sum of magnitudes, far inside a DC reading's
+    # own scatter (which is of order 1/sqrt(n) of it).
+    from rxbench.dsp.health import _sum
+
+    x = rng.standard_normal(n) + 0.01
+    if complex_:
+        x = x + 1j * rng.standard_normal(n)
+    x = x.astype(np.complex64 if complex_ else np.float32)
+    reference = x.astype(np.complex128 if complex_ else np.float64).sum()
+    assert abs(_sum(x) - reference) <= 1e-8 * np.abs(x).astype(float).sum()
