@@ -24,6 +24,7 @@ from typing import Callable
 MAX_WORKERS = 4
 
 _POOL: ThreadPoolExecutor | None = None
+_WORKERS: int | None = None
 _LOCK = threading.Lock()
 
 
@@ -36,8 +37,12 @@ def cpu_threads() -> int:
 
 
 def workers() -> int:
-    """Worker threads a pass uses: one per core, at most :data:`MAX_WORKERS`."""
-    return min(cpu_threads(), MAX_WORKERS)
+    """Worker threads a pass uses: one per core, at most :data:`MAX_WORKERS` (the cores counted
+    when the process's pool starts: a system call per job was a tenth of the main thread's work)."""
+    global _WORKERS
+    if _WORKERS is None:
+        _WORKERS = min(cpu_threads(), MAX_WORKERS)
+    return _WORKERS
 
 
 def pool() -> ThreadPoolExecutor | None:
@@ -51,17 +56,17 @@ def pool() -> ThreadPoolExecutor | None:
 
 def shutdown() -> None:
     """Stop the pool: queued work is cancelled, running work finishes; the next pass starts anew."""
-    global _POOL
+    global _POOL, _WORKERS
     with _LOCK:
-        p, _POOL = _POOL, None
+        p, _POOL, _WORKERS = _POOL, None, None
     if p is not None:
         p.shutdown(wait=True, cancel_futures=True)
 
 
 def _forget_pool_in_child() -> None:
     """A forked child has none of its parent's threads: it starts its own pool when it needs one."""
-    global _POOL, _LOCK
-    _POOL, _LOCK = None, threading.Lock()
+    global _POOL, _LOCK, _WORKERS
+    _POOL, _LOCK, _WORKERS = None, threading.Lock(), None
 
 
 atexit.register(shutdown)

@@ -212,7 +212,7 @@ class PsdAccumulator:
         """Add a block of samples (complex for two-sided, real for one-sided)."""
         if self._finished:
             raise ValueError("the accumulator's result() was taken: it takes no more blocks")
-        x = np.asarray(block)
+        x = np.ascontiguousarray(block)  # (the segments are strided views of it)
         if x.ndim != 1:
             raise ValueError(f"block must be one-dimensional, got shape {x.shape}")
         if self.one_sided and np.iscomplexobj(x):
@@ -255,7 +255,10 @@ class PsdAccumulator:
             count = min(self._call_rows(), n_seg - first, self._batch_len - self._counts[-1])
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
-            view = np.lib.stride_tricks.sliding_window_view(x[start:stop], self.nperseg)[:: self.step]
+            # The segments as a strided view of x (what sliding_window_view makes, at 1/20 its cost).
+            view = np.ndarray((count, self.nperseg), x.dtype, buffer=x[start:stop],
+                              strides=(self.step * x.itemsize, x.itemsize))
+            view.flags.writeable = False
             self._make_room(count)
             self._add(len(self._batches) - 1, view,
                       zero_ends is not None and bool(zero_ends[first : first + count].any()))
@@ -551,9 +554,12 @@ class PsdAccumulator:
 
 def _to_bfloat16(x: np.ndarray) -> np.ndarray:
     """Non-negative float32 -> bfloat16 (the top 16 bits of a float32: its exponent and 8 bits of
-    significand, relative step 2**-8), rounded to nearest, ties to even; as uint16."""
+    significand, relative step 2**-8), rounded to nearest, ties to even (sums of bfloat16 values,
+    as in the pairwise merges, often fall on a tie: rounding those up would bias them); as a uint16
+    view."""
     u = np.ascontiguousarray(x, np.float32).view(np.uint32)
-    return ((u + (np.uint32(0x7FFF) + ((u >> 16) & np.uint32(1)))) >> 16).astype(np.uint16)
+    u = u + ((u >> 16) & np.uint32(1)) + np.uint32(0x7FFF)
+    return u.view(np.uint16)[..., 1::2] if np.little_endian else u.view(np.uint16)[..., 0::2]
 
 
 def _from_bfloat16(b: np.ndarray) -> np.ndarray:

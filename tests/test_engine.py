@@ -77,6 +77,7 @@ def test_worker_count_is_capped_on_many_cores(monkeypatch):
     # Each queued job holds a block or a scratch array: the cap keeps memory bounded (peak memory
     # flat in the capture length; 2 * 4 queued blocks of 4 MiB at most).
     monkeypatch.setattr(_engine, "cpu_threads", lambda: 64)
+    monkeypatch.setattr(_engine, "_WORKERS", None)  # counted afresh
     assert _engine.workers() == _engine.MAX_WORKERS == 4
 
 
