@@ -44,6 +44,8 @@ DEFAULT_SNR_BANDWIDTH_HZ = 2500.0
 #: A tone present for less than this fraction of the capture is called intermittent.
 INTERMITTENT_BELOW = 0.9
 
+#: Bins either side of a tone's peak over which a pure line's width is worked out.
+LINE_LOBE_BINS = 32
 
 @dataclass(frozen=True)
 class Tone:
@@ -245,7 +247,10 @@ def measure_tone(
     dof = (var_batches + var_floor) ** 2 / (var_batches**2 / (m - 1) + 1e-300) if var_batches > 0 else 1e6
     f0 = spectrum.frequency_hz[0] + f_bins * bw
     left, right = _half_power_points(spectrum.density - n0, k)
-    line = np.subtract(*_half_power_points(kernel(spectrum.window, np.arange(n) - f_bins), k)[::-1])
+    # A pure line's own width: the window's kernel over the bins of its main lobe (a cosine window's
+    # half-power points lie within two bins, a Kaiser's within a few).
+    near = np.arange(max(k - LINE_LOBE_BINS, 0), min(k + LINE_LOBE_BINS + 1, n))
+    line = np.subtract(*_half_power_points(kernel(spectrum.window, near - f_bins), k - near[0])[::-1])
     second = _second_line(spectrum, floor, k, (int(left), int(np.ceil(right))), near_hz=near_hz,
                           search_hz=search_hz)
     width = right - left

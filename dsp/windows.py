@@ -12,6 +12,7 @@ Audio Electroacoust. AU-15(2), 1967.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -94,9 +95,7 @@ def kernel(window: np.ndarray, offsets_bins: np.ndarray) -> np.ndarray:
     w = np.asarray(window, dtype=float)
     n_w = w.size
     d = np.atleast_1d(np.asarray(offsets_bins, dtype=float))
-    spec = np.fft.fft(w)
-    m = np.flatnonzero(np.abs(spec) > 1e-9 * np.abs(spec).max())
-    m = np.where(m > n_w // 2, m - n_w, m)  # signed bin numbers
+    m, coefficients = _dft_terms(w.tobytes())
     x = d[:, None] - m[None, :]
     phase = np.exp(-1j * np.pi * x * (n_w - 1) / n_w)
     den = np.sin(np.pi * x / n_w)
@@ -104,8 +103,22 @@ def kernel(window: np.ndarray, offsets_bins: np.ndarray) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = np.where(at_pole, n_w * np.sign(phase.real), np.sin(np.pi * x) / den)
     dirichlet = phase * ratio
-    value = dirichlet @ spec[np.where(m < 0, m + n_w, m)] / n_w
+    value = dirichlet @ coefficients / n_w
     return np.abs(value) ** 2 / (n_w * np.sum(w**2))
+
+
+@functools.lru_cache(maxsize=8)
+def _dft_terms(window_bytes: bytes) -> tuple[np.ndarray, np.ndarray]:
+    """A window's non-zero DFT terms: (signed bin numbers, values); kept for the few windows in use
+    (a reading evaluates its window's kernel several times)."""
+    w = np.frombuffer(window_bytes, dtype=float)
+    spec = np.fft.fft(w)
+    m = np.flatnonzero(np.abs(spec) > 1e-9 * np.abs(spec).max())
+    values = spec[m]
+    m = np.where(m > w.size // 2, m - w.size, m)
+    m.setflags(write=False)
+    values.setflags(write=False)
+    return m, values
 
 
 def welch_dof(n_segments: int, window: np.ndarray, step: int) -> float:
