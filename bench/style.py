@@ -5,7 +5,14 @@ from __future__ import annotations
 
 import math
 
-from rxbench.dsp.bands import band_of  # noqa: F401  (the one band lookup, beside the band table)
+
+def band_of(frequency_hz) -> str | None:
+    """:func:`rxbench.dsp.bands.band_of`, the one band lookup (imported on first use: the band
+    module's dataclasses are 5 ms of a start that names no band)."""
+    from rxbench.dsp.bands import band_of as lookup
+
+    return lookup(frequency_hz)
+
 
 #: The sign between a value and its uncertainty, everywhere.
 PM = "±"
