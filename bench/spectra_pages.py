@@ -3,9 +3,14 @@
 Each panel shows the averaged PSD, the noise floor (dashed), the tone marked just above its peak
 (inside the frame), the dongle's DC spike and the tone's I/Q image labelled, and the band edges the
 floor leaves out (anti-alias roll-off) shaded. The legend is one per page, above the panels, so it
-never covers a signal. One figure is drawn per page shape and reused for the next page of that
-shape (the artists are updated, not rebuilt), which with a per-page legend instead of one per panel
-makes the pages several times quicker to draw.
+never covers a signal. One figure of four rows of three panels is built and reused for every page
+of more than four panels (the artists are updated, not rebuilt; a page of fewer rows is saved
+cropped to them), which with a per-page legend instead of one per panel makes the pages several
+times quicker to draw.
+
+The work is split so that another process can do the drawing: :func:`page_data` (numpy only: the
+panels' traces, already reduced to the pixels a panel shows, and their labels), :func:`prepare`
+(matplotlib's figure built before there is anything to draw) and :func:`draw_pages`.
 """
 
 from __future__ import annotations
@@ -19,7 +24,12 @@ from rxbench.dsp.units import db_from_power
 from rxbench.style import fmt_hz
 
 PANELS_PER_PAGE = 12
+#: The figure every page of more than four panels is drawn on: rows, columns.
+FULL_PAGE = (4, 3)
 DPI = 100
+#: zlib level of the PNG files (the report's plots too): 3 encodes a page in 57 ms against 94 ms at
+#: Pillow's default 6, for files within 15 % of the size (DEVELOPERS.md, Speed).
+PNG_COMPRESS_LEVEL = 3
 C_TRACE = "#0072B2"
 C_TONE = "#009E73"
 C_MARK = "#555555"
@@ -80,6 +90,32 @@ def _panel_data(entry, reading) -> dict:
     return d
 
 
+#: Page geometry, inches: a row of panels, the margin above the panels (title and legend) and below.
+ROW_IN = 2.6
+TOP_IN = 1.05
+BOTTOM_IN = 0.5
+#: Ticks made per axis when a figure is built (MaxNLocator(5) gives up to 7 on these axes).
+TICKS_MADE = 8
+
+
+def _height_in(rows: int) -> float:
+    return ROW_IN * rows + 1.1
+
+
+def _margins(cols: int) -> tuple[float, float, float]:
+    """left, right (fractions of the width) and wspace of a page of ``cols`` columns."""
+    return (0.07 if cols > 1 else 0.13), 0.98, 0.12
+
+
+def panel_columns(cols: int) -> int:
+    """Pixel columns of one panel of a page of ``cols`` columns (the traces are decimated to
+    these): the width matplotlib's subplot grid gives each of ``cols`` cells between the margins,
+    ``wspace`` being the gap as a fraction of a cell."""
+    left, right, wspace = _margins(cols)
+    cell = (right - left) / (cols + wspace * (cols - 1))
+    return int(round(cell * 5.0 * cols * DPI))
+
+
 class _Page:
     """One figure of ``rows`` x ``cols`` panels, reused for every page of that shape."""
 
@@ -90,15 +126,14 @@ class _Page:
         from matplotlib.patches import Patch
         from matplotlib.ticker import MaxNLocator
 
-        height = 2.6 * rows + 1.1
+        height = _height_in(rows)
         self.rows, self.cols = rows, cols
         self.fig = Figure(figsize=(5.0 * cols, height), dpi=DPI)
         FigureCanvasAgg(self.fig)
-        self.fig.subplots_adjust(left=0.07 if cols > 1 else 0.13, right=0.98, bottom=0.5 / height,
-                                 top=1.0 - 1.05 / height, hspace=0.5, wspace=0.12)
+        left, right, wspace = _margins(cols)
+        self.fig.subplots_adjust(left=left, right=right, bottom=BOTTOM_IN / height,
+                                 top=1.0 - TOP_IN / height, hspace=0.5, wspace=wspace)
         self.axes = self.fig.subplots(rows, cols, squeeze=False, sharey=True).ravel()
-        #: Pixel columns of a panel: the traces are decimated to these.
-        self.columns = int(round(self.axes[0].get_position().width * self.fig.get_figwidth() * DPI))
         self.panels = []
         for ax in self.axes:
             p = {
@@ -114,6 +149,10 @@ class _Page:
             ax.xaxis.set_major_locator(MaxNLocator(5))
             ax.yaxis.set_major_locator(MaxNLocator(5))
             ax.grid(True, lw=0.3, alpha=0.6)
+            # The ticks' artists, made now rather than at the first page's drawing (where they cost
+            # a third of it): a forked helper builds its figure before the analysis ends.
+            ax.xaxis.get_major_ticks(TICKS_MADE)
+            ax.yaxis.get_major_ticks(TICKS_MADE)
             self.panels.append(p)
         for i, ax in enumerate(self.axes):
             if i % cols:
@@ -130,6 +169,8 @@ class _Page:
         self.title = self.fig.suptitle("", fontsize=11, y=1.0 - 0.08 / height)
 
     def draw(self, items: list[dict], page: int, path: Path) -> None:
+        """Draw ``items`` (up to rows x cols panels) as page ``page`` into ``path``; a page that
+        fills fewer rows is saved cropped below its last row."""
         lows = [d["floor_db"] for d in items]
         highs = [max(d["peak_db"], d["floor_db"] + 10) for d in items]
         bottom, top = min(lows) - 12.0, max(highs) + 14.0  # room above the peak for the marker
@@ -145,7 +186,7 @@ class _Page:
                 continue
             half = d["half_khz"]
             ax.set_xlim(-half if d["complex"] else 0.0, half)
-            p["trace"].set_data(*decimate(d["f_khz"], d["dens_db"], self.columns))
+            p["trace"].set_data(d["f_khz"], d["dens_db"])
             p["floor"].set_ydata([d["floor_db"], d["floor_db"]])
             if d["tone"] is not None:
                 x, y, _ = d["tone"]
@@ -166,7 +207,15 @@ class _Page:
             ax.tick_params(labelbottom=labelled)
             ax.set_xlabel("offset from the tuned frequency (kHz)" if labelled else "", fontsize=8)
         self.title.set_text(f"Capture spectra (page {page}), one level scale for the page")
-        self.fig.savefig(path, dpi=DPI)
+        rows = math.ceil(len(items) / self.cols)
+        crop = None
+        if rows < self.rows:  # below the last row's panels: its offset scale, then the usual margin
+            from matplotlib.transforms import Bbox
+
+            width, height = self.fig.get_size_inches()
+            bottom = self.axes[(rows - 1) * self.cols].get_position().y0 * height - BOTTOM_IN
+            crop = Bbox.from_extents(0.0, bottom, width, height)
+        self.fig.savefig(path, dpi=DPI, bbox_inches=crop, pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
 
 
 def _set_span(patch, x0: float, x1: float) -> None:
@@ -180,18 +229,53 @@ def _set_span(patch, x0: float, x1: float) -> None:
         patch.set_xy(xy)
 
 
-def plot_spectra(analysis, folder: Path) -> list[str]:
-    """Pages of capture spectra (``spectra-NN.png``); returns the file names written."""
+def _shape(n: int) -> tuple[int, int]:
+    """The figure a page of ``n`` panels is drawn on: the full page for more than four panels
+    (cropped to the rows they fill), else one or two columns of its own."""
+    if n > 4:
+        return FULL_PAGE
+    cols = min(n, 2)
+    return math.ceil(n / cols), cols
+
+
+def page_data(analysis) -> list[list[dict]]:
+    """The spectra pages of ``analysis``: per page, its panels' data (numpy and text only; nothing
+    of matplotlib), the traces decimated to the pixel columns of the panel they are drawn in."""
     items = [(e, analysis.readings[e]) for e in analysis.session.entries if e in analysis.readings]
+    pages = []
+    for start in range(0, len(items), PANELS_PER_PAGE):
+        chunk = items[start:start + PANELS_PER_PAGE]
+        columns = panel_columns(_shape(len(chunk))[1])
+        panels = []
+        for e, r in chunk:
+            d = _panel_data(e, r)
+            d["f_khz"], d["dens_db"] = decimate(d["f_khz"], d["dens_db"], columns)
+            panels.append(d)
+        pages.append(panels)
+    return pages
+
+
+def prepare() -> dict:
+    """The full page's figure, built ahead (about a tenth of the pages' drawing): pass it to
+    :func:`draw_pages`. Imports matplotlib."""
+    return {FULL_PAGE: _Page(*FULL_PAGE)}
+
+
+def draw_pages(pages: list[list[dict]], folder: Path, figures: dict | None = None) -> list[str]:
+    """Draw :func:`page_data`'s pages as ``spectra-NN.png`` in ``folder``; returns the file names.
+    ``figures``: from :func:`prepare`, or None (built here as needed)."""
+    figures = {} if figures is None else figures
     names: list[str] = []
-    pages: dict[tuple[int, int], _Page] = {}
-    for page, start in enumerate(range(0, len(items), PANELS_PER_PAGE), start=1):
-        chunk = [_panel_data(e, r) for e, r in items[start:start + PANELS_PER_PAGE]]
-        cols = 3 if len(chunk) > 4 else min(len(chunk), 2)
-        rows = math.ceil(len(chunk) / cols)
-        if (rows, cols) not in pages:
-            pages[(rows, cols)] = _Page(rows, cols)
+    for page, panels in enumerate(pages, start=1):
+        shape = _shape(len(panels))
+        if shape not in figures:
+            figures[shape] = _Page(*shape)
         name = f"spectra-{page:02d}.png"
-        pages[(rows, cols)].draw(chunk, page, Path(folder) / name)
+        figures[shape].draw(panels, page, Path(folder) / name)
         names.append(name)
     return names
+
+
+def plot_spectra(analysis, folder: Path) -> list[str]:
+    """Pages of capture spectra (``spectra-NN.png``); returns the file names written."""
+    return draw_pages(page_data(analysis), folder)

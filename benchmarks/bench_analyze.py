@@ -40,7 +40,7 @@ CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECOD
 
 #: ``rxbench analyze`` with the spectra pages drawn in a forked child, or not, whatever the load
 #: (by default the report forks only when the load average leaves a core free).
-FORCED = ("import rxbench.report.writer as w; w._core_free = lambda: {}; "
+FORCED = ("import rxbench.report.helper as h; h.core_free = lambda: {}; "
           "from rxbench.cli import run_console; run_console()")
 
 

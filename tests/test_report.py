@@ -105,7 +105,8 @@ def test_results_csv_has_one_number_per_row(analysis, tmp_path):
 
 
 def test_a_report_never_overwrites_an_earlier_one(analysis, session_dir, monkeypatch):
-    monkeypatch.setattr(rep.writer, "plot_spectra", lambda analysis, folder: [])  # file handling only: skip drawing
+    # file handling only: skip drawing the spectra pages
+    monkeypatch.setattr(rep.writer.spectra_pages, "draw_pages", lambda pages, folder, figures=None: [])
     first = rep.next_report_dir(session_dir)
     assert first.name.startswith("report")
     (session_dir / "report").mkdir(exist_ok=True)
@@ -121,7 +122,11 @@ def test_a_report_never_overwrites_an_earlier_one(analysis, session_dir, monkeyp
     assert (a / "report.md").is_file() and (b / "report.md").is_file()
 
 
-def test_a_failed_report_leaves_nothing_half_written(analysis, session_dir, monkeypatch):
+@pytest.mark.parametrize("helper", [False, True], ids=["one process", "pages in a forked child"])
+def test_a_failed_report_leaves_nothing_half_written(analysis, session_dir, monkeypatch, helper):
+    from rxbench.report import helper as helper_module
+
+    monkeypatch.setattr(helper_module, "core_free", lambda: helper)
     before = sorted(p.name for p in session_dir.iterdir())
 
     def boom(*args, **kwargs):

@@ -9,6 +9,7 @@ from rxbench.options import add_drift_option, add_noise_band_option
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.output import Progress, add_json_option, emit
 from rxbench.report import summary_lines, write_report
+from rxbench.report.helper import start_helper
 from rxbench.session import analyze_session, open_session
 
 
@@ -32,9 +33,15 @@ def add_parser(sub) -> None:
 def analyze_and_report(folder, *, overwrite: bool = False, extra_markdown=None, extra_json=None, progress=None,
                        drift_ppm: float = DEFAULT_PPM, noise_band_hz=None):
     """Open, analyse and report a session; returns (analysis, report folder)."""
-    session = open_session(folder)
-    analysis = analyze_session(session, progress=progress, drift_ppm=drift_ppm, noise_band_hz=noise_band_hz)
-    report_dir = write_report(analysis, overwrite=overwrite, extra_markdown=extra_markdown, extra_json=extra_json)
+    helper = start_helper()  # if a core is free: matplotlib loads there while the captures are analysed
+    try:
+        session = open_session(folder)
+        analysis = analyze_session(session, progress=progress, drift_ppm=drift_ppm, noise_band_hz=noise_band_hz)
+        report_dir = write_report(analysis, overwrite=overwrite, extra_markdown=extra_markdown,
+                                  extra_json=extra_json, helper=helper)
+    finally:
+        if helper is not None:
+            helper.close()
     return analysis, report_dir
 
 
