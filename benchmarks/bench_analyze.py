@@ -13,13 +13,16 @@ rounds:
   a forked child beside the other figures (by default the report forks only when the load average
   leaves a core free), to show what the second core gains;
 - ``--baseline PYTHON``: ``rxbench analyze`` run by another interpreter (a venv with another
-  checkout installed, e.g. main before the change), on the same session;
+  checkout installed, e.g. main before the change), on the same session, as it comes and with its
+  spectra pages always in a forked child;
 - ``rxbench demo`` (capture, analysis and report), to check its wall time stays within 2x of its
   CPU time.
 
 CPU time is user + system of the process and the children it waited for. It prints the medians and
-the per-round ratios' median and range. The machine may be shared: only ratios taken in the same
-rounds mean much. Target (DEVELOPERS.md): ``analyze`` of the demo session under 4 s of wall time on
+the per-round ratios' median and range, and the load each run met: the CPU the rest of the
+machine used meanwhile (/proc/stat), in cores (1.0 on two cores: the second one was taken). The
+machine may be shared: only ratios taken in the same rounds mean much, and a forked child only
+gains where the other load leaves a core free. ``--rounds-csv FILE`` writes every run. Target (DEVELOPERS.md): ``analyze`` of the demo session under 4 s of wall time on
 two cores.
 """
 
@@ -39,29 +42,49 @@ from pathlib import Path
 CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 #: ``rxbench analyze`` with the spectra pages drawn in a forked child, or not, whatever the load
-#: (by default the report forks only when the load average leaves a core free).
-FORCED = ("import rxbench.report.helper as h; h.core_free = lambda: {}; "
+#: (by default the report forks only when the load average leaves a core free). The switch is
+#: ``rxbench.report.helper.core_free``, before it ``rxbench.report.writer._core_free`` (a baseline).
+FORCED = ("try:\n import rxbench.report.helper as h; h.core_free = lambda: {0}\n"
+          "except ImportError:\n import rxbench.report.writer as w; w._core_free = lambda: {0}\n"
           "from rxbench.cli import run_console; run_console()")
 
 
-def run_timed(cmd: list[str]) -> tuple[float, float]:
-    """Wall time and CPU time (user + system, with waited-for children) of one child process, s."""
+def busy_cpu_s() -> float:
+    """CPU time the whole machine has spent busy since boot (user, nice, system, irq, softirq), s;
+    NaN where /proc/stat is not there (Linux only)."""
+    try:
+        with open("/proc/stat", encoding="ascii") as f:
+            fields = f.readline().split()
+    except OSError:
+        return float("nan")
+    user, nice, system, _idle, _iowait, irq, softirq = (int(x) for x in fields[1:8])
+    return (user + nice + system + irq + softirq) / os.sysconf("SC_CLK_TCK")
+
+
+def run_timed(cmd: list[str]) -> tuple[float, float, float]:
+    """Wall time and CPU time (user + system, with waited-for children) of one child process, and
+    the CPU time the rest of the machine used meanwhile (other processes: the load it met), s."""
+    busy0 = busy_cpu_s()
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=CHILD_ENV)
     _, status, usage = os.wait4(proc.pid, 0)
     wall = time.perf_counter() - t0
+    busy = busy_cpu_s() - busy0
     err = proc.stderr.read().decode()
     proc.stderr.close()
     if os.waitstatus_to_exitcode(status) != 0:
         raise SystemExit(f"{' '.join(cmd)} failed: {err[-500:]}")
-    return wall, usage.ru_utime + usage.ru_stime
+    cpu = usage.ru_utime + usage.ru_stime
+    return wall, cpu, max(busy - cpu, 0.0)
 
 
 def _summary(name: str, results: list, ref: list | None) -> str:
     wall = statistics.median(r[0] for r in results)
     cpu = statistics.median(r[1] for r in results)
+    other = [r[2] / r[0] for r in results]  # cores the other processes kept busy, on average
     line = (f"  {name:34s} wall {wall:6.2f} s ({min(r[0] for r in results):.2f}-{max(r[0] for r in results):.2f})"
-            f"  CPU {cpu:6.2f} s  wall/CPU {statistics.median(r[0] / r[1] for r in results):.2f}")
+            f"  CPU {cpu:6.2f} s  wall/CPU {statistics.median(r[0] / r[1] for r in results):.2f}"
+            f"  other load {statistics.median(other):.2f} cores ({min(other):.2f}-{max(other):.2f})")
     if ref is not None and ref is not results:
         wr = [a[0] / b[0] for a, b in zip(ref, results)]
         cr = [a[1] / b[1] for a, b in zip(ref, results)]
@@ -76,6 +99,7 @@ def main() -> int:
     ap.add_argument("--baseline", help="python of another rxbench install to compare with")
     ap.add_argument("--no-demo", action="store_true", help="leave out the timing of rxbench demo")
     ap.add_argument("--workdir", type=Path)
+    ap.add_argument("--rounds-csv", type=Path, help="write every run (round, name, wall, CPU, other load) here")
     args = ap.parse_args()
     work = args.workdir or Path(tempfile.mkdtemp(prefix="rxbench-analyze-"))
     work.mkdir(parents=True, exist_ok=True)
@@ -89,6 +113,7 @@ def main() -> int:
             "analyze, spectra in a forked child": [sys.executable, "-c", FORCED.format(True), *analyze]}
     if args.baseline:
         cmds["baseline analyze"] = [args.baseline, "-m", "rxbench", *analyze]
+        cmds["baseline, spectra in a forked child"] = [args.baseline, "-c", FORCED.format(True), *analyze]
     demo_dir = work / "demo-runs"
     for cmd in cmds.values():  # one untimed run each: page cache, bytecode, font cache
         run_timed(cmd)
@@ -100,6 +125,12 @@ def main() -> int:
         if not args.no_demo:
             shutil.rmtree(demo_dir, ignore_errors=True)
             demo_runs.append(run_timed([sys.executable, "-m", "rxbench", "demo", "--out", str(demo_dir), "--json"]))
+    if args.rounds_csv:
+        with open(args.rounds_csv, "w", encoding="utf-8") as f:
+            f.write("round,name,wall_s,cpu_s,other_load_cores\n")
+            for name, results in runs.items():
+                for i, (wall, cpu, other) in enumerate(results, start=1):
+                    f.write(f"{i},{name},{wall:.3f},{cpu:.3f},{other / wall:.2f}\n")
     print(f"\nrxbench analyze of the demo session ({args.rounds} interleaved rounds; median (range))")
     ours = runs["rxbench analyze"]
     for name, results in runs.items():
