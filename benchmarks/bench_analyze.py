@@ -29,6 +29,7 @@ two cores.
 from __future__ import annotations
 
 import argparse
+import csv
 import os
 import shutil
 import statistics
@@ -126,11 +127,12 @@ def main() -> int:
             shutil.rmtree(demo_dir, ignore_errors=True)
             demo_runs.append(run_timed([sys.executable, "-m", "rxbench", "demo", "--out", str(demo_dir), "--json"]))
     if args.rounds_csv:
-        with open(args.rounds_csv, "w", encoding="utf-8") as f:
-            f.write("round,name,wall_s,cpu_s,other_load_cores\n")
+        with open(args.rounds_csv, "w", newline="", encoding="utf-8") as f:
+            out = csv.writer(f)
+            out.writerow(["round", "name", "wall_s", "cpu_s", "other_load_cores"])
             for name, results in runs.items():
                 for i, (wall, cpu, other) in enumerate(results, start=1):
-                    f.write(f"{i},{name},{wall:.3f},{cpu:.3f},{other / wall:.2f}\n")
+                    out.writerow([i, name, f"{wall:.3f}", f"{cpu:.3f}", f"{other / wall:.2f}"])
     print(f"\nrxbench analyze of the demo session ({args.rounds} interleaved rounds; median (range))")
     ours = runs["rxbench analyze"]
     for name, results in runs.items():
