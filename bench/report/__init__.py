@@ -15,7 +15,8 @@ Plots are drawn with matplotlib's Agg canvas (no display, no global backend swit
   ITU-R P.372 environments.
 
 The package, by concept: :mod:`.writer` (where the report goes, written whole or not at all),
-:mod:`.text` (number formatting and the summary lines), :mod:`.document` (``report.md``),
+:mod:`.helper` (the forked child that draws the spectra pages beside the parent, when a core is
+free), :mod:`.text` (number formatting and the summary lines), :mod:`.document` (``report.md``),
 :mod:`.tables` (``results.csv``) and :mod:`.plots` (the PNG figures).
 """
 
