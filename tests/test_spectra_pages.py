@@ -9,6 +9,7 @@ plain loop over the columns, written apart from the vectorised code.
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 
 import numpy as np
@@ -56,6 +57,10 @@ def _spectra(folder):
     return sorted(p.name for p in folder.glob("spectra-*.png"))
 
 
+needs_fork = pytest.mark.skipif("fork" not in multiprocessing.get_all_start_methods(),
+                                reason="the helper is a forked child: no fork, no helper (one process draws)")
+
+
 @pytest.fixture(scope="module")
 def fourteen(tmp_path_factory):
     """A session of 14 tone captures: two pages (12 panels a page), the second one cropped."""
@@ -69,6 +74,7 @@ def fourteen(tmp_path_factory):
     return analyze_session(open_session(d))
 
 
+@needs_fork
 def test_spectra_drawn_in_a_forked_child_are_the_same_pages(fourteen, monkeypatch):
     a = fourteen
     monkeypatch.setattr(helper_module, "core_free", lambda: False)
@@ -101,6 +107,7 @@ def test_spectra_drawn_in_a_forked_child_are_the_same_pages(fourteen, monkeypatc
         assert (again / name).read_bytes() == (serial / name).read_bytes()
 
 
+@needs_fork
 def test_a_helper_never_given_pages_ends_when_closed(monkeypatch):
     """The analysis failed after the helper started: closing it ends the child (no process left)."""
     monkeypatch.setattr(helper_module, "core_free", lambda: True)
