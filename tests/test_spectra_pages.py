@@ -149,3 +149,18 @@ def test_a_page_of_fewer_rows_is_cropped_below_its_offset_scale(fourteen, tmp_pa
     assert bottom_in <= drawn.y0, "the offset scale under the last row is inside the page"
     assert drawn.y0 - bottom_in < 0.6, "no more than the usual margin below it"
     assert np.all(cropped[-3:, :, :3] == 1.0), "the crop's last rows are margin (white)"
+
+
+def test_the_run_queue_is_read_from_proc_loadavg():
+    """/proc/loadavg's fourth field is "runnable/existing" scheduling entities (proc(5), the Linux
+    man page; the sample line is of its form, from memory)."""
+    assert helper_module.runnable_tasks("0.20 0.18 0.12 1/80 11206\n") == 1
+    assert helper_module.runnable_tasks("2.49 1.96 1.37 3/89 25654") == 3
+
+
+@pytest.mark.parametrize("others, cores, free", [(0, 2, True), (1, 2, False), (3, 2, False), (2, 4, True),
+                                                 (3, 4, False), (0, 1, False)])
+def test_a_core_is_free_when_fewer_others_run_than_cores_less_one(monkeypatch, others, cores, free):
+    monkeypatch.setattr(helper_module, "_others_running", lambda: others)
+    monkeypatch.setattr("rxbench._engine.cpu_threads", lambda: cores)
+    assert helper_module.core_free() is free

@@ -16,23 +16,60 @@ import os
 import signal
 import sys
 import threading
+import time
 from pathlib import Path
 
 from rxbench import spectra_pages
 
 
+#: Looks at the run queue, and the time between them: a task that runs for a moment (a kernel
+#: worker, a shell command) is not a load, so the least of the counts seen is taken.
+LOOKS = 3
+LOOK_GAP_S = 0.002
+
+
+def runnable_tasks(loadavg_text: str) -> int:
+    """The tasks (processes and threads) running or ready to run, from the text of /proc/loadavg:
+    the first number of its fourth field ("1/80"; proc(5))."""
+    return int(loadavg_text.split()[3].split("/")[0])
+
+
+def _others_running() -> int | None:
+    """Tasks running or ready to run now besides this one, the least of :data:`LOOKS` looks
+    (Linux); None where /proc/loadavg cannot be read."""
+    seen = []
+    try:
+        for i in range(LOOKS):
+            if i:
+                time.sleep(LOOK_GAP_S)
+            with open("/proc/loadavg", encoding="ascii") as f:
+                seen.append(runnable_tasks(f.read()))
+    except (OSError, ValueError, IndexError):
+        return None
+    return min(seen) - 1
+
+
 def core_free() -> bool:
-    """Whether a second core is likely free: two or more cores, and a load average (last minute)
-    below one less than their number. On a busy machine a second process only adds its start-up
-    and competes with the first (measured: 1.1x the wall time; DEVELOPERS.md, Speed)."""
+    """Whether a second core is likely free: two or more cores, and fewer other tasks running or
+    ready to run right now than one less than their number (Linux's run queue); elsewhere, a load
+    average (last minute) below that. The run queue, not the load average, where there is one:
+    the average still counts processes that ended in the last minute (an earlier rxbench run), so
+    back-to-back runs on an idle two-core machine never forked by it. On a busy machine a second
+    process only adds its start-up and competes with the first (measured: 1.08x the wall time;
+    DEVELOPERS.md, Speed)."""
     from rxbench._engine import cpu_threads
 
     cores = cpu_threads()
+    if cores < 2:
+        return False
+    others = _others_running()
+    if others is not None:
+        return others < cores - 1
     try:
         load = os.getloadavg()[0]
     except (AttributeError, OSError):
         load = 0.0
-    return cores >= 2 and load < cores - 1
+    return load < cores - 1
 
 
 def _child(conn, parent_end) -> None:
