@@ -82,19 +82,24 @@ def test_kernel_sums_to_one_over_all_bins():
         assert kernel(w, np.arange(256) - delta).sum() == pytest.approx(1.0, rel=1e-12)
 
 
+def _fed_in_pieces(x, cuts, **kwargs):
+    """The PSD of ``x`` fed in blocks of the lengths ``cuts`` (and the rest)."""
+    acc = PsdAccumulator(1e4, **kwargs)
+    i = 0
+    for c in cuts:
+        acc.update(x[i : i + c])
+        i += c
+    acc.update(x[i:])
+    return acc.result()
+
+
 @settings(max_examples=25, deadline=None)
 @given(st.lists(st.integers(min_value=1, max_value=3000), min_size=1, max_size=12),
        st.sampled_from([0.0, 0.3, 0.5, 0.75]))
 def test_result_does_not_depend_on_block_boundaries(cuts, overlap):
     x = np.random.default_rng(7).standard_normal(12_000).astype(np.float32).view(np.complex64)
     whole = psd(x, 1e4, nperseg=256, overlap=overlap)
-    acc = PsdAccumulator(1e4, nperseg=256, overlap=overlap)
-    i = 0
-    for c in cuts:
-        acc.update(x[i : i + c])
-        i += c
-    acc.update(x[i:])
-    part = acc.result()
+    part = _fed_in_pieces(x, cuts, nperseg=256, overlap=overlap)
     assert part.n_segments == whole.n_segments
     assert np.allclose(part.density, whole.density, rtol=1e-5)
     assert np.array_equal(part.batch_counts, whole.batch_counts)
@@ -112,14 +117,9 @@ def test_track_does_not_depend_on_block_boundaries(cuts, known_length):
     x = np.random.default_rng(8).standard_normal(2 * 40_000).astype(np.float32).view(np.complex64)
     with pytest.MonkeyPatch.context() as mp:
         mp.setattr(spectrum, "MAX_SLOTS", 16)
-        whole = psd(x, 1e4, nperseg=256, expected_samples=x.size if known_length else None)
-        acc = PsdAccumulator(1e4, nperseg=256, expected_samples=x.size if known_length else None)
-        i = 0
-        for c in cuts:
-            acc.update(x[i : i + c])
-            i += c
-        acc.update(x[i:])
-        part = acc.result()
+        expected = x.size if known_length else None
+        whole = psd(x, 1e4, nperseg=256, expected_samples=expected)
+        part = _fed_in_pieces(x, cuts, nperseg=256, expected_samples=expected)
     assert part.n_segments == whole.n_segments and part.slot_s == whole.slot_s > 256 / 1e4
     assert np.allclose(part.density, whole.density, rtol=1e-5)
     assert np.array_equal(part.track_counts, whole.track_counts)
