@@ -44,6 +44,9 @@ _SEGMENTS_PER_CALL = 64
 #: sub-bands, float32: 8 MiB at most, whatever the capture's length.
 MAX_SLOTS = 16384
 TRACK_SUBBANDS = 128
+#: Calls of fewer segments are computed by the thread that makes them (not worth a hand-off);
+#: larger ones go to a worker, the joins of long captures' blocks (a slot's worth) among them.
+_INLINE_BELOW = 4
 #: From this many segments per slot (long captures) the spectra are summed per slot first, in one
 #: read, and the column and sub-band sums taken from those; below it, each is its own read.
 _GROUPED_SLOTS = 3
@@ -278,32 +281,29 @@ class PsdAccumulator:
         the batch is too small to be worth the hand-off; ``zero_ends``: some segment begins or ends
         with an exactly-zero sample (else none can lie in a run of zeros)."""
 
+        ends_slot = (self.n_segments + len(segments)) % self._slot_len == 0
+
         def add(sums, batch=batch):
-            total, first_slot, slot_sums, slot_dead = sums
+            total, first_slot, slot_sums, rounded, slot_dead = sums
             self._batches[batch] += total
-            self._store_slots(first_slot, slot_sums)
+            self._store_slots(first_slot, slot_sums, rounded, ends_slot)
             if slot_dead is not None:
                 self._dead[batch] += int(slot_dead.sum())
                 self._slot_dead[first_slot : first_slot + len(slot_dead)] += slot_dead
 
         self._work.submit(add, self._periodogram_sum, segments, self.n_segments, self._slot_len, zero_ends,
-                          inline=len(segments) < _SEGMENTS_PER_CALL // 2)
+                          inline=len(segments) < _INLINE_BELOW)
 
-    def _store_slots(self, first_slot: int, slot_sums: np.ndarray) -> None:
-        """Add one call's slot sums (float32, in order) to the track. Every slot but the last the
-        call touched is complete (the calls' results arrive in order) and is stored, rounded once to
-        bfloat16; the last is held in float32 until the next call completes it (or result())."""
+    def _store_slots(self, first_slot: int, slot_sums: np.ndarray, rounded: np.ndarray, ends_slot: bool) -> None:
+        """Store one call's slot sums in the track (the calls' results arrive in order): ``rounded``,
+        their bfloat16 values (rounded by the worker), as they are; the slot a call begins in the
+        middle of gets the sum of its parts (held in float32 meanwhile), rounded once here. A call
+        that ends in the middle of a slot leaves that slot's float32 part held for the next."""
+        self._slots[first_slot : first_slot + len(rounded)] = rounded
         if self._open is not None and self._open[0] == first_slot:
             slot_sums[0] += self._open[1]
-        elif self._open is not None:  # the held slot was complete
-            self._slots[self._open[0]] = _to_bfloat16(self._open[1])
-        self._slots[first_slot : first_slot + len(slot_sums) - 1] = _to_bfloat16(slot_sums[:-1])
-        self._open = (first_slot + len(slot_sums) - 1, slot_sums[-1])
-
-    def _flush_open_slot(self) -> None:
-        if self._open is not None:
-            self._slots[self._open[0]] = _to_bfloat16(self._open[1])
-            self._open = None
+            self._slots[first_slot] = _to_bfloat16(slot_sums[0])
+        self._open = None if ends_slot else (first_slot + len(slot_sums) - 1, slot_sums[-1])
 
     def _make_room(self, count: int) -> None:
         """Make sure the time track has slots for the next ``count`` segments: grow it, or merge its
@@ -311,7 +311,6 @@ class PsdAccumulator:
         last = (self.n_segments + count - 1) // self._slot_len
         while last >= MAX_SLOTS:
             self._work.drain()  # the slots about to merge must be complete
-            self._flush_open_slot()
             used = -(-self.n_segments // self._slot_len)
             slots = self._slots[:used + used % 2]
             if len(slots) < used + used % 2:
@@ -390,7 +389,7 @@ class PsdAccumulator:
         if dead is not None and dead.any():
             starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
             slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
-        return columns, first_segment // slot_len, slot_sums, slot_dead
+        return columns, first_segment // slot_len, slot_sums, _to_bfloat16(slot_sums), slot_dead
 
     @staticmethod
     def _slot_bins(rails: np.ndarray, head: int, slot_len: int, scratch: np.ndarray) -> np.ndarray:
@@ -435,7 +434,7 @@ class PsdAccumulator:
         buf = buffers.get(key)
         if buf is None or len(buf) < rows:
             # As large as the largest call seen: a worker's holds a full batch (2 MiB at 4096
-            # points), the main thread's only the few segments across block joins it computes itself.
+            # points), the main thread's only the calls of a few segments it computes itself.
             buf = buffers[key] = np.empty((rows if rows < _SEGMENTS_PER_CALL // 2 else max(rows, _SEGMENTS_PER_CALL),
                                            columns), dtype)
         return buf
@@ -535,7 +534,6 @@ class PsdAccumulator:
         scale = (2.0 if self.one_sided else 1.0) / (fs * np.sum(self.window**2))
         # The slots become the track, float32 (their storage freed; for complex input their
         # sub-bands put in the PSD's order, a few thousand rows at a time).
-        self._flush_open_slot()
         slots = self._slots[:n_slots]
         track = np.empty(slots.shape, np.float32)
         half = n_sub // 2 if not self.one_sided else 0
