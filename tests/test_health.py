@@ -213,15 +213,17 @@ def test_session_entries_carry_the_clip_count_and_the_peak(tmp_path, rng):
 
 @pytest.mark.parametrize("n", [5, 1024, 1 << 19, (1 << 19) + 7])
 @pytest.mark.parametrize("complex_", [True, False])
-def test_block_sum_matches_numpy_in_double_precision(rng, n, complex_):
-    # Reference: numpy's sum of the samples converted to float64 (the reference library). The row
-    # sums are single precision: within 1e-8 of the sum of magnitudes, far inside a DC reading's
-    # own scatter (which is of order 1/sqrt(n) of it).
-    from rxbench.dsp.health import _sum
+def test_block_sums_match_numpy_in_double_precision(rng, n, complex_):
+    # Reference: numpy's sums of the samples and of |x|**2 converted to float64 (the reference
+    # library). The row sums are single precision: within 1e-8 of the sum of magnitudes, and 1e-6
+    # of the power (2e-8 seen), far inside a DC reading's own scatter (which is of order 1/sqrt(n) of it).
+    from rxbench.dsp.health import _sums
 
     x = rng.standard_normal(n) + 0.01
     if complex_:
         x = x + 1j * rng.standard_normal(n)
     x = x.astype(np.complex64 if complex_ else np.float32)
-    reference = x.astype(np.complex128 if complex_ else np.float64).sum()
-    assert abs(_sum(x) - reference) <= 1e-8 * np.abs(x).astype(float).sum()
+    wide = x.astype(np.complex128 if complex_ else np.float64)
+    total, power = _sums(x)
+    assert abs(total - wide.sum()) <= 1e-8 * np.abs(wide).sum()
+    assert power == pytest.approx(np.sum(np.abs(wide) ** 2), rel=1e-6)  # (BLAS's vdot: 2e-6)
