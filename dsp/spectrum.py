@@ -389,7 +389,7 @@ class PsdAccumulator:
         if dead is not None and dead.any():
             starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
             slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
-        return columns, first_segment // slot_len, slot_sums, _to_bfloat16(slot_sums), slot_dead
+        return columns, first_segment // slot_len, slot_sums, _to_bfloat16(slot_sums, ties_to_even=False), slot_dead
 
     @staticmethod
     def _slot_bins(rails: np.ndarray, head: int, slot_len: int, scratch: np.ndarray) -> np.ndarray:
@@ -550,13 +550,17 @@ class PsdAccumulator:
         return track, slot_counts, np.stack([edges[:-1], edges[1:]], axis=1)
 
 
-def _to_bfloat16(x: np.ndarray) -> np.ndarray:
+def _to_bfloat16(x: np.ndarray, ties_to_even: bool = True) -> np.ndarray:
     """Non-negative float32 -> bfloat16 (the top 16 bits of a float32: its exponent and 8 bits of
-    significand, relative step 2**-8), rounded to nearest, ties to even (sums of bfloat16 values,
-    as in the pairwise merges, often fall on a tie: rounding those up would bias them); as a uint16
-    view."""
+    significand, relative step 2**-8), rounded to nearest; as a uint16 view. Ties go to even: sums
+    of bfloat16 values, as in the pairwise merges, often fall on one, and rounding those up would
+    bias them. ``ties_to_even=False`` rounds them up, in one operation instead of four: for sums
+    of many products, where a tie (the low 16 bits exactly 0x8000) has a chance of 2**-16."""
     u = np.ascontiguousarray(x, np.float32).view(np.uint32)
-    u = u + ((u >> 16) & np.uint32(1)) + np.uint32(0x7FFF)
+    if ties_to_even:
+        u = u + ((u >> 16) & np.uint32(1)) + np.uint32(0x7FFF)
+    else:
+        u = u + np.uint32(0x8000)
     return u.view(np.uint16)[..., 1::2] if np.little_endian else u.view(np.uint16)[..., 0::2]
 
 
