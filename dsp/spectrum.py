@@ -3,7 +3,8 @@ band-integration helper.
 
 Every reading rxbench makes (tone power, noise density, SNR, the noise-source methods) stands on the
 averaged power spectral density this module produces. The windows and their figures live in
-:mod:`dsp.windows` (re-exported here), the readings of the time track in :mod:`dsp.timeline`.
+:mod:`dsp.windows` (re-exported here), the time track's arithmetic and storage in
+:mod:`dsp.track`, its readings in :mod:`dsp.timeline`.
 
 References
 ----------
@@ -19,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft
 
+from rxbench.dsp.track import MAX_SLOTS, TRACK_SUBBANDS, SlotTrack, to_bfloat16  # noqa: F401  (re-exported)
 from rxbench.dsp.windows import (  # noqa: F401  (kernel, window_properties: re-exported)
     COSINE_WINDOWS, WindowProperties, get_window, kernel, welch_dof, window_properties)
 
@@ -39,17 +41,9 @@ class Inline:
 N_BATCHES = 16
 #: Segments transformed per FFT call (bounds memory: 64 x nperseg complex64).
 _SEGMENTS_PER_CALL = 64
-#: The fine time track: at most this many time slots (merged pairwise beyond it; a file's length
-#: sets the slot length at the start), each holding the PSD summed into at most TRACK_SUBBANDS
-#: sub-bands, float32: 8 MiB at most, whatever the capture's length.
-MAX_SLOTS = 16384
-TRACK_SUBBANDS = 128
 #: Calls of fewer segments are computed by the thread that makes them (not worth a hand-off);
 #: larger ones go to a worker, the joins of long captures' blocks (a slot's worth) among them.
 _INLINE_BELOW = 4
-#: From this many segments per slot (long captures) the spectra are summed per slot first, in one
-#: read, and the column and sub-band sums taken from those; below it, each is its own read.
-_GROUPED_SLOTS = 3
 #: A segment that starts or ends with this many exactly-zero samples is in or across a run of them.
 DEAD_RUN = 16
 
@@ -189,27 +183,10 @@ class PsdAccumulator:
                 self._batch_len *= 2
         self._nbins = self.nperseg // 2 + 1 if self.one_sided else self.nperseg
         self.n_segments = 0
-        # The fine time track (see MAX_SLOTS): sub-bands of equal width in FFT order; for real
-        # input the bins past the last whole sub-band (the Nyquist bin) join the last one.
-        split = self.nperseg // 2 if self.one_sided else self.nperseg
-        n_sub = TRACK_SUBBANDS
-        while n_sub > 1 and (split % n_sub or split // n_sub < 8):
-            n_sub //= 2
-        self._n_sub, self._sub_width = n_sub, split // n_sub
-        self._slot_len = 1
-        capacity = 256
-        if expected_samples:
-            expected_segments = max(1, 1 + (int(expected_samples) - self.nperseg) // self.step)
-            self._slot_len = -(-expected_segments // MAX_SLOTS)
-            capacity = -(-expected_segments // self._slot_len)
-        # bfloat16 (see _to_bfloat16): half float32's memory (the track is most of the pass's own),
-        # at a relative step of 2**-8 (a slot's own scatter is a few %); the slot still being
-        # filled is held in float32 (_store_slots).
-        self._slots = np.zeros((capacity, n_sub), np.uint16)
-        self._open: tuple[int, np.ndarray] | None = None
-        self._slot_dead = np.zeros(capacity, np.int64)
+        self._track = SlotTrack(self.nperseg, self.one_sided, max(1, 1 + (int(expected_samples) - self.nperseg)
+                                                                  // self.step) if expected_samples else None)
         self._dead: list[int] = []  # per sub-average
-        self._finished = False  # result() taken: the slots belong to it
+        self._finished = False  # result() taken: the track's slots are gone
 
     def update(self, block) -> None:
         """Add a block of samples (complex for two-sided, real for one-sided)."""
@@ -224,7 +201,7 @@ class PsdAccumulator:
             x = x.astype(self._tail.dtype, copy=False)
             t = self._tail.size
             joins = -(-t // self.step)  # segments that start in the tail
-            joins += (-(self.n_segments + joins)) % self._slot_len  # and on to a slot's end
+            joins += (-(self.n_segments + joins)) % self._track.slot_len  # and on to a slot's end
             inside = joins * self.step  # the next segment's start, from the tail's
             used = inside - self.step + self.nperseg - t  # block samples the joined segments need
             if x.size >= used:
@@ -241,8 +218,8 @@ class PsdAccumulator:
         ``whole_slots``, only up to the last time slot they complete: the rest wait (in the tail) for
         the next block, so that every call but those at joins holds whole slots."""
         n_seg = 0 if x.size < self.nperseg else 1 + (x.size - self.nperseg) // self.step
-        if whole_slots and self._slot_len > 1:
-            n_seg -= (self.n_segments + n_seg) % self._slot_len
+        if whole_slots and self._track.slot_len > 1:
+            n_seg -= (self.n_segments + n_seg) % self._track.slot_len
         if n_seg <= 0:
             return 0
         # Segments whose first or last sample is exactly zero, found once for the whole block: only
@@ -262,7 +239,7 @@ class PsdAccumulator:
             view = np.ndarray((count, self.nperseg), x.dtype, buffer=x[start:stop],
                               strides=(self.step * x.itemsize, x.itemsize))
             view.flags.writeable = False
-            self._make_room(count)
+            self._track.make_room(self.n_segments, count, self._work.drain)
             self._add(len(self._batches) - 1, view,
                       zero_ends is not None and bool(zero_ends[first : first + count].any()))
             self._counts[-1] += count
@@ -273,7 +250,7 @@ class PsdAccumulator:
     def _call_rows(self) -> int:
         """Segments per call: _SEGMENTS_PER_CALL, rounded up to whole slots when a slot is shorter
         (a call that starts on a slot boundary then ends on one)."""
-        slot = self._slot_len
+        slot = self._track.slot_len
         return -(-_SEGMENTS_PER_CALL // slot) * slot if slot <= _SEGMENTS_PER_CALL else _SEGMENTS_PER_CALL
 
     def _add(self, batch: int, segments: np.ndarray, zero_ends: bool = True) -> None:
@@ -281,55 +258,17 @@ class PsdAccumulator:
         the batch is too small to be worth the hand-off; ``zero_ends``: some segment begins or ends
         with an exactly-zero sample (else none can lie in a run of zeros)."""
 
-        ends_slot = (self.n_segments + len(segments)) % self._slot_len == 0
+        ends_slot = (self.n_segments + len(segments)) % self._track.slot_len == 0
 
         def add(sums, batch=batch):
             total, first_slot, slot_sums, rounded, slot_dead = sums
             self._batches[batch] += total
-            self._store_slots(first_slot, slot_sums, rounded, ends_slot)
+            self._track.store(first_slot, slot_sums, rounded, ends_slot, slot_dead)
             if slot_dead is not None:
                 self._dead[batch] += int(slot_dead.sum())
-                self._slot_dead[first_slot : first_slot + len(slot_dead)] += slot_dead
 
-        self._work.submit(add, self._periodogram_sum, segments, self.n_segments, self._slot_len, zero_ends,
+        self._work.submit(add, self._periodogram_sum, segments, self.n_segments, self._track.slot_len, zero_ends,
                           inline=len(segments) < _INLINE_BELOW)
-
-    def _store_slots(self, first_slot: int, slot_sums: np.ndarray, rounded: np.ndarray, ends_slot: bool) -> None:
-        """Store one call's slot sums in the track (the calls' results arrive in order): ``rounded``,
-        their bfloat16 values (rounded by the worker), as they are; the slot a call begins in the
-        middle of gets the sum of its parts (held in float32 meanwhile), rounded once here. A call
-        that ends in the middle of a slot leaves that slot's float32 part held for the next."""
-        self._slots[first_slot : first_slot + len(rounded)] = rounded
-        if self._open is not None and self._open[0] == first_slot:
-            slot_sums[0] += self._open[1]
-            self._slots[first_slot] = _to_bfloat16(slot_sums[0])
-        self._open = None if ends_slot else (first_slot + len(slot_sums) - 1, slot_sums[-1])
-
-    def _make_room(self, count: int) -> None:
-        """Make sure the time track has slots for the next ``count`` segments: grow it, or merge its
-        slots pairwise (doubling their length) when it would pass MAX_SLOTS."""
-        last = (self.n_segments + count - 1) // self._slot_len
-        while last >= MAX_SLOTS:
-            self._work.drain()  # the slots about to merge must be complete
-            used = -(-self.n_segments // self._slot_len)
-            slots = self._slots[:used + used % 2]
-            if len(slots) < used + used % 2:
-                slots = np.vstack([slots, np.zeros((1, self._n_sub), np.uint16)])
-            merged = _to_bfloat16(_from_bfloat16(slots[0::2]) + _from_bfloat16(slots[1::2]))
-            self._slots = np.zeros((MAX_SLOTS, self._n_sub), np.uint16)
-            self._slots[: len(merged)] = merged
-            # The last merged slot may be completed by the next call: held in float32 again.
-            self._open = (len(merged) - 1, _from_bfloat16(merged[-1]))
-            dead = np.concatenate([self._slot_dead[:used], [0] * (used % 2)])
-            self._slot_dead = np.zeros(MAX_SLOTS, np.int64)
-            self._slot_dead[: len(merged)] = dead[0::2] + dead[1::2]
-            self._slot_len *= 2
-            last = (self.n_segments + count - 1) // self._slot_len
-        if last >= len(self._slots):
-            grown = np.zeros((min(MAX_SLOTS, max(2 * len(self._slots), last + 1)), self._n_sub), np.uint16)
-            grown[: len(self._slots)] = self._slots
-            self._slots = grown
-            self._slot_dead = np.concatenate([self._slot_dead, np.zeros(len(grown) - len(self._slot_dead), np.int64)])
 
     def _periodogram_sum(self, segments: np.ndarray, first_segment: int, slot_len: int, zero_ends: bool = True):
         """Sum over segments of the squares of FFT(w * segment)'s real and imaginary parts
@@ -365,64 +304,15 @@ class PsdAccumulator:
         else:
             spec = scipy.fft.fft(windowed, axis=-1, overwrite_x=True, workers=1)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
-        n_rows, n_sub, width = len(rails), self._n_sub, 2 * self._sub_width
-        first_break = (-first_segment) % slot_len  # first row that starts a new slot
-        if slot_len >= _GROUPED_SLOTS:
-            # Each slot's rows summed bin by bin in one read of the spectra (the slots cut at
-            # first_break, whole slot_len rows, and the rest); the PSD's column sums and the slots'
-            # sub-band sums then come from those few rows.
-            per_slot = self._slot_bins(rails, min(first_break, n_rows), slot_len,
-                                       self._work_buffer(rails.dtype, 2 + n_rows // slot_len, rails.shape[1]))
-            columns = per_slot.sum(axis=0)
-            slot_sums = self._subband_sums(per_slot, n_sub, width)
-        else:
-            columns = np.einsum("ij,ij->j", rails, rails)
-            rows = self._subband_sums(rails, n_sub, width, squared=False)
-            if first_break == 0 and n_rows % slot_len == 0:  # whole slots (every row of a short capture)
-                slot_sums = rows.reshape(n_rows // slot_len, slot_len, n_sub).sum(axis=1) if slot_len > 1 else rows
-            else:
-                starts = np.arange(first_break, n_rows, slot_len)
-                if first_break:
-                    starts = np.concatenate([[0], starts])
-                slot_sums = np.add.reduceat(rows, starts, axis=0)
+        n_rows = len(rails)
+        columns, slot_sums = self._track.batch_sums(
+            rails, first_segment, slot_len, lambda rows, cols: self._work_buffer(rails.dtype, rows, cols))
+        first_break = (-first_segment) % slot_len
         slot_dead = None
         if dead is not None and dead.any():
             starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
             slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
-        return columns, first_segment // slot_len, slot_sums, _to_bfloat16(slot_sums, ties_to_even=False), slot_dead
-
-    @staticmethod
-    def _slot_bins(rails: np.ndarray, head: int, slot_len: int, scratch: np.ndarray) -> np.ndarray:
-        """Sum of ``rails**2`` over the rows of each slot: the first ``head`` rows (the end of a slot
-        begun in an earlier call), then every ``slot_len`` rows, then what is left; written into the
-        first rows of ``scratch``."""
-        n_rows = len(rails)
-        whole = (n_rows - head) // slot_len
-        tail = n_rows - head - whole * slot_len
-        out = scratch[: int(head > 0) + whole + int(tail > 0)]
-        row = 0
-        if head:
-            np.einsum("ij,ij->j", rails[:head], rails[:head], out=out[0])
-            row = 1
-        if whole:
-            mid = rails[head : head + whole * slot_len].reshape(whole, slot_len, -1)
-            np.einsum("sij,sij->sj", mid, mid, out=out[row : row + whole])
-        if tail:
-            np.einsum("ij,ij->j", rails[n_rows - tail :], rails[n_rows - tail :], out=out[-1])
-        return out
-
-    @staticmethod
-    def _subband_sums(rails: np.ndarray, n_sub: int, width: int, squared: bool = True) -> np.ndarray:
-        """Each row of ``rails`` summed over the track's sub-bands (``width`` rails each; the rails
-        past the last whole one join it): of ``rails`` as they are, or (``squared=False``) of their
-        squares."""
-        n_rows = len(rails)
-        whole = rails[:, : n_sub * width].reshape(n_rows, n_sub, width)
-        rows = np.einsum("isk->is", whole) if squared else np.einsum("isk,isk->is", whole, whole)
-        if n_sub * width < rails.shape[1]:
-            rest = rails[:, n_sub * width :]
-            rows[:, -1] += rest.sum(axis=1) if squared else np.einsum("ij,ij->i", rest, rest)
-        return rows
+        return columns, first_segment // slot_len, slot_sums, to_bfloat16(slot_sums, ties_to_even=False), slot_dead
 
     def _work_buffer(self, dtype, rows: int, columns: int | None = None) -> np.ndarray:
         """This thread's scratch array of ``dtype`` with ``columns`` (default nperseg) per row: for
@@ -458,8 +348,8 @@ class PsdAccumulator:
     def result(self) -> Psd:
         """The averaged PSD of every block fed. Raises ValueError when no complete segment was seen.
 
-        The time track is handed over, not copied (its slots become the result's ``track``, scaled
-        to densities in place): the accumulator takes no more blocks after a result.
+        The time track's slots become the result's float32 ``track`` (:class:`dsp.track.SlotTrack`):
+        the accumulator takes no more blocks after a result.
         """
         if self._finished:
             raise ValueError("result() was already taken from this accumulator")
@@ -494,7 +384,8 @@ class PsdAccumulator:
         if n_active == 0:
             raise ValueError("every segment is exactly zero: there is no signal or noise to measure")
         keep = active > 0
-        track, slot_counts, track_bins = self._track(fs)
+        track, slot_counts, track_bins = self._track.result(self.n_segments, 1.0 / (fs * np.sum(self.window**2)))
+        self._finished = True
         batch_density = sums[keep] * scale / active[keep, None]
         density = sums.sum(axis=0) * scale / n_active
         props_enbw = n * np.sum(self.window**2) / self.window.sum() ** 2
@@ -515,59 +406,9 @@ class PsdAccumulator:
             track=track,
             track_counts=slot_counts,
             track_bins=track_bins,
-            slot_s=self._slot_len * self.step / fs,
+            slot_s=self._track.slot_len * self.step / fs,
             zero_fraction=1.0 - n_active / self.n_segments,
         )
-
-    def _track(self, fs: float):
-        """The time track as densities in the PSD's bin order: (track, segments per slot, bins)."""
-        n_slots = -(-self.n_segments // self._slot_len)
-        slot_counts = np.full(n_slots, self._slot_len, np.int64)
-        slot_counts[-1] = self.n_segments - (n_slots - 1) * self._slot_len
-        slot_counts -= self._slot_dead[:n_slots]  # live segments: a slot of none reads zero
-        n_sub, width = self._n_sub, self._sub_width
-        edges = np.arange(n_sub + 1) * width
-        edges[-1] = self._nbins
-        widths = np.diff(edges)
-        # Real input: every bin but DC and Nyquist is folded (x2); the two outer sub-bands hold one
-        # unfolded bin each, so their density reads low by at most 1/width (they are never used).
-        scale = (2.0 if self.one_sided else 1.0) / (fs * np.sum(self.window**2))
-        # The slots become the track, float32 (their storage freed; for complex input their
-        # sub-bands put in the PSD's order, a few thousand rows at a time).
-        slots = self._slots[:n_slots]
-        track = np.empty(slots.shape, np.float32)
-        half = n_sub // 2 if not self.one_sided else 0
-        order = np.roll(np.arange(n_sub), half)  # the PSD's sub-band of each column
-        bits = track.view(np.uint32)
-        for i in range(0, n_slots, 4096):  # a few thousand rows at a time: no copy of the whole
-            np.left_shift(slots[i : i + 4096].take(order, axis=1), np.uint32(16), out=bits[i : i + 4096],
-                          dtype=np.uint32)
-        self._slots = None
-        track *= (scale / np.maximum(slot_counts, 1)).astype(np.float32)[:, None]
-        track *= (1.0 / widths).astype(np.float32)  # (all equal for complex input: no reordering)
-        self._finished = True
-        track.setflags(write=False)
-        return track, slot_counts, np.stack([edges[:-1], edges[1:]], axis=1)
-
-
-def _to_bfloat16(x: np.ndarray, ties_to_even: bool = True) -> np.ndarray:
-    """Non-negative float32 -> bfloat16 (the top 16 bits of a float32: its exponent and 8 bits of
-    significand, relative step 2**-8), rounded to nearest; as a uint16 view. Ties go to even: sums
-    of bfloat16 values, as in the pairwise merges, often fall on one, and rounding those up would
-    bias them. ``ties_to_even=False`` rounds them up, in one operation instead of four: for sums
-    of many products, where a tie (the low 16 bits exactly 0x8000) has a chance of 2**-16."""
-    u = np.ascontiguousarray(x, np.float32).view(np.uint32)
-    if ties_to_even:
-        u = u + ((u >> 16) & np.uint32(1)) + np.uint32(0x7FFF)
-    else:
-        u = u + np.uint32(0x8000)
-    return u.view(np.uint16)[..., 1::2] if np.little_endian else u.view(np.uint16)[..., 0::2]
-
-
-def _from_bfloat16(b: np.ndarray) -> np.ndarray:
-    """bfloat16 held as uint16 -> float32 (exact), in one new array."""
-    return np.left_shift(b, np.uint32(16), dtype=np.uint32).view(np.float32)
-
 
 def psd(x, sample_rate_hz: float, **kwargs) -> Psd:
     """Averaged PSD of one array (see :class:`PsdAccumulator` for the parameters)."""

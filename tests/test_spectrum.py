@@ -112,11 +112,11 @@ def test_track_does_not_depend_on_block_boundaries(cuts, known_length):
     # Slots of several segments (a short MAX_SLOTS): a block's last unfinished slot waits for the
     # next block, and a stream of unknown length merges its slots as it grows; cut anyhow, the
     # capture gives the same PSD and the same track (to the bfloat16 track's rounding, 2**-8).
-    from rxbench.dsp import spectrum
+    from rxbench.dsp import track
 
     x = np.random.default_rng(8).standard_normal(2 * 40_000).astype(np.float32).view(np.complex64)
     with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(spectrum, "MAX_SLOTS", 16)
+        mp.setattr(track, "MAX_SLOTS", 16)
         expected = x.size if known_length else None
         whole = psd(x, 1e4, nperseg=256, expected_samples=expected)
         part = _fed_in_pieces(x, cuts, nperseg=256, expected_samples=expected)
@@ -183,9 +183,9 @@ def test_bfloat16_time_track_matches_a_float64_reference(rng, monkeypatch, expec
     grows (here 1 -> 64 segments per slot, six merges), each merge a rounding more. Unbiased (the
     mean error within 2e-4), and its rms (0.1-0.2 %) an order below the scatter of a slot of 37 or
     64 periodograms of 32 bins (2-3 %)."""
-    from rxbench.dsp import spectrum
+    from rxbench.dsp import track
 
-    monkeypatch.setattr(spectrum, "MAX_SLOTS", 64)
+    monkeypatch.setattr(track, "MAX_SLOTS", 64)
     n, nperseg, step = 300_000, 256, 128
     x = (rng.standard_normal(n) + 1j * rng.standard_normal(n)).astype(np.complex64) * np.float32(0.1)
     acc = PsdAccumulator(1e6, nperseg=nperseg, expected_samples=n if expected else None)
