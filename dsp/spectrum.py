@@ -177,14 +177,14 @@ class PsdAccumulator:
         self._batches: list[np.ndarray] = []
         self._counts: list[int] = []
         self._batch_len = 1
+        expected_segments = None
         if expected_samples:
-            expected_segments = 1 + (int(expected_samples) - self.nperseg) // self.step
+            expected_segments = max(1, 1 + (int(expected_samples) - self.nperseg) // self.step)
             while 2 * N_BATCHES * self._batch_len < expected_segments:
                 self._batch_len *= 2
         self._nbins = self.nperseg // 2 + 1 if self.one_sided else self.nperseg
         self.n_segments = 0
-        self._track = SlotTrack(self.nperseg, self.one_sided, max(1, 1 + (int(expected_samples) - self.nperseg)
-                                                                  // self.step) if expected_samples else None)
+        self._track = SlotTrack(self.nperseg, self.one_sided, expected_segments)
         self._dead: list[int] = []  # per sub-average
         self._finished = False  # result() taken: the track's slots are gone
 
