@@ -38,11 +38,12 @@ k = int(np.argmax(p)); print(f[k], 10 * np.log10(p[k]))
 CHILD_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 
-def run_timed(cmd: list[str], cpu: bool = False) -> tuple:
+def run_timed(cmd: list[str], cpu: bool = False, env: dict | None = None) -> tuple:
     """Wall time (s) and peak RSS (MB) of one child process; with ``cpu`` also its CPU time (user +
-    system, s), which a loaded machine disturbs less than the wall time."""
+    system, s), which a loaded machine disturbs less than the wall time. ``env``: variables added to
+    the child's environment."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=CHILD_ENV)
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env={**CHILD_ENV, **(env or {})})
     _, status, usage = os.wait4(proc.pid, 0)
     elapsed = time.perf_counter() - t0
     if os.waitstatus_to_exitcode(status) != 0:

@@ -4,6 +4,7 @@ rxbench (e.g. main before a change): whole processes, side by side, as ratios.
 Run on demand (not part of the test run):
 
     python benchmarks/bench_pass.py [--durations 1 60 300] [--rounds 5] [--baseline PYTHON]
+                                    [--baseline-tree PATH ...]
 
 For each duration it writes a cu8 capture at 2.4 MS/s (the 1 s one by ``rxbench synth``, longer
 ones by repeating it) and times, in interleaved rounds:
@@ -13,6 +14,12 @@ ones by repeating it) and times, in interleaved rounds:
   FFTs the same 4096-point half-overlapped Hann segments (``scipy.fft``, all cores), summing |X|^2;
 - ``--baseline PYTHON``: ``rxbench inspect`` run by another interpreter (a venv with another
   checkout installed), e.g. main before the change;
+- ``--baseline-tree PATH`` (repeatable): ``rxbench inspect`` of another checkout (e.g. a
+  ``git worktree`` of main before the change), run by this same interpreter with that tree's
+  ``bench/`` and ``dsp/`` put on ``PYTHONPATH`` as the package ``rxbench``. Prefer it to
+  ``--baseline`` for memory: two venvs holding the very same numpy wheel have been seen to differ
+  by 5 MB of resident memory on ``import numpy`` alone (20.7 vs 15.2 MB), which reads as the
+  change's cost;
 - numpy + ``scipy.signal.welch`` on the whole file in memory, for captures up to ``--welch-max-s``.
 
 It prints medians of the wall times, the peak resident memory and the CPU time (user + system) of
@@ -29,9 +36,10 @@ import statistics
 import subprocess
 import sys
 import tempfile
+import zlib
 from pathlib import Path
 
-from bench_inspect import run_timed  # the same timing of a child process (this folder is on sys.path)
+from bench_inspect import CHILD_ENV, run_timed  # the same timing of a child process (this folder is on sys.path)
 
 RATE = 2.4e6
 
@@ -82,11 +90,35 @@ def make_capture(work: Path, seconds: int) -> Path:
     return out
 
 
+def tree_package(work: Path, tree: Path) -> Path:
+    """A folder holding ``rxbench`` as a package made of links to ``tree``'s ``bench/`` entries and
+    its ``dsp/`` (the layout pyproject.toml installs), to put on PYTHONPATH."""
+    tree = tree.resolve()
+    if not (tree / "bench" / "__init__.py").is_file() or not (tree / "dsp").is_dir():
+        raise SystemExit(f"--baseline-tree {tree}: not an rxbench checkout (no bench/__init__.py or dsp/)")
+    root = work / "trees" / f"{tree.name}-{zlib.crc32(str(tree).encode()):08x}"
+    pkg = root / "rxbench"
+    if pkg.exists():
+        shutil.rmtree(pkg)
+    pkg.mkdir(parents=True)
+    for entry in (tree / "bench").iterdir():
+        if entry.name not in ("dsp", "__pycache__"):
+            (pkg / entry.name).symlink_to(entry)
+    (pkg / "dsp").symlink_to(tree / "dsp")
+    found = subprocess.run([sys.executable, "-c", "import rxbench; print(rxbench.__file__)"], env={**CHILD_ENV, "PYTHONPATH": str(root)},
+                           capture_output=True, text=True, check=True).stdout.strip()
+    if not found.startswith(str(pkg)):
+        raise SystemExit(f"--baseline-tree {tree}: rxbench imports from {found}, not from the tree")
+    return root
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--durations", type=int, nargs="+", default=[1, 60, 300])
     ap.add_argument("--rounds", type=int, default=5)
     ap.add_argument("--baseline", help="python of another rxbench install to compare with")
+    ap.add_argument("--baseline-tree", type=Path, action="append", default=[],
+                    help="another rxbench checkout, run by this interpreter (repeatable)")
     ap.add_argument("--welch-max-s", type=float, default=10.0)
     ap.add_argument("--workdir", type=Path)
     args = ap.parse_args()
@@ -95,20 +127,24 @@ def main() -> int:
     limit, welch = work / "limit.py", work / "welch.py"
     limit.write_text(LIMIT_SCRIPT)
     welch.write_text(WELCH_SCRIPT)
+    trees = {f"tree {tree.name}": {"PYTHONPATH": str(tree_package(work, tree))} for tree in args.baseline_tree}
     for seconds in args.durations:
         cap = make_capture(work, seconds)
         inspect = ["-m", "rxbench", "inspect", str(cap), "--rate", str(RATE), "--json"]
         cmds = {"rxbench inspect": [sys.executable, *inspect], "limit (read, decode, FFT)": [sys.executable, str(limit), str(cap)]}
         if args.baseline:
             cmds["baseline inspect"] = [args.baseline, *inspect]
+        for name in trees:
+            cmds[name] = [sys.executable, *inspect]
         if seconds <= args.welch_max_s:
             cmds["numpy + scipy.signal.welch"] = [sys.executable, str(welch), str(cap)]
-        for cmd in cmds.values():  # one untimed run each: page cache, bytecode
-            run_timed(cmd)
+        envs = {name: trees.get(name) for name in cmds}
+        for name, cmd in cmds.items():  # one untimed run each: page cache, bytecode
+            run_timed(cmd, env=envs[name])
         runs = {name: [] for name in cmds}
         for _ in range(args.rounds):
             for name, cmd in cmds.items():
-                runs[name].append(run_timed(cmd, cpu=True))
+                runs[name].append(run_timed(cmd, cpu=True, env=envs[name]))
         ours = runs["rxbench inspect"]
         print(f"\n{seconds} s at 2.4 MS/s cu8 ({cap.stat().st_size / 1e6:.0f} MB), {args.rounds} interleaved rounds")
         for name, results in runs.items():
