@@ -41,11 +41,20 @@ class Inline:
 N_BATCHES = 16
 #: Segments transformed per FFT call (bounds memory: 64 x nperseg complex64).
 _SEGMENTS_PER_CALL = 64
+#: FFT calls per job handed to a worker: each hand-off costs the pass a thread wake-up and a
+#: result applied by the main thread, which two calls share (DEVELOPERS.md, the pass).
+_CALLS_PER_JOB = 2
 #: Calls of fewer segments are computed by the thread that makes them (not worth a hand-off);
 #: larger ones go to a worker, the joins of long captures' blocks (a slot's worth) among them.
 _INLINE_BELOW = 4
 #: A segment that starts or ends with this many exactly-zero samples is in or across a run of them.
 DEAD_RUN = 16
+
+
+def call_rows(slot_len: int) -> int:
+    """Segments per FFT call: _SEGMENTS_PER_CALL, rounded up to whole slots when a slot is shorter
+    (a call that starts on a slot boundary then ends on one)."""
+    return -(-_SEGMENTS_PER_CALL // slot_len) * slot_len if slot_len <= _SEGMENTS_PER_CALL else _SEGMENTS_PER_CALL
 
 
 @dataclass(frozen=True)
@@ -167,8 +176,6 @@ class PsdAccumulator:
         self.nperseg = int(nperseg)
         self.window = get_window(window, self.nperseg)
         self._window32 = self.window.astype(np.float32)
-        # The windows with each sample twice, for complex segments viewed as pairs of reals.
-        self._pairs = {np.dtype(np.float32): np.repeat(self._window32, 2), np.dtype(np.float64): np.repeat(self.window, 2)}
         self.step = max(1, int(round(self.nperseg * (1.0 - overlap))))
         self.one_sided = bool(one_sided)
         self._tail = None
@@ -232,7 +239,8 @@ class PsdAccumulator:
         first = 0
         while first < n_seg:
             self._open_batch()
-            count = min(self._call_rows(), n_seg - first, self._batch_len - self._counts[-1])
+            count = min(_CALLS_PER_JOB * call_rows(self._track.slot_len), n_seg - first,
+                        self._batch_len - self._counts[-1])
             start = first * self.step
             stop = start + (count - 1) * self.step + self.nperseg
             # The segments as a strided view of x (what sliding_window_view makes, at 1/20 its cost).
@@ -246,12 +254,6 @@ class PsdAccumulator:
             self.n_segments += count
             first += count
         return n_seg
-
-    def _call_rows(self) -> int:
-        """Segments per call: _SEGMENTS_PER_CALL, rounded up to whole slots when a slot is shorter
-        (a call that starts on a slot boundary then ends on one)."""
-        slot = self._track.slot_len
-        return -(-_SEGMENTS_PER_CALL // slot) * slot if slot <= _SEGMENTS_PER_CALL else _SEGMENTS_PER_CALL
 
     def _add(self, batch: int, segments: np.ndarray, zero_ends: bool = True) -> None:
         """Add the periodograms of ``segments`` to sub-average ``batch``, on a worker thread unless
@@ -272,9 +274,10 @@ class PsdAccumulator:
 
     def _periodogram_sum(self, segments: np.ndarray, first_segment: int, slot_len: int, zero_ends: bool = True):
         """Sum over segments of the squares of FFT(w * segment)'s real and imaginary parts
-        (interleaved), single precision for complex64; and |FFT|**2 summed into the track's sub-bands
-        (in FFT order) and time slots: ``(sums, first slot, slot sums, dead segments per slot or
-        None)``.
+        (interleaved; float64 over calls of single-precision sums for complex64); and |FFT|**2
+        summed into the track's sub-bands (in FFT order) and time slots: ``(sums, first slot, slot
+        sums, their bfloat16 values, dead segments per slot or None)``. The segments are
+        transformed :func:`call_rows` at a time, in one scratch array.
 
         A segment that begins or ends with DEAD_RUN exactly-zero samples lies in or across a run of
         them (a dropped transfer, digital silence): it is left out of every sum and counted (looked
@@ -287,32 +290,39 @@ class PsdAccumulator:
         if dead is not None and dead.any():
             segments = segments.copy()
             segments[dead] = 0
+        n_rows, rows = len(segments), call_rows(slot_len)
+        columns, first_slot, slot_sums = self._call_sums(segments[:rows], first_segment, slot_len)
+        for start in range(rows, n_rows, rows):
+            more, first, sums = self._call_sums(segments[start : start + rows], first_segment + start, slot_len)
+            columns = np.add(columns, more, dtype=np.float64)
+            if first == first_slot + len(slot_sums) - 1:  # the calls share a slot
+                sums[0] += slot_sums[-1]
+                slot_sums = slot_sums[:-1]
+            slot_sums = np.concatenate([slot_sums, sums])
+        slot_dead = None
+        if dead is not None and dead.any():
+            first_break = (-first_segment) % slot_len
+            starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
+            slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
+        return columns, first_slot, slot_sums, to_bfloat16(slot_sums, ties_to_even=False), slot_dead
+
+    def _call_sums(self, segments: np.ndarray, first_segment: int, slot_len: int):
+        """One FFT call's sums: (the squares of the spectra's real and imaginary parts summed over
+        the segments, first slot, sub-band sums of each slot touched)."""
         single = segments.dtype in (np.complex64, np.float32)
         win = self._window32 if single else self.window
         dtype = np.result_type(segments.dtype, win.dtype)
         work = self._work_buffer(dtype, len(segments))
-        if np.iscomplexobj(segments) and segments.strides[-1] == segments.itemsize:
-            # As pairs of reals times the window's samples each twice: no casting of the window
-            # to complex per row (1.4x faster, the same products).
-            windowed = work[: len(segments)]
-            np.multiply(segments.view(win.dtype), self._pairs[win.dtype], out=windowed.view(win.dtype))
-        else:
-            windowed = np.multiply(segments, win, out=work[: len(segments)])
+        windowed = np.multiply(segments, win, out=work[: len(segments)])
         # One thread per call: the runner spreads the calls over the cores.
         if self.one_sided:
             spec = scipy.fft.rfft(windowed, axis=-1, workers=1)
         else:
             spec = scipy.fft.fft(windowed, axis=-1, overwrite_x=True, workers=1)
         rails = spec.view(np.float32 if spec.dtype == np.complex64 else np.float64)
-        n_rows = len(rails)
         columns, slot_sums = self._track.batch_sums(
             rails, first_segment, slot_len, lambda rows, cols: self._work_buffer(rails.dtype, rows, cols))
-        first_break = (-first_segment) % slot_len
-        slot_dead = None
-        if dead is not None and dead.any():
-            starts = np.unique(np.concatenate([[0], np.arange(first_break, n_rows, slot_len)]))
-            slot_dead = np.add.reduceat(dead.astype(np.int64), starts)
-        return columns, first_segment // slot_len, slot_sums, to_bfloat16(slot_sums, ties_to_even=False), slot_dead
+        return columns, first_segment // slot_len, slot_sums
 
     def _work_buffer(self, dtype, rows: int, columns: int | None = None) -> np.ndarray:
         """This thread's scratch array of ``dtype`` with ``columns`` (default nperseg) per row: for
