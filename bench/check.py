@@ -193,6 +193,9 @@ class Checker:
         if shape.on_fraction is not None:
             out.append(f"the tone is present in only {100 * shape.on_fraction:.0f} % of the capture: a loose "
                        "connector, or the generator keyed or pulsed?")
+        if shape.varies_within_slots:
+            out.append("the tone's level jumps from one time slot to the next: the generator keyed or pulsed, or a "
+                       "loose connector?")
         if shape.level_change_db > 0:
             out.append(f"the tone's level changed by {shape.level_change_db:.1f} dB during the capture: let the "
                        "generator settle and check the cables")

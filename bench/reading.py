@@ -200,6 +200,10 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: b
             f"({tone.power_dbfs:.2f} dBFS) is the average over the whole capture, on_power_dbfs "
             f"({tone.on_power_dbfs:.2f} dBFS) the power while present"
         )
+    if shape.varies_within_slots:
+        out.append(f"{name}: the tone's level jumps from one {1e3 * tone.timeline.slot_s:.3g} ms time slot to the next "
+                   "far beyond the noise (keyed or pulsed faster than that?): power_dbfs is the average over the "
+                   "whole capture, not the power while on")
     if shape.level_change_db > 0:
         how = (f"a drift of {shape.drift_db_per_s:+.3g} dB/s" if shape.drift_db_per_s is not None else "in steps")
         out.append(f"{name}: the tone's level changes by {shape.level_change_db:.1f} dB during the capture "
@@ -239,8 +243,8 @@ def tone_dict(tone, center_hz) -> dict:
     if tone is None:
         names = ("offset_hz", "frequency_hz", "power_dbfs", "u_power_db", "ci95_dbfs", "cn0_dbhz", "snr_db",
                  "snr_bandwidth_hz", "on_fraction", "on_power_dbfs", "on_cn0_dbhz", "time_resolution_s",
-                 "level_change_db", "drift_db_per_s", "width_hz", "line_width_hz", "second_offset_hz",
-                 "second_db")
+                 "level_change_db", "drift_db_per_s", "varies_within_slots", "width_hz", "line_width_hz",
+                 "second_offset_hz", "second_db")
         return dict.fromkeys(names)
     tl = tone.timeline
     return {
@@ -258,6 +262,7 @@ def tone_dict(tone, center_hz) -> dict:
         "time_resolution_s": None if tl is None or tl.on_fraction is None else tl.slot_s,
         "level_change_db": None if tl is None else tl.level_change_db,
         "drift_db_per_s": None if tl is None else tl.drift_db_per_s,
+        "varies_within_slots": None if tl is None else tl.varies_within_slots,
         "width_hz": _finite(tone.width_hz),
         "line_width_hz": _finite(tone.line_width_hz),
         "second_offset_hz": tone.second_offset_hz,

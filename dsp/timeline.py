@@ -14,7 +14,10 @@ relative levels (those of at most SPREAD_SLOTS evenly spaced slots: a few hundre
 The decision "present in a slot" is made at the finest time resolution (slots merged 1, 2, 4, ...)
 at which the tone's strong slots (98th percentile) stand at least DETECT_MARGIN deviations above
 the floor (the larger of the noise's and the on-slots' own slot-to-slot scatter); then a slot counts as "on" when its tone power exceeds ON_THRESHOLD deviations.
-A tone too weak for even the coarsest resolution (8 slots) gets no on-fraction (None).
+A tone too weak for even the coarsest resolution (8 slots) gets no on-fraction (None); so does a
+tone that stands well clear of the noise in single slots but whose level jumps from slot to slot
+beyond that even when they are merged (keying or pulses faster than the slots: a slot holds part
+of a burst), which is said (``varies_within_slots``).
 
 The level change is read over the on-time, in up to 16 blocks of equal duration: the spread of
 the block means (dB) counts when it is at least LEVEL_CHANGE_DB and five times their combined
@@ -65,6 +68,10 @@ class Timeline:
         below LEVEL_CHANGE_DB).
     drift_db_per_s : float or None
         Slope of the level, dB/s, when the change is a steady drift; None for steps or no change.
+    varies_within_slots : bool
+        The tone stands clear of the noise in the finest slots, but its level there scatters far
+        beyond the noise at every resolution tried: keyed or pulsed faster than the slots resolve
+        (``on_fraction`` is then None, ``on_power`` the whole-capture power).
     """
 
     on_fraction: float | None
@@ -72,6 +79,7 @@ class Timeline:
     slot_s: float
     level_change_db: float = 0.0
     drift_db_per_s: float | None = None
+    varies_within_slots: bool = False
 
 
 def _weighted_mean(values: np.ndarray, counts: np.ndarray, rows: int = 1024) -> np.ndarray:
@@ -169,6 +177,7 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
     noise_cols = np.flatnonzero(noise)
     noise_mean = mean[noise].astype(np.float32)
     g = 1
+    strong = False  # in the finest slots, the tone's strong ones stand clear of the noise alone
     while len(counts) // g >= 8:
         floor_ratio, sigma_sub, c = _noise_levels(track, rows, counts, noise_cols, noise_mean, g)
         tone_v, _ = _merge(tone_cols.copy() if g > 1 else tone_cols, counts, g)
@@ -179,24 +188,29 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
         sigma = sigma_sub * np.sqrt(sel.sum()) * floor_density * floor_ratio * widths[sel].mean() * bw
         # While on, the tone's slots scatter more than the noise alone (the tone-noise cross term,
         # the signal's own fluctuation): measured from differences of neighbouring on-slots, which
-        # slow changes of level do not enter.
+        # slow changes of level do not enter; of the slots on with both neighbours on, when there
+        # are enough (short bursts: a slot at a burst's edge is on for part of its time only).
         maybe_on = tone_power > ON_THRESHOLD * sigma
         spread = np.median(sigma)
-        if maybe_on.sum() >= 8:
-            steps = np.diff(tone_power[maybe_on])
+        inner = _inner(maybe_on)
+        steady = inner if inner.sum() >= 8 else maybe_on
+        if steady.sum() >= 8:
+            steps = np.diff(tone_power[steady])
             spread = max(spread, 1.4826 * np.median(np.abs(steps - np.median(steps))) / np.sqrt(2.0))
         if np.quantile(tone_power, 0.98) >= DETECT_MARGIN * spread:
             break
+        if g == 1:
+            strong = bool(np.quantile(tone_power, 0.98) >= DETECT_MARGIN * np.median(sigma))
         g *= 2
     else:
-        return unknown
+        return Timeline(None, float(power), spectrum.slot_s, varies_within_slots=True) if strong else unknown
     on = tone_power > ON_THRESHOLD * sigma
     slot_s = spectrum.slot_s * g
     if not on.any():
         return Timeline(0.0, float(power), slot_s)
     # A slot next to an "off" one may be on for part of its time only: it counts by its power
     # relative to the fully-on slots' median, and the on-power is read from the fully-on slots.
-    inner = on & np.concatenate([[True], on[:-1]]) & np.concatenate([on[1:], [True]])
+    inner = _inner(on)
     full = tone_power[inner] if inner.any() else tone_power[on]
     level = float(np.median(full))
     weight = np.where(inner, 1.0, np.clip(tone_power / level, 0.0, 1.0)) * on
@@ -204,6 +218,11 @@ def tone_timeline(spectrum, floor_density: float, usable: np.ndarray, tone_bins:
     on_power = float(c[inner] @ tone_power[inner] / c[inner].sum()) if inner.any() else level
     change, drift = _level_change(tone_power[on], np.flatnonzero(on) * slot_s)
     return Timeline(on_fraction, on_power, slot_s, change, drift)
+
+
+def _inner(on: np.ndarray) -> np.ndarray:
+    """The slots that are on with both neighbours on (the capture's ends count as on)."""
+    return on & np.concatenate([[True], on[:-1]]) & np.concatenate([on[1:], [True]])
 
 
 def _level_change(power: np.ndarray, t: np.ndarray) -> tuple[float, float | None]:
@@ -215,7 +234,6 @@ def _level_change(power: np.ndarray, t: np.ndarray) -> tuple[float, float | None
     edges = np.linspace(t[0], t[-1], LEVEL_BLOCKS + 1)
     block = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, LEVEL_BLOCKS - 1)
     n = np.bincount(block, minlength=LEVEL_BLOCKS)
-    full = n > 0
     full = n > 1
     p = np.bincount(block, power, LEVEL_BLOCKS)[full] / n[full]
     squares = np.bincount(block, power**2, LEVEL_BLOCKS)[full] / n[full]

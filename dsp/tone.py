@@ -333,11 +333,13 @@ class ToneShape:
     second_offset_hz: float | None
     second_db: float | None
     on_dc: bool
+    varies_within_slots: bool = False
 
     @property
     def varies(self) -> bool:
-        """Intermittent, or its level changes: the power is an average over that."""
-        return self.on_fraction is not None or self.level_change_db > 0
+        """Intermittent, its level changes, or it is keyed faster than the time track resolves: the
+        power is an average over that."""
+        return self.on_fraction is not None or self.level_change_db > 0 or self.varies_within_slots
 
 
 def tone_shape(psd: Psd, floor: NoiseFloor, tone: Tone) -> ToneShape:
@@ -353,4 +355,5 @@ def tone_shape(psd: Psd, floor: NoiseFloor, tone: Tone) -> ToneShape:
         second_offset_hz=tone.second_offset_hz,
         second_db=tone.second_db,
         on_dc=not psd.one_sided and on_dc(tone.offset_hz, psd.bin_width_hz, floor.dc_halfwidth_hz),
+        varies_within_slots=tl is not None and tl.varies_within_slots,
     )

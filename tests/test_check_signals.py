@@ -58,6 +58,13 @@ def test_a_keyed_tone_fails_with_its_on_fraction(tmp_path):
     assert float(p.split("only ")[1].split(" %")[0]) == pytest.approx(33, abs=8)
 
 
+def test_a_tone_pulsed_faster_than_the_slots_fails(tmp_path):
+    gate = synth.keyed(N, FS, duty=0.1, period_s=0.025)  # 2.5 ms pulses every 25 ms: shorter than a slot
+    (c,) = _check(tmp_path, [_tone() * gate], rng=np.random.default_rng(1607))
+    assert not c.passed
+    assert any("level jumps from one time slot to the next" in p for p in c.problems), c.line()
+
+
 def test_a_moving_level_fails(tmp_path):
     x = synth.level_ramp(N, FS, start_dbfs=-13.0, end_dbfs=-7.0, offset_hz=OFFSET)  # 6 dB over the capture
     (c,) = _check(tmp_path, [x], rng=np.random.default_rng(1603))

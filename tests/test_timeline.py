@@ -74,6 +74,39 @@ def test_keyed_bursts_read_their_on_fraction_and_power_while_on(rng, duty):
     assert t.on_cn0_dbhz == pytest.approx(-20.0 - db_from_power(N0), abs=0.3)
 
 
+@pytest.mark.parametrize("burst_slots", [3, 5])
+def test_short_bursts_of_a_few_slots_read_their_on_fraction(rng, burst_slots):
+    # Bursts only a few time slots long (the track's slots here: 2048 samples, 2.05 ms): most
+    # on-slots hold a burst's edge and are on for part of their time only; the slots inside the
+    # bursts still give the tone's steadiness, so the on-fraction and the power while on are read.
+    slot_s = 2048 / FS
+    duty = 0.12
+    gate = synth.keyed(N, FS, duty=duty, period_s=burst_slots * slot_s / duty)
+    r = _read(_noise(rng) + _tone() * gate)
+    t = r.tone
+    true_duty = float(gate.mean())  # (whole periods or not)
+    assert t.on_fraction == pytest.approx(true_duty, abs=0.03)
+    assert t.on_power_dbfs == pytest.approx(-20.0, abs=0.3)
+    assert _said(r, f"intermittent: present in {100 * t.on_fraction:.0f} % of the capture")
+
+
+def test_pulses_shorter_than_a_slot_are_said_not_read_as_steady(rng):
+    # 1 ms pulses every 10 ms against 2.05 ms slots: every on-slot holds part of a pulse, so no
+    # on-fraction can be read; the tone stands 70 dB above the slot noise, so "too weak" is not
+    # the story either: the reading says its level jumps from slot to slot and that power_dbfs is
+    # the capture's average (here the duty cycle's -10 dB: -30 dBFS).
+    gate = synth.keyed(N, FS, duty=0.1, period_s=10e-3)
+    r = _read(_noise(rng) + _tone() * gate)
+    t = r.tone
+    assert t.on_fraction is None and t.timeline.varies_within_slots
+    assert t.power_dbfs == pytest.approx(-20.0 + 10 * np.log10(gate.mean()), abs=0.5)
+    assert _said(r, "the tone's level jumps from one 2.05 ms time slot to the next")
+    assert not _said(r, "not distinguishable") and not _said(r, "intermittent")
+    assert tone_dict(t, None)["varies_within_slots"] is True
+    steady = _read(_noise(rng) + _tone()).tone
+    assert not steady.timeline.varies_within_slots and tone_dict(steady, None)["varies_within_slots"] is False
+
+
 def test_two_line_keying_names_both_lines_and_near_chooses(rng):
     offsets = (100e3, 104e3)
     x = _noise(rng) + synth.two_line_keying(N, FS, power=TONE, offsets_hz=offsets, period_s=N / FS / 8)
