@@ -222,10 +222,15 @@ def _tone_warnings(name: str, psd: Psd, floor: NoiseFloor, tone: Tone, chosen: b
             f"{(2 * BAND_HALFWIDTH_BINS + 1) * psd.bin_width_hz:.4g} Hz"
         )
     if shape.second_offset_hz is not None:
+        band_hz = BAND_HALFWIDTH_BINS * psd.bin_width_hz
+        if abs(tone.second_offset_hz - tone.offset_hz) <= band_hz + 2 * psd.bin_width_hz:  # its main lobe reaches in
+            what = (f"it lies within the tone's integration band (+/-{band_hz:.4g} Hz), so part of its power is "
+                    "counted: a longer FFT (--nperseg) separates them")
+        else:
+            what = "both lie near --near; narrow it" if chosen else "give --near HZ to choose"
         out.append(
             f"{name}: a second line at {tone.second_offset_hz:+.0f} Hz within {abs(tone.second_db):.1f} dB of the "
-            f"one read at {tone.offset_hz:+.0f} Hz (two-tone keying?): "
-            + ("both lie near --near; narrow it" if chosen else "give --near HZ to choose")
+            f"one read at {tone.offset_hz:+.0f} Hz (two-tone keying?): {what}"
         )
     if shape.on_dc:
         out.append(f"{name}: tone at {tone.offset_hz:.0f} Hz sits on the DC spike; tune it away from the centre")

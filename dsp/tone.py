@@ -292,22 +292,27 @@ def _second_line(spectrum: Psd, floor: NoiseFloor, k: int, own_bins: tuple[int, 
     """(bin, dB relative to the tone at ``k``) of the strongest other peak standing above the noise
     within SECOND_LINE_DB of it, or None. Peaks are compared by the power in +/-2 bins above the
     floor (insensitive to where a line falls between bins); the DC region, the band edges and the
-    tone's own peak (its -3 dB points ``own_bins`` and the integration band beyond) are never
-    candidates."""
+    tone's own peak (its -3 dB points ``own_bins`` and a bin beyond) are never candidates. A peak
+    closer than the integration band's edge counts only when the density dips below half of both
+    peaks between them (two lines, not the shoulder of one broad peak)."""
     f, d, n0 = spectrum.frequency_hz, spectrum.density, floor.density
     allowed = (np.abs(f) > floor.dc_halfwidth_hz) & (np.abs(f) <= floor.edge_hz)
     if near_hz is not None:
         allowed &= np.abs(f - near_hz) <= (search_hz or max(10 * spectrum.bin_width_hz, 1000.0))
     above = d > detection_threshold(spectrum.dof, int(allowed.sum()) or 1) * n0
-    own = np.zeros(d.size, bool)
     lo, hi = own_bins
-    own[max(lo - BAND_HALFWIDTH_BINS, 0) : hi + BAND_HALFWIDTH_BINS + 1] = True
+    own = np.zeros(d.size, bool)
+    own[max(lo - 1, 0) : hi + 2] = True
     candidates = allowed & above & ~own
     if not candidates.any():
         return None
     excess = np.convolve(d - n0, np.ones(5), mode="same")
     # Local maxima only: one candidate per peak.
     peaks = np.flatnonzero(candidates & (d >= np.roll(d, 1)) & (d >= np.roll(d, -1)))
+    near = peaks[(peaks >= lo - BAND_HALFWIDTH_BINS) & (peaks <= hi + BAND_HALFWIDTH_BINS)]
+    distinct = [p for p in near if d[min(p, k) : max(p, k) + 1].min() < 0.5 * min(d[p], d[k])]
+    peaks = np.concatenate([peaks[(peaks < lo - BAND_HALFWIDTH_BINS) | (peaks > hi + BAND_HALFWIDTH_BINS)],
+                            np.array(distinct, dtype=peaks.dtype)])
     if peaks.size == 0 or excess[k] <= 0:
         return None
     best = int(peaks[np.argmax(excess[peaks])])

@@ -123,6 +123,24 @@ def test_two_line_keying_names_both_lines_and_near_chooses(rng):
         assert chosen.tone.second_offset_hz is None
 
 
+def test_two_lines_inside_the_integration_band_are_named_and_a_longer_fft_separates_them(rng):
+    # Frequency-shift keying 1 kHz apart at 4096 points (244 Hz bins): the second line lies 4.1 bins
+    # from the first, inside the tone's +/-4-bin integration band, so part of its power is counted
+    # (the reading is between one line's -23 dBFS average and both lines' -20): the reading names it
+    # and says so. At 16384 points (61 Hz bins) the lines stand 16 bins apart: each reads its own
+    # average, -20 dBFS for half the time = -23.0 dBFS.
+    offsets = (100e3, 101e3)
+    x = _noise(rng) + synth.two_line_keying(N, FS, power=TONE, offsets_hz=offsets, period_s=0.02)
+    r = _read(x)
+    t = r.tone
+    assert t.second_offset_hz is not None and abs(t.second_db) < 1.0
+    assert -23.0 < t.power_dbfs < -20.0
+    assert _said(r, "it lies within the tone's integration band") and _said(r, "a longer FFT (--nperseg)")
+    fine = _read(x, nperseg=16384)
+    assert fine.tone.power_dbfs == pytest.approx(-23.0, abs=0.2)
+    assert fine.tone.second_offset_hz is not None and _said(fine, "give --near HZ to choose")
+
+
 def test_floor_step_is_warned_and_the_floor_taken_from_the_steady_time(rng):
     x = synth.floor_step(N, power=N0 * FS, step_db=7.5, at=0.3, rng=rng) + _tone()
     r = _read(x)
