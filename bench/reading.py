@@ -19,7 +19,7 @@ from rxbench.dsp.health import Health, HealthAccumulator
 from rxbench.dsp.spectrum import N_BATCHES, Psd, PsdAccumulator
 from rxbench.dsp.same_signal import DEFAULT_BINS, DEFAULT_PPM, SameSignal, same_signal
 from rxbench.dsp.tone import (BAND_HALFWIDTH_BINS, DEFAULT_SNR_BANDWIDTH_HZ, INTERMITTENT_BELOW, Tone,  # noqa: F401
-                              measure_tone, tone_shape)
+                              line_elsewhere, measure_tone, tone_shape)
 from rxbench.dsp.units import db_from_power
 
 #: Default FFT length; shorter captures get a shorter one (at least MIN_SEGMENTS segments).
@@ -137,15 +137,25 @@ def read_capture(
         raise CaptureError(capture.path, f"no noise floor: {exc}") from None
     if floor.density <= 0:
         raise CaptureError(capture.path, "the noise floor is zero (constant or digitally generated samples?)")
-    warnings.extend(_floor_warnings(name, floor))
-    tone = None
+    tone, missing = None, None
     if want_tone:
         try:
             tone = measure_tone(psd, floor, near_hz=near_hz, snr_bandwidth_hz=snr_bandwidth_hz)
         except ValueError as exc:
-            warnings.append(f"{name}: {exc}")
-        if tone is not None:
-            warnings.extend(_tone_warnings(name, psd, floor, tone, chosen=near_hz is not None))
+            missing = f"{name}: {exc}"
+            # A band-limited floor taken at the strongest bins, a noise passband, can hide a weaker
+            # line outside it: that line is read with the floor around it.
+            line = line_elsewhere(psd, floor) if floor.band_limited and near_hz is None else None
+            if line is not None:
+                floor = noise_floor(psd, dc_halfwidth_hz=floor.dc_halfwidth_hz, seed_hz=line)
+                tone = measure_tone(psd, floor, near_hz=line, snr_bandwidth_hz=snr_bandwidth_hz)
+                missing = (f"{name}: the strongest bins are a band of noise, not a line: the line at {line:+.0f} Hz "
+                           "is read with the floor around it (--near HZ chooses)")
+    warnings.extend(_floor_warnings(name, floor))
+    if missing is not None:
+        warnings.append(missing)
+    if tone is not None:
+        warnings.extend(_tone_warnings(name, psd, floor, tone, chosen=near_hz is not None))
     return Reading(capture, psd, floor, tone, health, warnings)
 
 

@@ -274,6 +274,15 @@ def band_limited(x: np.ndarray, sample_rate_hz: float, low_hz: float, high_hz: f
     return np.fft.irfft(spec, x.size)
 
 
+def band_limited_complex(x: np.ndarray, sample_rate_hz: float, low_hz: float, high_hz: float) -> np.ndarray:
+    """Complex ``x`` with everything outside offsets ``low_hz`` .. ``high_hz`` removed (an ideal
+    band-pass in front of the dongle)."""
+    spec = np.fft.fft(x)
+    f = np.fft.fftfreq(x.size, 1.0 / sample_rate_hz)
+    spec[(f < low_hz) | (f > high_hz)] = 0.0
+    return np.fft.ifft(spec)
+
+
 def zero_runs(x: np.ndarray, *, fraction: float, runs: int = 3) -> np.ndarray:
     """``x`` with ``runs`` equal runs of exactly-zero samples (dropped transfers) covering
     ``fraction`` of it, evenly spread."""

@@ -19,9 +19,10 @@ tone that stands well clear of the noise in single slots but whose level jumps f
 beyond that even when they are merged (keying or pulses faster than the slots: a slot holds part
 of a burst), which is said (``varies_within_slots``).
 
-The level change is read over the on-time, in up to 16 blocks of equal duration: the spread of
-the block means (dB) counts when it is at least LEVEL_CHANGE_DB and five times their combined
-standard error; a straight line through the block means that explains it (residuals below a
+The level change is read over the on-time, in up to 16 blocks of equal duration (at least four
+on-slots each on average): the spread of the block means (dB) counts when it is at least
+LEVEL_CHANGE_DB and five times their combined standard error (from the slots' scatter within the
+blocks, pooled); a straight line through the block means that explains it (residuals below a
 tenth of the change, or twice the blocks' standard error) makes it a drift, reported in dB/s.
 """
 
@@ -43,8 +44,10 @@ NOISE_SUBBAND_DB = 0.5
 #: robust spread: the work arrays stay a few MB at any capture length (DEVELOPERS.md, Memory).
 CHUNK_SLOTS = 2048
 SPREAD_SLOTS = 2048
-#: Blocks the on-time is cut into for the level change.
+#: Blocks the on-time is cut into for the level change (fewer when there are fewer than
+#: MIN_BLOCK_SLOTS on-slots per block).
 LEVEL_BLOCKS = 16
+MIN_BLOCK_SLOTS = 4
 #: A change is a drift when a straight line leaves residuals (RMS) below this fraction of it (a
 #: step half-way leaves a quarter).
 DRIFT_RESIDUAL = 0.1
@@ -226,23 +229,28 @@ def _inner(on: np.ndarray) -> np.ndarray:
 
 
 def _level_change(power: np.ndarray, t: np.ndarray) -> tuple[float, float | None]:
-    """(level change in dB, drift in dB/s or None) over the on-slots (their power and times); the
-    block means' standard errors come from the scatter of the slots within each block (the
-    signal's own fluctuation included)."""
-    if len(power) < 4 or t[-1] <= t[0]:
+    """(level change in dB, drift in dB/s or None) over the on-slots (their power and times), cut
+    into at most LEVEL_BLOCKS blocks of equal duration holding MIN_BLOCK_SLOTS slots each on
+    average. The block means' standard errors come from the slots' relative scatter about their
+    block's mean, pooled over the blocks (the signal's own fluctuation included): a block of a few
+    slots alone would give an error that is itself uncertain by a factor of two or more."""
+    n_blocks = min(LEVEL_BLOCKS, len(power) // MIN_BLOCK_SLOTS)
+    if n_blocks < 3 or t[-1] <= t[0]:
         return 0.0, None
-    edges = np.linspace(t[0], t[-1], LEVEL_BLOCKS + 1)
-    block = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, LEVEL_BLOCKS - 1)
-    n = np.bincount(block, minlength=LEVEL_BLOCKS)
-    full = n > 1
-    p = np.bincount(block, power, LEVEL_BLOCKS)[full] / n[full]
-    squares = np.bincount(block, power**2, LEVEL_BLOCKS)[full] / n[full]
-    s = np.sqrt(np.maximum(squares - p**2, 0.0) / (n[full] - 1))
-    tb = np.bincount(block, t, LEVEL_BLOCKS)[full] / n[full]
+    edges = np.linspace(t[0], t[-1], n_blocks + 1)
+    block = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, n_blocks - 1)
+    n = np.bincount(block, minlength=n_blocks)
+    full = n > 0
+    p = np.bincount(block, power, n_blocks)[full] / n[full]
+    squares = np.bincount(block, power**2, n_blocks)[full] / n[full]
+    tb = np.bincount(block, t, n_blocks)[full] / n[full]
     if len(p) < 3 or not np.all(p > 0):
         return 0.0, None
+    # The slots' relative scatter about their block's mean, pooled: a level that changes (a ramp
+    # of tens of dB) scatters alike in relative terms at every level.
+    relative = np.sum(n[full] * np.maximum(squares - p**2, 0.0) / p**2) / max(int(np.sum(n[full] - 1)), 1)
     db = 10 * np.log10(p)
-    u_db = 10 / np.log(10) * s / p
+    u_db = 10 / np.log(10) * np.sqrt(relative / n[full])
     i, j = int(np.argmax(db)), int(np.argmin(db))
     change = float(db[i] - db[j])
     if change < LEVEL_CHANGE_DB or change < 5.0 * np.hypot(u_db[i], u_db[j]):

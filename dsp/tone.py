@@ -287,6 +287,35 @@ def _half_power_points(y: np.ndarray, k: int) -> tuple[float, float]:
     return float(lo), float(hi)
 
 
+#: A line outside a band-limited floor's band counts when its bin stands this far (dB) above the
+#: median of the LOCAL_BINS bins on either side of it beyond its integration band (the higher
+#: side's: the edge of a noise passband stands above only one of its sides).
+LINE_ELSEWHERE_DB = 10.0
+LOCAL_BINS = 64
+
+
+def line_elsewhere(spectrum: Psd, floor: NoiseFloor) -> float | None:
+    """The offset (Hz) of the strongest bin outside the floor's band (``floor.band_hz``), clear of
+    the DC spike and the band edges, that stands LINE_ELSEWHERE_DB above the median of the bins
+    around it; None when there is none. For a band-limited floor taken where the strongest bins
+    are (a noise passband that outshines a weaker line outside it, bin for bin)."""
+    if floor.band_hz is None:
+        return None
+    f, d = spectrum.frequency_hz, spectrum.density
+    usable, _, _ = usable_mask(spectrum, dc_halfwidth_hz=floor.dc_halfwidth_hz)
+    outside = usable & ((f < floor.band_hz[0]) | (f > floor.band_hz[1]))
+    if not outside.any():
+        return None
+    gap = BAND_HALFWIDTH_BINS + 1
+    side = np.lib.stride_tricks.sliding_window_view(np.pad(d, LOCAL_BINS + gap, mode="edge"), LOCAL_BINS)
+    at = np.flatnonzero(outside)
+    left = np.median(side[at], axis=1)  # bins k - gap - LOCAL_BINS .. k - gap - 1
+    right = np.median(side[at + LOCAL_BINS + 2 * gap + 1], axis=1)  # bins k + gap + 1 .. k + gap + LOCAL_BINS
+    ratio = d[outside] / np.maximum(np.maximum(left, right), np.finfo(float).tiny)
+    best = int(np.argmax(ratio))
+    return float(f[outside][best]) if ratio[best] >= 10 ** (LINE_ELSEWHERE_DB / 10) else None
+
+
 def _second_line(spectrum: Psd, floor: NoiseFloor, k: int, own_bins: tuple[int, int], *, near_hz=None,
                  search_hz=None):
     """(bin, dB relative to the tone at ``k``) of the strongest other peak standing above the noise
