@@ -2,3 +2,4 @@
 stays importable for code written against it and goes in the next release."""
 
 from rxbench.reading import *  # noqa: F401,F403
+from rxbench.compared import *  # noqa: F401,F403  (split from it since)

@@ -14,7 +14,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from rxbench.reading import CENTER_TOLERANCE_HZ, Reading, read_capture
+from rxbench.compared import CENTER_TOLERANCE_HZ
+from rxbench.reading import Reading, read_capture
 from rxbench.dsp.loss import Loss
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.subbands import N_SUB_BANDS

@@ -25,7 +25,7 @@ def add_noise_band_option(parser) -> None:
 
 
 def add_drift_option(parser) -> None:
-    """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`rxbench.reading.signal_differences`)."""
+    """``--drift-ppm``: how far compared captures' tones may move apart (see :func:`rxbench.compared.signal_differences`)."""
     parser.add_argument("--drift-ppm", type=float, default=DEFAULT_PPM, metavar="PPM",
                         help="how far the tone may move between captures, ppm of the centre frequency, on top of "
                              f"{DEFAULT_BINS:g} FFT bins (default %(default)g; widen for a dongle still warming up)")

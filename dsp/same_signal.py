@@ -19,6 +19,13 @@ between captures minutes apart; an uncompensated one still warming up can move s
 Which capture is "the odd one" is decided by agreement, not by order: the reference is the capture
 whose tone agrees with the most others (ties go to the earliest, so with two captures the first
 one, the thru, is the reference).
+
+The same signal is also present alike in time: a tone on for half of one capture and all of the
+other (an intermittent connector, a generator keyed for one capture only) gives average powers
+that differ by the keying, not by the device. Captures whose on-fractions differ from the
+reference's by more than ON_FRACTION_TOLERANCE, or whose tone is keyed faster than the time track
+resolves while the reference's is not (or the other way round), are "unlike in time". Captures
+keyed alike compare (their averages share the duty cycle).
 """
 
 from __future__ import annotations
@@ -36,6 +43,8 @@ DEFAULT_BINS = 3.0
 DEFAULT_PPM = 1.0
 #: A tone within the DC region's half-width plus this many bins of 0 Hz is the DC spike (or its skirt).
 DC_GUARD_BINS = 4
+#: Compared captures' on-fractions (the time their tone is present) agree to this (absolute).
+ON_FRACTION_TOLERANCE = 0.1
 
 
 @dataclass(frozen=True)
@@ -54,6 +63,8 @@ class SameSignal:
         Captures whose tone is the DC spike.
     disagree : tuple of (int, float)
         Captures whose tone is elsewhere: (index, offset minus the reference's offset, Hz).
+    unlike_in_time : tuple of int
+        Captures (of the others) whose tone is not present alike in time with the reference's.
     """
 
     tolerance_hz: float
@@ -61,15 +72,17 @@ class SameSignal:
     absent: tuple
     on_dc: tuple
     disagree: tuple
+    unlike_in_time: tuple = ()
 
     @property
     def ok(self) -> bool:
-        return not (self.absent or self.on_dc or self.disagree)
+        return not (self.absent or self.on_dc or self.disagree or self.unlike_in_time)
 
     @property
     def rejected(self) -> tuple:
         """Indices of every capture that is not the same signal, in order."""
-        return tuple(sorted(set(self.absent) | set(self.on_dc) | {i for i, _ in self.disagree}))
+        return tuple(sorted(set(self.absent) | set(self.on_dc) | {i for i, _ in self.disagree}
+                            | set(self.unlike_in_time)))
 
 
 def tolerance_hz(bin_width_hz: float, reference_hz: float | None = None, *, bins: float = DEFAULT_BINS,
@@ -105,7 +118,8 @@ def on_dc(offset_hz: float, bin_width_hz: float, dc_halfwidth_hz: float = 0.0) -
 
 
 def same_signal(offsets_hz, bin_width_hz: float, reference_hz: float | None = None, *,
-                dc_halfwidth_hz: float = 0.0, bins: float = DEFAULT_BINS, ppm: float = DEFAULT_PPM) -> SameSignal:
+                dc_halfwidth_hz: float = 0.0, bins: float = DEFAULT_BINS, ppm: float = DEFAULT_PPM,
+                on_fractions=None, keyed_fast=None) -> SameSignal:
     """Which captures' tones are not the same signal as the others'.
 
     Parameters
@@ -121,6 +135,10 @@ def same_signal(offsets_hz, bin_width_hz: float, reference_hz: float | None = No
         Half-width of the DC spike's region, Hz (0 for real captures: only the guard bins count).
     bins, ppm : float
         Tolerance terms (see :func:`tolerance_hz`).
+    on_fractions, keyed_fast : sequence, optional
+        Each capture's on-fraction (None: not resolved in time) and whether its tone is keyed
+        faster than the time track resolves; given, captures not present alike in time with the
+        reference are named (``unlike_in_time``).
 
     Returns
     -------
@@ -146,4 +164,11 @@ def same_signal(offsets_hz, bin_width_hz: float, reference_hz: float | None = No
     agree = [sum(abs(f[i] - f[j]) <= tol for j in usable) for i in usable]
     ref = usable[int(np.argmax(agree))]
     disagree = tuple((i, float(f[i] - f[ref])) for i in usable if abs(f[i] - f[ref]) > tol)
-    return SameSignal(tol, ref, absent, dc, disagree)
+    unlike = ()
+    if on_fractions is not None:
+        fast = list(keyed_fast) if keyed_fast is not None else [False] * f.size
+        on, wrong = list(on_fractions), {i for i, _ in disagree}
+        unlike = tuple(i for i in usable if i != ref and i not in wrong and (
+            bool(fast[i]) != bool(fast[ref])
+            or (on[i] is not None and on[ref] is not None and abs(on[i] - on[ref]) > ON_FRACTION_TOLERANCE)))
+    return SameSignal(tol, ref, absent, dc, disagree, unlike)

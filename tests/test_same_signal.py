@@ -83,6 +83,45 @@ def test_absent_and_dc_tones():
     assert r.reference is None and r.rejected == (0, 1)
 
 
+def test_tones_present_unlike_in_time_are_named():
+    # On-fractions beyond 0.1 apart (a tone on for half of one capture, all of the other), or one
+    # capture keyed faster than the time track resolves, are not compared; captures keyed alike are.
+    r = same_signal([25e3] * 3, 61.0, on_fractions=[1.0, 0.5, 0.95])
+    assert r.unlike_in_time == (1,) and r.rejected == (1,) and not r.ok
+    assert same_signal([25e3] * 2, 61.0, on_fractions=[0.25, 0.3]).ok
+    assert same_signal([25e3] * 2, 61.0, on_fractions=[None, 0.5]).ok  # unknown: not judged
+    assert same_signal([25e3] * 2, 61.0, on_fractions=[1.0, None], keyed_fast=[False, True]).unlike_in_time == (1,)
+    r = same_signal([25e3, 30e3], 61.0, on_fractions=[1.0, 0.5])  # named once, for its frequency
+    assert r.disagree and r.unlike_in_time == ()
+
+
+def test_loss_refuses_a_dut_present_half_the_time(tmp_path, capsys):
+    # An intermittent connector on the DUT: its tone is on half the time, the thru's all the time;
+    # the averages' difference (3 dB of keying plus the loss) measures no device: exit 2, naming both.
+    rng = np.random.default_rng(1209)
+    n = int(0.8 * FS)
+
+    def capture(name, gate, level_dbfs):
+        x = synth.thermal_noise(n, FS, 290.0, rng) + gate * synth.tone(
+            n, FS, power_w=w_from_dbm(level_dbfs - DONGLE.gain_db), offset_hz=25e3)
+        raw = DONGLE.receive_cu8(x, FS, rng)
+        return str(write_sigmf(tmp_path / name, raw, sample_rate_hz=FS, center_hz=CENTER_HZ, datatype="cu8"))
+
+    thru = capture("thru", 1.0, -25.0)
+    dut = capture("dut", synth.keyed(n, FS, duty=0.5, period_s=0.2), -28.0)
+    code, out, err = _run(capsys, "loss", "--thru", thru, "--dut", dut)
+    assert code == 2 and out == "" and err.count("\n") == 1
+    m = re.search(r"dut.sigmf-meta: tone present (\d+) % of the time, thru.sigmf-meta: tone present (\d+) % of "
+                  r"the time: not present alike in time", err)
+    assert m, err
+    assert float(m[1]) == pytest.approx(50, abs=8) and float(m[2]) >= 95
+    assert "--drift-ppm" not in err  # (a frequency hint would mislead here)
+    keyed_thru = capture("thru_keyed", synth.keyed(n, FS, duty=0.5, period_s=0.2), -25.0)
+    code, out, err = _run(capsys, "loss", "--thru", keyed_thru, "--dut", dut, "--json")
+    assert code == 0, err  # keyed alike: their averages share the duty cycle
+    assert json.loads(out)["insertion_loss_db"] == pytest.approx(3.0, abs=0.4)
+
+
 # --------------------------------------------------------------------------------------------
 # The commands refuse, with exit 2, naming both captures and their offsets
 

@@ -13,7 +13,8 @@ from __future__ import annotations
 import argparse
 import math
 
-from rxbench.reading import read_capture, require_comparable
+from rxbench.compared import require_comparable
+from rxbench.reading import read_capture
 from rxbench.errors import MeasurementError, UsageError
 from rxbench.methods.external import external_noise
 from rxbench.output import add_json_option, emit, fmt_db

@@ -10,7 +10,7 @@ import argparse
 import math
 
 from rxbench.options import add_tone_reading_options
-from rxbench.reading import read_tones
+from rxbench.compared import read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import pool
 from rxbench.methods.ladder import DEFAULT_LINEARITY_DB, DEFAULT_TOLERANCE_DB, ladder_check

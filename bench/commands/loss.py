@@ -13,7 +13,7 @@ import math
 import numpy as np
 
 from rxbench.options import add_tone_reading_options
-from rxbench.reading import read_tones
+from rxbench.compared import read_tones
 from rxbench.errors import UsageError
 from rxbench.methods.common import SWR_FROM_OPTIONS, has_tone, pool
 from rxbench.methods.loss import direct_loss, substitution_loss

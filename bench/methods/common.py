@@ -10,7 +10,8 @@ from typing import Mapping
 import numpy as np
 
 from rxbench import keys
-from rxbench.reading import capture_start_s, pool_tones, require_comparable, require_same_signal, tone_db
+from rxbench.compared import require_comparable, require_same_signal
+from rxbench.reading import capture_start_s, pool_tones, tone_db
 from rxbench.dsp.same_signal import DEFAULT_PPM
 from rxbench.dsp.loss import mismatch_components
 from rxbench.dsp.subbands import N_SUB_BANDS  # noqa: F401  (the one default, re-exported)
@@ -118,9 +119,9 @@ def has_tone(reading) -> bool:
 
 def require_comparable_tones(*groups: PooledTone | None, drift_ppm: float = DEFAULT_PPM) -> None:
     """Refuse pooled readings that cannot be compared: captures not taken alike (sample rate, sample
-    type, tuning, recorded dongle gain: :func:`rxbench.reading.require_comparable`), or tones that are
+    type, tuning, recorded dongle gain: :func:`rxbench.compared.require_comparable`), or tones that are
     not one signal (a tone elsewhere than the others', beyond 3 bins + ``drift_ppm``, or on the DC
-    spike: :func:`rxbench.reading.require_same_signal`). Either raises UnlikeCapturesError naming the
+    spike: :func:`rxbench.compared.require_same_signal`). Either raises UnlikeCapturesError naming the
     captures. Every tone method calls this on its inputs, so no view (command, session, Python API)
     can compare two different signals or two different set-ups; readings without a tone are the
     pooling's business (:func:`pool`)."""

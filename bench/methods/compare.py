@@ -16,7 +16,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from rxbench.reading import Reading, capture_start_s, choose_nperseg, read_capture, require_comparable
+from rxbench.compared import require_comparable
+from rxbench.reading import Reading, capture_start_s, choose_nperseg, read_capture
 from rxbench.dsp import compare as cmp
 from rxbench.dsp.detection import DEFAULT_FALSE_ALARM
 from rxbench.dsp.paired import Estimates, Interval, min_pairs_for_interval

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from rxbench.reading import CENTER_TOLERANCE_HZ, setup_difference, signal_differences
+from rxbench.compared import CENTER_TOLERANCE_HZ, setup_difference, signal_differences
 from rxbench.session.folder import Entry
 
 
@@ -24,7 +24,7 @@ def _compatible(entries: list[Entry], ref: Entry, what: str, warnings: list[str]
 
 def _same_signal(entries: list[Entry], readings, where: str, warnings: list[str], drift_ppm: float) -> list[Entry]:
     """Leave out, with a warning, the entries whose tone is not the signal the others hold
-    (:func:`rxbench.reading.signal_differences`); entries without a tone are left to the caller."""
+    (:func:`rxbench.compared.signal_differences`); entries without a tone are left to the caller."""
     toned = [e for e in entries if readings[e].tone is not None]
     if not toned:
         return entries
