@@ -273,6 +273,18 @@ def test_gain_method(tmp_path, capsys):
     assert res["y_db"] is None
 
 
+def test_gain_method_refuses_a_keyed_tone(tmp_path, capsys):
+    # The level given is the generator's while on; a tone on a quarter of the time reads its average
+    # C/N0 6 dB low (NF 6 dB high): the method refuses, naming how much of the time it was present.
+    rng = np.random.default_rng(22)
+    gate = synth.keyed(N, FS, duty=0.25, period_s=0.1)
+    x = gate * synth.tone(N, FS, power_w=float(w_from_dbm(-100.0)), offset_hz=31e3) + synth.thermal_noise(N, FS, T0_K, rng)
+    path = _capture(tmp_path, "keyed", x, rng)
+    code = main(["nf", "--tone", path, "--level-dbm", "-100"])
+    err = capsys.readouterr().err
+    assert code == 1 and "the gain method needs a steady tone" in err and "present in only" in err, err
+
+
 def test_swapped_hot_and_cold_is_an_error(tmp_path, capsys):
     rng = np.random.default_rng(22)
     hot, cold = _pair(tmp_path, "ref", rng, n=20_000)

@@ -11,6 +11,7 @@ import math
 from dataclasses import dataclass
 
 from rxbench.dsp.noisefig import nf_gain_method_db
+from rxbench.dsp.tone import tone_shape
 from rxbench.dsp.units import T0_K
 from rxbench.errors import MeasurementError
 from rxbench.methods.common import COVERAGE_FACTOR
@@ -80,7 +81,8 @@ def gain_method(reading, level_dbm: float, *, level_from: str | None = None) -> 
     Raises
     ------
     MeasurementError
-        No tone above the noise.
+        No tone above the noise, or one that is not steady (intermittent, or keyed faster than the
+        time track resolves): its average C/N0 is not that of the level given.
     UnlikeCapturesError
         The tone is the DC spike (:func:`rxbench.methods.tone.read_tone`).
     """
@@ -89,6 +91,13 @@ def gain_method(reading, level_dbm: float, *, level_from: str | None = None) -> 
     if t is None or not t.power > 0:
         raise MeasurementError(f"{cap.path}: no tone found above the noise; the gain method needs one")
     warnings = list(read_tone(reading, "tone").warnings)  # one capture: its tone must not be the DC spike
+    shape = tone_shape(reading.psd, reading.floor, t)
+    if shape.on_fraction is not None or shape.varies_within_slots:
+        # The level given is the generator's while on; the capture's C/N0 averages its off time in.
+        present = ("keyed faster than the time slots" if shape.varies_within_slots
+                   else f"present in only {100 * shape.on_fraction:.0f} % of the capture")
+        raise MeasurementError(f"{cap.path}: the tone is {present} (a loose connector, a keyed generator?): "
+                               "the gain method needs a steady tone")
     nf_db = float(nf_gain_method_db(level_dbm, t.cn0_dbhz))
     u_n0_db = _DB_PER_NEPER * reading.floor.u_density / reading.floor.density
     u_db = float(math.hypot(t.u_power_db, u_n0_db))
