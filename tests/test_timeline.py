@@ -107,6 +107,17 @@ def test_pulses_shorter_than_a_slot_are_said_not_read_as_steady(rng):
     assert not steady.timeline.varies_within_slots and tone_dict(steady, None)["varies_within_slots"] is False
 
 
+def test_inspect_says_a_tone_keyed_faster_than_the_slots_is_an_average(tmp_path, rng, capsys):
+    gate = synth.keyed(N, FS, duty=0.1, period_s=10e-3)
+    meta = write_sigmf(tmp_path / "pulsed", (_noise(rng) + _tone() * gate).astype(np.complex64), sample_rate_hz=FS,
+                       center_hz=28e6, datatype="cf32_le")
+    assert main(["inspect", str(meta)]) == 0
+    text = capsys.readouterr().out
+    assert "averaged over the whole capture" in text and "not resolved: keyed faster than the 2.05 ms time slots" in text
+    assert main(["inspect", str(meta), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["tone"]["varies_within_slots"] is True
+
+
 def test_two_line_keying_names_both_lines_and_near_chooses(rng):
     offsets = (100e3, 104e3)
     x = _noise(rng) + synth.two_line_keying(N, FS, power=TONE, offsets_hz=offsets, period_s=N / FS / 8)

@@ -63,7 +63,8 @@ def run(args: argparse.Namespace) -> int:
         lo, hi = t.ci95_dbfs
         on = t.on_fraction
         intermittent = on is not None and on < INTERMITTENT_BELOW
-        basis = "  averaged over the whole capture" if intermittent else ""
+        keyed_fast = t.timeline is not None and t.timeline.varies_within_slots
+        basis = "  averaged over the whole capture" if intermittent or keyed_fast else ""
         lines += [
             f"  tone          {t.offset_hz:+.1f} Hz{freq}",
             f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)}){basis}",
@@ -71,6 +72,8 @@ def run(args: argparse.Namespace) -> int:
         if intermittent:
             lines.append(f"  while on      {fmt_db(t.on_power_dbfs)} dBFS, present {100 * on:.0f} % of the time"
                          f" (C/N0 {fmt_db(t.on_cn0_dbhz, 1)} dB-Hz while on)")
+        elif keyed_fast:
+            lines.append(f"  while on      not resolved: keyed faster than the {1e3 * t.timeline.slot_s:.3g} ms time slots")
         lines += [
             f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
             f"  SNR           {fmt_db(t.snr_db, 1)} dB in {fmt_hz(t.snr_bandwidth_hz)}",
