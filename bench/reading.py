@@ -137,9 +137,11 @@ def read_capture(
             tone = measure_tone(psd, floor, near_hz=near_hz, snr_bandwidth_hz=snr_bandwidth_hz)
         except ValueError as exc:
             missing = f"{name}: {exc}"
-            # A band-limited floor taken at the strongest bins, a noise passband, can hide a weaker
-            # line outside it: that line is read with the floor around it.
-            line = line_elsewhere(psd, floor) if floor.band_limited and near_hz is None else None
+        # A band-limited floor taken at the strongest bins, a noise passband, can hide a weaker line
+        # outside it (no tone there, or only the passband read as a broad signal): that line is read
+        # with the floor around it.
+        if (tone is None or tone.is_broad) and floor.band_limited and near_hz is None:
+            line = line_elsewhere(psd, floor)
             if line is not None:
                 floor = noise_floor(psd, dc_halfwidth_hz=floor.dc_halfwidth_hz, seed_hz=line)
                 tone = measure_tone(psd, floor, near_hz=line, snr_bandwidth_hz=snr_bandwidth_hz)

@@ -260,12 +260,14 @@ def _passband(seed, fs=2.4e6, n=1 << 21):
     return own + synth.band_limited_complex(synth.white_noise(n, 1e-8 * fs, rng), fs, -100e3, 100e3)
 
 
-def test_a_line_outside_a_noise_passband_is_read_with_the_floor_around_it():
+@pytest.mark.parametrize("seed", [0, 1])
+def test_a_line_outside_a_noise_passband_is_read_with_the_floor_around_it(seed):
     # The passband's bins (-80 dBFS/Hz: -52 dBFS per 586 Hz bin) outshine a -60 dBFS line at
     # +400 kHz, 40 dB above the floor around it; the band-limited floor is first taken in the
-    # passband, where no line stands: the line is then read with the floor around it.
+    # passband, where no line stands (seed 1) or only the passband itself reads as a broad signal
+    # (seed 0): the line is then read with the floor around it.
     fs, n = 2.4e6, 1 << 21
-    r = _read(_passband(1) + synth.tone(n, fs, power_w=1e-6, offset_hz=400e3), fs)
+    r = _read(_passband(seed) + synth.tone(n, fs, power_w=1e-6, offset_hz=400e3), fs)
     assert r.tone.offset_hz == pytest.approx(400e3, abs=fs / 4096)
     assert r.tone.power_dbfs == pytest.approx(-60.0, abs=0.3)
     assert db_from_power(r.floor.density) == pytest.approx(-100.0, abs=0.3)
