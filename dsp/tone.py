@@ -338,10 +338,9 @@ def _second_line(spectrum: Psd, floor: NoiseFloor, k: int, own_bins: tuple[int, 
     excess = np.convolve(d - n0, np.ones(5), mode="same")
     # Local maxima only: one candidate per peak.
     peaks = np.flatnonzero(candidates & (d >= np.roll(d, 1)) & (d >= np.roll(d, -1)))
-    near = peaks[(peaks >= lo - BAND_HALFWIDTH_BINS) & (peaks <= hi + BAND_HALFWIDTH_BINS)]
-    distinct = [p for p in near if d[min(p, k) : max(p, k) + 1].min() < 0.5 * min(d[p], d[k])]
-    peaks = np.concatenate([peaks[(peaks < lo - BAND_HALFWIDTH_BINS) | (peaks > hi + BAND_HALFWIDTH_BINS)],
-                            np.array(distinct, dtype=peaks.dtype)])
+    inside = (peaks >= lo - BAND_HALFWIDTH_BINS) & (peaks <= hi + BAND_HALFWIDTH_BINS)
+    inside[inside] = [d[min(p, k) : max(p, k) + 1].min() >= 0.5 * min(d[p], d[k]) for p in peaks[inside]]
+    peaks = peaks[~inside]  # (a peak inside the band stays when a dip separates it from the tone)
     if peaks.size == 0 or excess[k] <= 0:
         return None
     best = int(peaks[np.argmax(excess[peaks])])

@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from rxbench.options import add_noise_band_option
-from rxbench.reading import INTERMITTENT_BELOW, health_dict, noise_dict, read_capture, tone_dict
+from rxbench.reading import health_dict, noise_dict, read_capture, tone_dict, tone_shape
 from rxbench.style import fmt_hz, fmt_hz_band
 from rxbench.output import Progress, add_json_option, emit, fmt_db
 from rxbench.recordings import add_capture_options, capture_from_args
@@ -61,18 +61,17 @@ def run(args: argparse.Namespace) -> int:
     else:
         freq = "" if cap.center_hz is None else f"  ({fmt_hz_band(cap.center_hz + t.offset_hz, 1.0)})"
         lo, hi = t.ci95_dbfs
-        on = t.on_fraction
-        intermittent = on is not None and on < INTERMITTENT_BELOW
-        keyed_fast = t.timeline is not None and t.timeline.varies_within_slots
-        basis = "  averaged over the whole capture" if intermittent or keyed_fast else ""
+        shape = tone_shape(r.psd, r.floor, t)  # the findings the reading's warnings come from
+        on = shape.on_fraction
+        basis = "  averaged over the whole capture" if on is not None or shape.varies_within_slots else ""
         lines += [
             f"  tone          {t.offset_hz:+.1f} Hz{freq}",
             f"  power         {fmt_db(t.power_dbfs)} dBFS  (95 %: {fmt_db(lo, 3)} .. {fmt_db(hi, 3)}){basis}",
         ]
-        if intermittent:
+        if on is not None:
             lines.append(f"  while on      {fmt_db(t.on_power_dbfs)} dBFS, present {100 * on:.0f} % of the time"
                          f" (C/N0 {fmt_db(t.on_cn0_dbhz, 1)} dB-Hz while on)")
-        elif keyed_fast:
+        elif shape.varies_within_slots:
             lines.append(f"  while on      not resolved: keyed faster than the {1e3 * t.timeline.slot_s:.3g} ms time slots")
         lines += [
             f"  C/N0          {fmt_db(t.cn0_dbhz, 1)} dB-Hz",
